@@ -1,0 +1,7 @@
+"""``python -m matgen`` runs the command line."""
+
+import sys
+
+from matgen.cli import main
+
+sys.exit(main())

@@ -1,0 +1,4 @@
+"""Spectra: chromophore absorption, scattering laws, refractive indices, band averaging.
+
+Units: wavelength nm, coefficients 1/mm.
+"""

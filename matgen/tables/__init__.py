@@ -1,0 +1,1 @@
+"""matgen.tables."""
