@@ -1,0 +1,1 @@
+"""Shipped lookup tables and their build specs (installed as ``matgen.lut``)."""
