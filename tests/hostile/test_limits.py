@@ -1,0 +1,147 @@
+"""Safety ceilings of matgen.limits: defaults, environment overrides, function overrides, messages."""
+
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from matgen import limits
+from matgen.errors import ConfigError, ImageError, LimitError, MatgenError, ParameterError
+
+
+def test_defaults_are_documented_and_in_force(monkeypatch):
+    for name, (default, env, _unit) in limits.DEFAULTS.items():
+        monkeypatch.delenv(env, raising=False)
+        assert limits.get_limit(name) == default
+        assert env in limits.__doc__ and f"``{name}``" in limits.__doc__
+
+
+def test_photon_ceiling_matches_constants():
+    from matgen.constants import MAX_PHOTONS
+
+    assert limits.DEFAULTS["photons"][0] == MAX_PHOTONS
+
+
+def test_environment_variable_lowers_ceiling(monkeypatch):
+    monkeypatch.setenv("MATGEN_MAX_IMAGE_PIXELS", "1000")
+    assert limits.check_image_dims(10, 100, 3) == 1000
+    with pytest.raises(LimitError) as exc:
+        limits.check_image_dims(10, 101, 3, path="maps/melanin.1001.exr")
+    msg = str(exc.value)
+    assert "1010" in msg and "1000" in msg and "MATGEN_MAX_IMAGE_PIXELS" in msg and "melanin.1001.exr" in msg
+
+
+@pytest.mark.parametrize("raw", ["ten", "-5", "0", "1.5", "nan"])
+def test_bad_environment_value_is_config_error(monkeypatch, raw):
+    monkeypatch.setenv("MATGEN_MAX_PHOTONS", raw)
+    with pytest.raises(ConfigError, match="MATGEN_MAX_PHOTONS"):
+        limits.check_photons(10)
+
+
+def test_environment_accepts_underscores_and_exponent(monkeypatch):
+    monkeypatch.setenv("MATGEN_MAX_PHOTONS", "1_000")
+    assert limits.get_limit("photons") == 1000
+    monkeypatch.setenv("MATGEN_MAX_PHOTONS", "1e6")
+    assert limits.get_limit("photons") == 10**6
+
+
+def test_override_beats_environment_and_is_restored(monkeypatch):
+    monkeypatch.setenv("MATGEN_MAX_PHOTONS", "100")
+    with limits.override(photons=10**6):
+        assert limits.check_photons(10**6) == 10**6
+        with pytest.raises(LimitError, match="set_limit"):
+            limits.check_photons(10**6 + 1)
+    assert limits.get_limit("photons") == 100
+    limits.set_limit("photons", 5)
+    try:
+        assert limits.get_limit("photons") == 5
+    finally:
+        limits.set_limit("photons", None)
+    assert limits.get_limit("photons") == 100
+
+
+def test_unknown_limit_name_lists_known_ones():
+    with pytest.raises(ParameterError, match="image_pixels"):
+        limits.get_limit("pixels")
+    with pytest.raises(ParameterError):
+        with limits.override(pixels=3):
+            pass
+
+
+@pytest.mark.parametrize(
+    "w,h,c,field",
+    [(0, 10, 3, "width"), (10, -1, 3, "height"), (10, 10, 0, "channel"), (1.5, 10, 1, "width"), ("x", 1, 1, "width"),
+     (True, 1, 1, "width")],
+)
+def test_zero_negative_or_non_integer_dims_are_image_errors(w, h, c, field):
+    with pytest.raises(ImageError, match=field):
+        limits.check_image_dims(w, h, c, path="a.exr")
+
+
+def test_each_image_ceiling_is_checked():
+    with pytest.raises(LimitError, match="MATGEN_MAX_IMAGE_SIDE"):
+        limits.check_image_dims(70000, 1, 1)
+    with pytest.raises(LimitError, match="MATGEN_MAX_IMAGE_PIXELS"):
+        limits.check_image_dims(20000, 20000, 1)
+    with pytest.raises(LimitError, match="MATGEN_MAX_IMAGE_CHANNELS"):
+        limits.check_image_dims(4, 4, 100000)
+    with pytest.raises(LimitError, match="MATGEN_MAX_IMAGE_BYTES"):
+        limits.check_image_dims(16384, 16384, 71)
+
+
+def test_huge_declared_sizes_do_not_overflow():
+    # 2**62 x 2**62 would wrap in int64 arithmetic; the check uses Python integers.
+    import numpy as np
+
+    with pytest.raises(LimitError):
+        limits.check_image_dims(np.int64(2**62), np.int64(2**62), 1)
+    with pytest.raises(LimitError):
+        limits.check_table_entries(2**80, "grid")
+
+
+def test_table_and_udim_and_generic_counts():
+    with limits.override(table_entries=100, udim_tiles=3):
+        assert limits.check_table_entries(100, "grid") == 100
+        with pytest.raises(LimitError, match="quantity 'albedo_multiple'"):
+            limits.check_table_entries(101, "quantity 'albedo_multiple'")
+        with pytest.raises(LimitError, match="MATGEN_MAX_UDIM_TILES"):
+            limits.check_udim_tiles(4, "maps/melanin.<UDIM>.exr")
+        with pytest.raises(LimitError):
+            limits.check_count(101, "table_entries", "band count x grid")
+    with pytest.raises(ParameterError):
+        limits.check_photons(0)
+    with pytest.raises(ParameterError):
+        limits.check_photons(2.5)
+
+
+def test_file_size_and_text_reading(tmp_path):
+    p = tmp_path / "config.toml"
+    p.write_bytes(b"a = 1\n" * 100)
+    with limits.override(text_bytes=599):
+        with pytest.raises(LimitError, match="config.toml"):
+            limits.read_text_limited(p, "material config")
+    assert limits.read_text_limited(p, "material config").startswith("a = 1")
+    bad = tmp_path / "bad.toml"
+    bad.write_bytes(b"\xff\xfe\x00")
+    with pytest.raises(ConfigError, match="not UTF-8"):
+        limits.read_text_limited(bad, "material config")
+    with pytest.raises(ConfigError, match="cannot read"):
+        limits.check_file_size(tmp_path / "missing.bin", "table")
+    with pytest.raises(ConfigError, match="not a regular file"):
+        limits.check_file_size(tmp_path, "table")
+    with limits.override(file_bytes=10):
+        with pytest.raises(LimitError, match="MATGEN_MAX_FILE_BYTES"):
+            limits.check_file_size(p, "table")
+
+
+@settings(max_examples=150, deadline=None)
+@given(w=st.integers(-2**70, 2**70), h=st.integers(-2**70, 2**70), c=st.integers(-10, 2**40))
+def test_check_image_dims_accepts_exactly_the_dims_within_every_ceiling(w, h, c):
+    """Property: the check passes iff every dimension is positive and every ceiling holds; else MatgenError."""
+    ok = (w >= 1 and h >= 1 and c >= 1 and max(w, h) <= limits.get_limit("image_side")
+          and w * h <= limits.get_limit("image_pixels") and c <= limits.get_limit("image_channels")
+          and w * h * c * 4 <= limits.get_limit("image_bytes"))
+    if ok:
+        assert limits.check_image_dims(w, h, c) == w * h
+    else:
+        with pytest.raises(MatgenError):
+            limits.check_image_dims(w, h, c)
