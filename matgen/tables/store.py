@@ -1,0 +1,432 @@
+"""The lookup-table file: a grid over skin-parameter axes holding every table quantity. Units: nm, mm, 1/mm.
+
+A table is stored as two files side by side:
+
+``NAME.npz``
+    A zip of ``.npy`` arrays written deterministically (fixed member order, fixed timestamps, no pickles), so
+    the same content always gives the same bytes: ``header.json`` (a uint8 array holding the format version,
+    axes, bands, working space, illuminant and the manifest as built), ``axis_<i>`` (float64 axis values in
+    their natural units, fractions in [0, 1]) and ``q_<name>`` (float32, shape ``grid_shape + (C,)``).
+``NAME.json``
+    The manifest in readable form plus the SHA-256 of ``NAME.npz`` (``npz_sha256``). It adds build statistics
+    (wall time, CPU count) that vary between runs and so are kept out of the ``.npz``.
+
+Quantities (names fixed across matgen): spectral, last axis = bands: ``albedo_multiple`` (total diffuse
+reflectance A at normal incidence), ``albedo_multiple_stderr``, ``shape_distance_mm`` (Christensen-Burley d,
+mm), ``albedo_single``, ``mean_free_path_mm`` (mm), ``anisotropy``, ``fit_residual``; RGB, last axis 3 in the
+table's working space: ``rgb_albedo_multiple``, ``rgb_shape_distance_mm`` (mm), ``rgb_albedo_single``,
+``rgb_mean_free_path_mm`` (mm), ``rgb_fit_residual``; scalar: ``ior`` (last axis 1).
+"""
+
+from __future__ import annotations
+
+import difflib
+import io
+import json
+import os
+import zipfile
+from dataclasses import dataclass, field
+from importlib import resources
+from pathlib import Path
+
+import numpy as np
+
+from matgen.errors import ParameterError, TableError
+from matgen.provenance import sha256_file
+from matgen.spectra.bands import BandSet
+from matgen.tables import interpolate
+
+#: Version of the table file layout; :meth:`Table.load` refuses other versions.
+TABLE_FORMAT_VERSION = 1
+
+SPECTRAL_QUANTITIES = (
+    "albedo_multiple",
+    "albedo_multiple_stderr",
+    "shape_distance_mm",
+    "albedo_single",
+    "mean_free_path_mm",
+    "anisotropy",
+    "fit_residual",
+)
+RGB_QUANTITIES = (
+    "rgb_albedo_multiple",
+    "rgb_shape_distance_mm",
+    "rgb_albedo_single",
+    "rgb_mean_free_path_mm",
+    "rgb_fit_residual",
+)
+SCALAR_QUANTITIES = ("ior",)
+SPACINGS = ("linear", "log")
+_ZIP_DATE = (1980, 1, 1, 0, 0, 0)
+
+
+@dataclass(frozen=True)
+class Axis:
+    """One grid axis of a table.
+
+    Attributes
+    ----------
+    name : str
+        A :class:`matgen.tissue.parameters.SkinParameters` field (e.g. ``melanin_fraction``).
+    values : ndarray of float64, shape (n,)
+        Strictly increasing grid values in the field's unit (volume fractions, shares in [0, 1], a scale).
+    spacing : {"linear", "log"}
+        The coordinate the axis is sampled and interpolated in (``log`` needs values > 0).
+    """
+
+    name: str
+    values: np.ndarray
+    spacing: str = "linear"
+
+    def __post_init__(self):
+        v = np.atleast_1d(np.asarray(self.values, dtype=np.float64)).copy()
+        if v.ndim != 1 or v.size < 2:
+            raise ParameterError(f"axis '{self.name}' has {v.size} value(s); an axis needs at least 2 points")
+        if not np.all(np.isfinite(v)):
+            raise ParameterError(f"axis '{self.name}' holds non-finite values {v.tolist()}")
+        if np.any(np.diff(v) <= 0):
+            i = int(np.argmax(np.diff(v) <= 0))
+            raise ParameterError(
+                f"axis '{self.name}' values must increase strictly: {v[i + 1]!r} follows {v[i]!r}"
+            )
+        if self.spacing not in SPACINGS:
+            raise ParameterError(f"axis '{self.name}' spacing is {self.spacing!r}; use one of {SPACINGS}")
+        if self.spacing == "log" and v[0] <= 0:
+            raise ParameterError(f"axis '{self.name}' is log-spaced but starts at {v[0]!r}; log axes need values > 0")
+        v.setflags(write=False)
+        object.__setattr__(self, "values", v)
+
+    @property
+    def coords(self) -> np.ndarray:
+        """The axis in its interpolation coordinate (``log`` of the values for a log axis)."""
+        return np.log(self.values) if self.spacing == "log" else self.values.copy()
+
+    def transform(self, x: np.ndarray) -> np.ndarray:
+        """Map values (already inside the axis range) to the interpolation coordinate."""
+        return np.log(x) if self.spacing == "log" else np.asarray(x, dtype=np.float64)
+
+    def to_dict(self) -> dict:
+        """JSON form."""
+        return {"name": self.name, "values": self.values.tolist(), "spacing": self.spacing}
+
+
+def _expected_channels(name: str, n_bands: int) -> int | None:
+    if name in SPECTRAL_QUANTITIES:
+        return n_bands
+    if name in RGB_QUANTITIES:
+        return 3
+    if name in SCALAR_QUANTITIES:
+        return 1
+    return None
+
+
+def _write_npz_deterministic(path: Path, arrays: dict[str, np.ndarray]) -> None:
+    """Write ``arrays`` as an uncompressed-header, deflated npz with fixed timestamps, atomically."""
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    try:
+        with zipfile.ZipFile(tmp, "w", compression=zipfile.ZIP_DEFLATED) as zf:
+            for key in arrays:
+                buf = io.BytesIO()
+                np.lib.format.write_array(buf, np.ascontiguousarray(arrays[key]), allow_pickle=False)
+                info = zipfile.ZipInfo(f"{key}.npy", date_time=_ZIP_DATE)
+                info.compress_type = zipfile.ZIP_DEFLATED
+                info.external_attr = 0o644 << 16
+                zf.writestr(info, buf.getvalue(), compresslevel=6)
+        os.replace(tmp, path)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+
+
+def write_json_atomic(path: Path, obj) -> None:
+    """Write ``obj`` as indented JSON to ``path`` through a temporary file and a rename."""
+    path = Path(path)
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    try:
+        tmp.write_text(json.dumps(obj, indent=1, sort_keys=False) + "\n")
+        os.replace(tmp, path)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+
+
+def manifest_path(path) -> Path:
+    """The JSON manifest beside a table file (``x.npz`` -> ``x.json``)."""
+    return Path(path).with_suffix(".json")
+
+
+@dataclass
+class Table:
+    """A lookup table over skin-parameter axes.
+
+    Attributes
+    ----------
+    axes : list of Axis
+        Grid axes in storage order.
+    bands : BandSet
+        Wavelength bands (nm) of the spectral quantities.
+    quantities : dict of str to ndarray
+        Name -> float32 array of shape ``grid_shape + (C,)``.
+    working_space, illuminant : str
+        RGB working space and illuminant of the ``rgb_*`` quantities.
+    manifest : dict
+        Spec, provenance and QA (JSON-ready); stored in the ``.npz`` and the ``.json``.
+    build_stats : dict
+        Run-dependent build statistics (wall time, CPUs); stored only in the ``.json`` manifest.
+    """
+
+    axes: list
+    bands: BandSet
+    quantities: dict
+    working_space: str = "ACEScg"
+    illuminant: str = "D65"
+    manifest: dict = field(default_factory=dict)
+    build_stats: dict = field(default_factory=dict)
+
+    def __post_init__(self):
+        self.axes = list(self.axes)
+        names = [a.name for a in self.axes]
+        if len(set(names)) != len(names):
+            raise TableError(f"table axes repeat a name: {names}")
+        shape = self.grid_shape
+        q = {}
+        for name, arr in self.quantities.items():
+            a = np.asarray(arr)
+            if a.shape[:-1] != shape or a.ndim != len(shape) + 1:
+                raise TableError(f"table quantity '{name}' has shape {a.shape}; expected {shape} + (channels,)")
+            want = _expected_channels(name, len(self.bands))
+            if want is not None and a.shape[-1] != want:
+                raise TableError(f"table quantity '{name}' has {a.shape[-1]} channels; expected {want}")
+            q[name] = np.ascontiguousarray(a, dtype=np.float32)
+        self.quantities = q
+        self._prepared = {}
+
+    # ------------------------------------------------------------------ shape
+    @property
+    def grid_shape(self) -> tuple:
+        """Number of grid values along each axis."""
+        return tuple(a.values.size for a in self.axes)
+
+    @property
+    def axis_names(self) -> list:
+        """Axis names in storage order."""
+        return [a.name for a in self.axes]
+
+    @property
+    def n_points(self) -> int:
+        """Number of grid points."""
+        return int(np.prod(self.grid_shape))
+
+    def grid_points(self) -> np.ndarray:
+        """All grid points, shape (n_points, D), in C order of the grid (last axis fastest)."""
+        mesh = np.meshgrid(*[a.values for a in self.axes], indexing="ij")
+        return np.stack([m.ravel() for m in mesh], axis=1)
+
+    # ------------------------------------------------------------------ lookup
+    def _check_names(self, names) -> list:
+        if names is None:
+            return list(self.quantities)
+        if isinstance(names, str):
+            names = [names]
+        names = list(names)
+        for n in names:
+            if n not in self.quantities:
+                near = difflib.get_close_matches(n, list(self.quantities), n=1)
+                hint = f"; did you mean '{near[0]}'?" if near else ""
+                raise TableError(f"table has no quantity '{n}'{hint} (it holds {sorted(self.quantities)})")
+        return names
+
+    def _kernel_arrays(self, names: tuple):
+        key = tuple(names)
+        if key not in self._prepared:
+            stacked = np.concatenate([self.quantities[n] for n in names], axis=-1)
+            self._prepared[key] = interpolate.prepare([a.coords for a in self.axes], stacked)
+        return self._prepared[key]
+
+    def lookup(self, points, names=None, out_of_range: str = "clamp", *, backend: str = "numba"):
+        """Interpolate quantities at parameter points (multilinear in each axis' coordinate).
+
+        Parameters
+        ----------
+        points : array_like of float64, shape (N, D)
+            Points in axis order (:attr:`axis_names`), in the axes' natural units (volume fractions etc.).
+        names : str or sequence of str, optional
+            Quantities to return (default all).
+        out_of_range : {"clamp", "error"}
+            ``clamp`` moves coordinates outside an axis onto its nearest end and counts such points;
+            ``error`` raises :class:`~matgen.errors.ParameterError` naming the first such point and axis.
+        backend : {"numba", "python"}
+            The compiled kernel or its pure-Python twin.
+
+        Returns
+        -------
+        values : dict of str to ndarray of float32, shape (N, C)
+        n_clamped : int
+            Number of points with at least one coordinate clamped.
+        """
+        if out_of_range not in ("clamp", "error"):
+            raise ParameterError(f"out_of_range is {out_of_range!r}; use 'clamp' or 'error'")
+        names = self._check_names(names)
+        pts = np.asarray(points, dtype=np.float64)
+        d = len(self.axes)
+        if pts.ndim == 1 and d == 1:
+            pts = pts[:, None]
+        if pts.ndim != 2 or pts.shape[1] != d:
+            raise ParameterError(f"lookup points have shape {pts.shape}; expected (N, {d}) in order {self.axis_names}")
+        finite = np.isfinite(pts)
+        if not finite.all():
+            row, col = np.argwhere(~finite)[0]
+            raise ParameterError(
+                f"lookup point {row}: {self.axes[col].name} is {float(pts[row, col])!r}; must be finite"
+            )
+        out_mask = np.zeros(pts.shape[0], dtype=bool)
+        q = np.empty_like(pts)
+        for i, ax in enumerate(self.axes):
+            lo, hi = ax.values[0], ax.values[-1]
+            col = pts[:, i]
+            bad = (col < lo) | (col > hi)
+            if bad.any() and out_of_range == "error":
+                row = int(np.argmax(bad))
+                raise ParameterError(
+                    f"lookup point {row}: {ax.name} = {float(col[row])!r} lies outside the table axis "
+                    f"[{float(lo)!r}, {float(hi)!r}] "
+                    f"({int(bad.sum())} point(s) out of range on this axis)"
+                )
+            out_mask |= bad
+            q[:, i] = ax.transform(np.clip(col, lo, hi))
+        coords, offsets, strides, flat = self._kernel_arrays(tuple(names))
+        out, _ = interpolate.run_prepared(coords, offsets, strides, flat, np.ascontiguousarray(q), backend=backend)
+        result = {}
+        start = 0
+        for n in names:
+            c = self.quantities[n].shape[-1]
+            result[n] = out[:, start : start + c]
+            start += c
+        return result, int(out_mask.sum())
+
+    # ------------------------------------------------------------------ files
+    def header(self) -> dict:
+        """The JSON header stored inside the ``.npz``."""
+        return {
+            "format": "matgen-table",
+            "format_version": TABLE_FORMAT_VERSION,
+            "axes": [{"name": a.name, "spacing": a.spacing, "size": int(a.values.size)} for a in self.axes],
+            "bands": self.bands.to_dict(),
+            "working_space": self.working_space,
+            "illuminant": self.illuminant,
+            "quantities": {n: int(v.shape[-1]) for n, v in self.quantities.items()},
+            "manifest": self.manifest,
+        }
+
+    def save(self, path, build_stats: dict | None = None) -> Path:
+        """Write ``path`` (``.npz``) and its manifest ``.json`` beside it, each atomically.
+
+        Parameters
+        ----------
+        path : str or Path
+            Table file; must end in ``.npz``.
+        build_stats : dict, optional
+            Run-dependent statistics recorded only in the ``.json`` manifest (default :attr:`build_stats`).
+
+        Returns
+        -------
+        Path
+            The table file written.
+        """
+        path = Path(path)
+        if path.suffix != ".npz":
+            raise TableError(f"table file {path} must end in .npz (the manifest goes beside it as .json)")
+        if not path.parent.exists():
+            raise TableError(f"cannot write table {path}: folder {path.parent} does not exist")
+        header = json.dumps(self.header(), sort_keys=True, separators=(",", ":")).encode("utf-8")
+        arrays = {"header.json": np.frombuffer(header, dtype=np.uint8)}
+        for i, a in enumerate(self.axes):
+            arrays[f"axis_{i}"] = a.values
+        for n in sorted(self.quantities):
+            arrays[f"q_{n}"] = self.quantities[n]
+        _write_npz_deterministic(path, arrays)
+        doc = {k: v for k, v in self.header().items() if k != "manifest"}
+        doc["npz_file"] = path.name
+        doc["npz_sha256"] = sha256_file(path)
+        doc["npz_bytes"] = path.stat().st_size
+        doc["manifest"] = self.manifest
+        doc["build_stats"] = self.build_stats if build_stats is None else build_stats
+        write_json_atomic(manifest_path(path), doc)
+        return path
+
+    @classmethod
+    def load(cls, path, verify: bool = True) -> Table:
+        """Read a table written by :meth:`save`.
+
+        Parameters
+        ----------
+        path : str or Path
+            The ``.npz`` table file.
+        verify : bool
+            If the ``.json`` manifest is beside it, check the recorded SHA-256 of the ``.npz``.
+
+        Raises
+        ------
+        TableError
+            Missing, truncated or corrupt file, checksum mismatch, or another format version.
+        """
+        path = Path(path)
+        if not path.is_file():
+            raise TableError(f"table file {path} does not exist")
+        side = manifest_path(path)
+        side_doc = None
+        if side.is_file():
+            try:
+                side_doc = json.loads(side.read_text())
+            except (OSError, ValueError) as exc:
+                raise TableError(f"table manifest {side} is not valid JSON ({exc})") from exc
+            if verify and side_doc.get("npz_sha256") not in (None, sha256_file(path)):
+                raise TableError(
+                    f"table file {path} does not match the SHA-256 recorded in {side.name}: "
+                    "the file is corrupt or was replaced without its manifest"
+                )
+        try:
+            with np.load(path, allow_pickle=False) as z:
+                header = json.loads(bytes(z["header.json"]).decode("utf-8"))
+                if header.get("format") != "matgen-table":
+                    raise TableError(f"{path} is not a matgen table file")
+                if header.get("format_version") != TABLE_FORMAT_VERSION:
+                    raise TableError(
+                        f"table {path} has format version {header.get('format_version')}; this matgen reads "
+                        f"version {TABLE_FORMAT_VERSION}; rebuild it with 'matgen table build'"
+                    )
+                axes = [
+                    Axis(a["name"], z[f"axis_{i}"], a["spacing"]) for i, a in enumerate(header["axes"])
+                ]
+                quantities = {n: z[f"q_{n}"] for n in header["quantities"]}
+        except TableError:
+            raise
+        except (OSError, ValueError, KeyError, zipfile.BadZipFile, EOFError) as exc:
+            raise TableError(f"table file {path} is truncated or corrupt ({type(exc).__name__}: {exc})") from exc
+        manifest = dict(header.get("manifest", {}))
+        build_stats = dict(side_doc.get("build_stats", {})) if side_doc is not None else {}
+        return cls(
+            axes=axes,
+            bands=BandSet.from_dict(header["bands"]),
+            quantities=quantities,
+            working_space=header["working_space"],
+            illuminant=header["illuminant"],
+            manifest=manifest,
+            build_stats=build_stats,
+        )
+
+
+def default_table_path() -> Path:
+    """Path of the shipped default table (``default.npz`` of the installed ``matgen.lut`` package)."""
+    return Path(str(resources.files("matgen.lut").joinpath("default.npz")))
+
+
+def load_default_table() -> Table:
+    """Load the shipped default table (built from ``lut/specs/default.toml``)."""
+    path = default_table_path()
+    if not path.is_file():
+        raise TableError(
+            f"the default table {path.name} is missing from the installed matgen.lut package; "
+            "build one with 'matgen table build' and pass it explicitly"
+        )
+    return Table.load(path)
