@@ -23,7 +23,6 @@ from __future__ import annotations
 import difflib
 import io
 import json
-import os
 import zipfile
 from dataclasses import dataclass, field
 from importlib import resources
@@ -31,7 +30,9 @@ from pathlib import Path
 
 import numpy as np
 
-from matgen.errors import ParameterError, TableError
+from matgen import limits
+from matgen.errors import MatgenError, ParameterError, TableError
+from matgen.fsutil import atomic_path, atomic_write_text
 from matgen.provenance import sha256_file
 from matgen.spectra.bands import BandSet
 from matgen.tables import interpolate
@@ -121,9 +122,8 @@ def _expected_channels(name: str, n_bands: int) -> int | None:
 
 
 def _write_npz_deterministic(path: Path, arrays: dict[str, np.ndarray]) -> None:
-    """Write ``arrays`` as an uncompressed-header, deflated npz with fixed timestamps, atomically."""
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    try:
+    """Write ``arrays`` as a deflated npz with fixed member order and timestamps, atomically."""
+    with atomic_path(path) as tmp:
         with zipfile.ZipFile(tmp, "w", compression=zipfile.ZIP_DEFLATED) as zf:
             for key in arrays:
                 buf = io.BytesIO()
@@ -132,22 +132,37 @@ def _write_npz_deterministic(path: Path, arrays: dict[str, np.ndarray]) -> None:
                 info.compress_type = zipfile.ZIP_DEFLATED
                 info.external_attr = 0o644 << 16
                 zf.writestr(info, buf.getvalue(), compresslevel=6)
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
 
 
 def write_json_atomic(path: Path, obj) -> None:
     """Write ``obj`` as indented JSON to ``path`` through a temporary file and a rename."""
-    path = Path(path)
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    try:
-        tmp.write_text(json.dumps(obj, indent=1, sort_keys=False) + "\n")
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
+    atomic_write_text(path, json.dumps(obj, indent=1) + "\n")
+
+
+def _npy_shape(zf: zipfile.ZipFile, member: str) -> tuple:
+    """Shape declared by the ``.npy`` header of a zip member, read without loading its data."""
+    with zf.open(member) as fh:
+        version = np.lib.format.read_magic(fh)
+        if version == (1, 0):
+            shape, _, _ = np.lib.format.read_array_header_1_0(fh)
+        else:
+            shape, _, _ = np.lib.format.read_array_header_2_0(fh)
+    return tuple(shape)
+
+
+def read_npz_checked(path: Path, what: str) -> dict:
+    """Read every array of a deterministic npz after checking its size and declared shapes against limits."""
+    limits.check_file_size(path, what)
+    out = {}
+    with zipfile.ZipFile(path) as zf:
+        for member in zf.namelist():
+            if not member.endswith(".npy"):
+                raise TableError(f"{what} {path} holds an unexpected member '{member}'")
+            shape = _npy_shape(zf, member)
+            limits.check_table_entries(max(1, int(np.prod(shape, dtype=np.int64))), f"{what} '{path}' array '{member}'")
+            with zf.open(member) as fh:
+                out[member[:-4]] = np.lib.format.read_array(fh, allow_pickle=False)
+    return out
 
 
 def manifest_path(path) -> Path:
@@ -386,22 +401,20 @@ class Table:
                     "the file is corrupt or was replaced without its manifest"
                 )
         try:
-            with np.load(path, allow_pickle=False) as z:
-                header = json.loads(bytes(z["header.json"]).decode("utf-8"))
-                if header.get("format") != "matgen-table":
-                    raise TableError(f"{path} is not a matgen table file")
-                if header.get("format_version") != TABLE_FORMAT_VERSION:
-                    raise TableError(
-                        f"table {path} has format version {header.get('format_version')}; this matgen reads "
-                        f"version {TABLE_FORMAT_VERSION}; rebuild it with 'matgen table build'"
-                    )
-                axes = [
-                    Axis(a["name"], z[f"axis_{i}"], a["spacing"]) for i, a in enumerate(header["axes"])
-                ]
-                quantities = {n: z[f"q_{n}"] for n in header["quantities"]}
-        except TableError:
+            z = read_npz_checked(path, "table")
+            header = json.loads(bytes(z["header.json"]).decode("utf-8"))
+            if header.get("format") != "matgen-table":
+                raise TableError(f"{path} is not a matgen table file")
+            if header.get("format_version") != TABLE_FORMAT_VERSION:
+                raise TableError(
+                    f"table {path} has format version {header.get('format_version')}; this matgen reads "
+                    f"version {TABLE_FORMAT_VERSION}; rebuild it with 'matgen table build'"
+                )
+            axes = [Axis(a["name"], z[f"axis_{i}"], a["spacing"]) for i, a in enumerate(header["axes"])]
+            quantities = {n: z[f"q_{n}"] for n in header["quantities"]}
+        except MatgenError:
             raise
-        except (OSError, ValueError, KeyError, zipfile.BadZipFile, EOFError) as exc:
+        except (OSError, ValueError, KeyError, TypeError, zipfile.BadZipFile, EOFError) as exc:
             raise TableError(f"table file {path} is truncated or corrupt ({type(exc).__name__}: {exc})") from exc
         manifest = dict(header.get("manifest", {}))
         build_stats = dict(side_doc.get("build_stats", {})) if side_doc is not None else {}
