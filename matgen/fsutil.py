@@ -160,6 +160,8 @@ def resolve_inside(base, relative, what: str, allow_outside: bool = False) -> Pa
     Absolute paths, ``..`` components and symbolic links that lead out of ``base`` raise
     :class:`PathError` naming ``what`` and the path, unless ``allow_outside`` is true.
     """
+    if "\x00" in str(relative):
+        raise PathError(f"{what} {str(relative)!r} contains a NUL byte; give a plain relative path")
     base_resolved = Path(base).resolve()
     candidate = Path(relative)
     full = (candidate if candidate.is_absolute() else base_resolved / candidate).resolve()
