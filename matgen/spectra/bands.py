@@ -108,6 +108,8 @@ class BandSet:
             raise BandError(f"band step is {step_nm} nm; must be > 0")
         if stop_nm < start_nm:
             raise BandError(f"band stop {stop_nm} nm is below start {start_nm} nm")
+        if not (stop_nm - start_nm) / step_nm < 100000:
+            raise BandError(f"({stop_nm} - {start_nm}) / {step_nm} nm is too many bands; at most 100000")
         n = int(np.floor((stop_nm - start_nm) / step_nm + 1e-9)) + 1
         if n > 100000:
             raise BandError(f"{n} bands requested; at most 100000")
