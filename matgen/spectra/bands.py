@@ -95,7 +95,9 @@ class BandSet:
         """Inverse of :meth:`to_dict`."""
         try:
             return cls(data["centre_nm"], data["lower_nm"], data["upper_nm"])
-        except (KeyError, TypeError) as exc:
+        except BandError:
+            raise
+        except (KeyError, TypeError, ValueError) as exc:
             raise BandError(f"band table needs centre_nm, lower_nm and upper_nm lists ({exc})") from exc
 
     @classmethod
