@@ -1,0 +1,454 @@
+"""The bake engine: plan a bake, check its inputs, and compute its outputs strip by strip.
+
+A :class:`BakePlan` ties a :class:`~matgen.bake.config.BakeConfig` to a lookup table: which table axis is
+fed by which map or constant, which UDIM tiles exist and their sizes, and which outputs (with channel names,
+units and file stems) the bake writes. :func:`check_inputs` reads every map once and refuses NaN/inf texels
+and (by option) values outside the encoding range, naming the file, tile, count and first texel.
+:func:`iter_strips` yields, for one tile, strips of rows with every output's texels (float32), so memory
+stays near one strip of every input and output plus the table. Writing the files is the job of
+:mod:`matgen.export`. Units: parameters in their fields' units; lengths in mm except the renderer-target
+maps, which are in scene units (``metres_per_scene_unit``).
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from matgen.bake.config import BakeConfig
+from matgen.bake.lookup import TexelLookup
+from matgen.bake.maps import MapReader, discover_tiles, map_info, scan_map, tile_path
+from matgen.bake.tiles import rows_per_strip
+from matgen.errors import BandError, ClampWarning, ConfigError, ImageError
+from matgen.fsutil import resolve_inside
+from matgen.limits import check_udim_tiles
+from matgen.spectra.bands import BandSet
+from matgen.units import MM_PER_M
+
+#: Units of the spectral and RGB quantities, for channel metadata and the descriptor.
+QUANTITY_UNITS = {
+    "albedo_multiple": "1",
+    "albedo_multiple_stderr": "1",
+    "albedo_single": "1",
+    "mean_free_path_mm": "mm",
+    "shape_distance_mm": "mm",
+    "anisotropy": "1",
+    "fit_residual": "1",
+}
+
+#: Visible range (nm) over which the scalar OpenPBR anisotropy averages the table's per-band anisotropy.
+VISIBLE_RANGE_NM = (400.0, 700.0)
+
+
+def spectral_channel_name(wavelength_nm: float, prefix: str = "T") -> str:
+    """Channel name of the spectral OpenEXR layout: ``T.550,000000nm`` (Fichet, Pacanowski & Wilkie 2021).
+
+    Parameters
+    ----------
+    wavelength_nm : float
+        Band centre in nm.
+    prefix : str
+        ``"T"`` for reflective (transmission-like) quantities, ``"S0"`` for emissive ones.
+
+    References
+    ----------
+    Fichet2021
+    """
+    number = f"{float(wavelength_nm):.6f}".replace(".", ",")
+    return f"{prefix}.{number}nm"
+
+
+@dataclass(frozen=True)
+class OutputSpec:
+    """One output texture of a bake.
+
+    Attributes
+    ----------
+    key : str
+        Unique output name, e.g. ``"spectral/albedo_multiple"``; it is also the file stem inside the folder.
+    kind : str
+        ``spectral``, ``rgb``, ``target``, ``pass`` or ``qa``.
+    quantity : str
+        What the texels hold (a table quantity, a target input, a pass name).
+    channels : tuple of str
+        Channel names in order.
+    unit : str
+        Unit of the texel values ("1" for dimensionless, "mm", "scene_unit").
+    description : str
+        One line for the descriptor.
+    """
+
+    key: str
+    kind: str
+    quantity: str
+    channels: tuple
+    unit: str
+    description: str
+    wavelengths_nm: tuple = ()
+
+    def file_name(self, tile: int | None) -> str:
+        """Relative file path of this output for UDIM ``tile`` (or a single texture)."""
+        return f"{self.key}.{int(tile)}.exr" if tile is not None else f"{self.key}.exr"
+
+
+@dataclass
+class TileInputs:
+    """The map files of one UDIM tile (or of a single-texture bake) and the output size in texels."""
+
+    tile: int | None
+    width: int
+    height: int
+    maps: dict  # parameter name -> MapInfo
+
+
+@dataclass
+class BakePlan:
+    """Everything a bake will read and write, checked before any texel is computed."""
+
+    config: BakeConfig
+    table: object
+    axis_sources: tuple  # ParameterSource per table axis, in axis order
+    tiles: list  # TileInputs
+    outputs: list  # OutputSpec
+    spectral_index: np.ndarray  # table band indices of the spectral stacks
+    spectral_bands: BandSet
+    pass_weights: dict  # pass name -> (B,) weights over the table's bands
+    visible_index: np.ndarray
+    request: dict = field(default_factory=dict)
+    single_tile: int | None = None  # the one UDIM tile of a farm bake (``--tile``), else None
+
+    @property
+    def tile_numbers(self) -> list:
+        """UDIM numbers of the tiles (``[None]`` for a single texture)."""
+        return [t.tile for t in self.tiles]
+
+    def tile_inputs(self, tile: int | None) -> TileInputs:
+        """The inputs of UDIM ``tile``; :class:`ConfigError` if the set has no such tile."""
+        for t in self.tiles:
+            if t.tile == tile:
+                return t
+        have = ", ".join(str(t.tile) for t in self.tiles)
+        raise ConfigError(f"UDIM tile {tile} is not part of this bake; its tiles are {have}")
+
+    @property
+    def texels(self) -> int:
+        """Total texels over all tiles."""
+        return sum(t.width * t.height for t in self.tiles)
+
+
+def _spectral_subset(table_bands: BandSet, spec: str):
+    wanted = BandSet.parse(spec)
+    idx = []
+    for c in wanted.centre_nm:
+        hit = np.nonzero(np.abs(table_bands.centre_nm - c) < 1e-6)[0]
+        if hit.size == 0:
+            raise BandError(f"outputs.spectral_bands lists {c:g} nm, which is no band centre of the table "
+                            f"(table bands {table_bands.centre_nm[0]:g}-{table_bands.centre_nm[-1]:g} nm)")
+        idx.append(int(hit[0]))
+    idx = np.array(idx, dtype=np.int64)
+    return idx, table_bands.subset(idx)
+
+
+def _resolve_passes(config: BakeConfig, bands: BandSet, allow_outside: bool) -> dict:
+    if not config.outputs.passes:
+        return {}
+    from matgen.color import pass_weights  # colour is rank-lower than bake; imported only when passes are asked
+
+    out = {}
+    for entry in config.outputs.passes:
+        if entry.lower().endswith(".csv"):
+            path = resolve_inside(config.base_dir, entry, "pass response file", allow_outside=allow_outside)
+            name = path.stem
+            w = pass_weights(str(path), bands)
+        else:
+            name, w = entry, pass_weights(entry, bands)
+        out[name] = np.asarray(w, dtype=np.float64)
+    return out
+
+
+def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outside: bool = False) -> BakePlan:
+    """Check a config against a table and the files on disk, and list every output.
+
+    Parameters
+    ----------
+    config : BakeConfig
+        The material config.
+    table : matgen.tables.store.Table
+        The lookup table (its axes are the parameters the maps must feed).
+    tile : int, optional
+        Bake only this UDIM tile (farm use); None bakes every tile.
+    allow_outside : bool
+        Allow pass-response paths outside the config's folder.
+
+    Returns
+    -------
+    BakePlan
+
+    Raises
+    ------
+    ConfigError, ImageError, BandError
+        Naming the parameter, file, tile or band at fault.
+    """
+    axis_names = [a.name for a in table.axes]
+    given = [p.name for p in config.parameters]
+    extra = [n for n in given if n not in axis_names]
+    if extra:
+        raise ConfigError(f"parameters {extra} are not axes of the table (its axes: {axis_names}); a table only "
+                          "varies along its axes")
+    missing = [n for n in axis_names if n not in given]
+    if missing:
+        raise ConfigError(f"the config gives no map or value for table axes {missing}; add "
+                          f"[parameters.{missing[0]}] with map = ... or value = ...")
+    sources = tuple(config.parameter(n) for n in axis_names)
+    for ax, src in zip(table.axes, sources, strict=True):
+        if src.value is not None and not (ax.values[0] <= src.value <= ax.values[-1]):
+            raise ConfigError(f"parameters.{ax.name}.value = {src.value} lies outside the table axis "
+                              f"[{ax.values[0]:g}, {ax.values[-1]:g}]")
+    for what, want, have in (("working_space", config.working_space, table.working_space),
+                             ("illuminant", config.illuminant, table.illuminant)):
+        if want is not None and want != have:
+            raise ConfigError(f"scene.{what} is '{want}' but the table's RGB quantities are in '{have}'; use a "
+                              f"table built for '{want}' or set scene.{what} = '{have}'")
+    # tiles
+    udim = [p for p in config.map_parameters if p.is_udim]
+    if udim:
+        if config.udim_tiles:
+            tiles = list(config.udim_tiles)
+        else:
+            tiles = discover_tiles(udim[0].map_pattern)
+            if not tiles:
+                raise ImageError(f"no UDIM tiles found for {udim[0].map_pattern} (map of parameter "
+                                 f"'{udim[0].name}')")
+        check_udim_tiles(len(tiles), str(udim[0].map_pattern))
+        if tile is not None:
+            if tile not in tiles:
+                raise ConfigError(f"UDIM tile {tile} is not in the set {tiles} of {udim[0].map_pattern}")
+            tiles = [tile]
+    else:
+        if tile is not None:
+            raise ConfigError(f"--tile {tile} given, but no map of the config is a UDIM set")
+        tiles = [None]
+    tile_inputs = []
+    for t in tiles:
+        infos = {}
+        for p in config.map_parameters:
+            path = tile_path(p.map_pattern, t)
+            if p.is_udim and not path.is_file():
+                raise ImageError(f"UDIM tile {t} of the map of parameter '{p.name}' is missing: {path} does not "
+                                 "exist (every UDIM map must have every tile of the set)")
+            infos[p.name] = map_info(path, t if p.is_udim else None, channel=p.channel,
+                                     what=f"map of parameter '{p.name}'")
+        first = next(iter(infos.values()))
+        for name, info in infos.items():
+            if (info.width, info.height) != (first.width, first.height) and config.resample == "error":
+                raise ImageError(
+                    f"map of parameter '{name}' {info.path} is {info.width} x {info.height} texels but "
+                    f"{first.path} is {first.width} x {first.height}; make them equal or set "
+                    "input.resample = \"bilinear\"")
+        tile_inputs.append(TileInputs(t, first.width, first.height, infos))
+    # bands and outputs
+    bands = table.bands
+    spectral_index, spectral_bands = _spectral_subset(bands, config.outputs.spectral_bands)
+    vis = np.nonzero((bands.centre_nm >= VISIBLE_RANGE_NM[0]) & (bands.centre_nm <= VISIBLE_RANGE_NM[1]))[0]
+    passes = _resolve_passes(config, bands, allow_outside)
+    outputs, request, full = [], {}, set()
+    names = tuple(spectral_channel_name(c) for c in spectral_bands.centre_nm)
+    for q in config.outputs.spectral:
+        request[q] = spectral_index
+        outputs.append(OutputSpec(f"spectral/{q}", "spectral", q, names, QUANTITY_UNITS[q],
+                                  f"{q} per band ({QUANTITY_UNITS[q]})", tuple(spectral_bands.centre_nm.tolist())))
+    for q in config.outputs.rgb:
+        request[f"rgb_{q}"] = None
+        outputs.append(OutputSpec(f"rgb/{q}", "rgb", f"rgb_{q}", ("R", "G", "B"), QUANTITY_UNITS[q],
+                                  f"{q} per channel of {table.working_space} ({QUANTITY_UNITS[q]})"))
+    if "openpbr" in config.outputs.targets:
+        request["rgb_albedo_multiple"] = None
+        request["rgb_mean_free_path_mm"] = None
+        outputs += [
+            OutputSpec("openpbr/subsurface_color", "target", "subsurface_color", ("R", "G", "B"), "1",
+                       f"OpenPBR subsurface_color: multiple-scattering albedo in {table.working_space}"),
+            OutputSpec("openpbr/subsurface_radius", "target", "subsurface_radius", ("Y",), "scene_unit",
+                       "OpenPBR subsurface_radius: largest channel mean free path, scene units"),
+            OutputSpec("openpbr/subsurface_radius_scale", "target", "subsurface_radius_scale", ("R", "G", "B"),
+                       "1", "OpenPBR subsurface_radius_scale: per-channel mean free path / subsurface_radius"),
+        ]
+        if "anisotropy" in table.quantities and vis.size:
+            request.setdefault("anisotropy", None)
+            full.add("anisotropy")
+            outputs.append(OutputSpec("openpbr/subsurface_scatter_anisotropy", "target",
+                                      "subsurface_scatter_anisotropy", ("Y",), "1",
+                                      f"OpenPBR subsurface_scatter_anisotropy: mean g over {VISIBLE_RANGE_NM[0]:g}-"
+                                      f"{VISIBLE_RANGE_NM[1]:g} nm bands"))
+    for name in passes:
+        request.setdefault("albedo_multiple", None)
+        full.add("albedo_multiple")
+        outputs.append(OutputSpec(f"passes/{name}", "pass", name, ("Y",), "1",
+                                  f"camera pass '{name}': response-weighted multiple-scattering albedo"))
+    if config.outputs.qa:
+        chans = ["table_clamped", "encoding_clamped"]
+        if "rgb_fit_residual" in table.quantities:
+            request["rgb_fit_residual"] = None
+            chans.append("fit_residual")
+        outputs.append(OutputSpec("qa/qa", "qa", "qa", tuple(chans), "1",
+                                  "QA: 1 where a parameter was clamped to the table / encoding range; "
+                                  "largest RGB fit residual"))
+    for q in full:  # passes and the scalar anisotropy need every band of the table
+        request[q] = None
+    return BakePlan(config, table, sources, tile_inputs, outputs, spectral_index, spectral_bands, passes, vis,
+                    request, single_tile=tile)
+
+
+@dataclass
+class InputReport:
+    """What :func:`check_inputs` found: per (parameter, tile) texels clamped into the encoding range."""
+
+    clamped: dict = field(default_factory=dict)
+
+    @property
+    def total_clamped(self) -> int:
+        """Texels clamped into the encoding range, over all maps and tiles."""
+        return int(sum(self.clamped.values()))
+
+
+def _readers(plan: BakePlan, ti: TileInputs) -> dict:
+    return {name: MapReader(info, plan.config.parameter(name).channel, (ti.width, ti.height),
+                            what=f"map of parameter '{name}'")
+            for name, info in ti.maps.items()}
+
+
+def check_inputs(plan: BakePlan) -> InputReport:
+    """Read every map of the plan once; refuse non-finite texels and (by option) out-of-range values.
+
+    Raises
+    ------
+    ImageError
+        Naming the file, tile, number of bad texels and the first one (x, y).
+    """
+    report = InputReport()
+    for ti in plan.tiles:
+        for name, reader in _readers(plan, ti).items():
+            with reader:
+                stats = scan_map(reader)
+            where = f"{reader.info.path}" + (f" (UDIM tile {ti.tile})" if ti.tile is not None else "")
+            if stats.nonfinite:
+                x, y = stats.first_nonfinite
+                raise ImageError(f"map of parameter '{name}' {where}: {stats.nonfinite} texel(s) are NaN or "
+                                 f"infinite, the first at texel (x={x}, y={y}); fix the map")
+            if stats.out_of_range:
+                x, y = stats.first_out_of_range
+                msg = (f"map of parameter '{name}' {where}: {stats.out_of_range} texel(s) lie outside the encoding "
+                       f"range [0, 1] (values {stats.minimum:g}..{stats.maximum:g}), the first at texel "
+                       f"(x={x}, y={y})")
+                if plan.config.out_of_range == "error":
+                    raise ImageError(msg + "; fix the map or set input.out_of_range = \"clamp\"")
+                warnings.warn(msg + "; clamped", ClampWarning, stacklevel=2)
+                report.clamped[(name, ti.tile)] = stats.out_of_range
+    return report
+
+
+@dataclass
+class Strip:
+    """Rows ``y0 .. y1-1`` of one tile: every output's texels, float32 (rows, width, channels)."""
+
+    tile: int | None
+    y0: int
+    y1: int
+    values: dict
+    table_clamped: int
+    encoding_clamped: int
+
+
+def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: np.ndarray, shape) -> tuple:
+    vals, clamped = lookup(params)
+    h, w = shape
+    out = {}
+    mpsu_mm = plan.config.metres_per_scene_unit * MM_PER_M
+    for spec in plan.outputs:
+        if spec.kind == "spectral":
+            v = vals[spec.quantity]
+            if plan.request[spec.quantity] is None:
+                v = v[:, plan.spectral_index]
+        elif spec.kind == "rgb":
+            v = vals[spec.quantity]
+        elif spec.kind == "target":
+            if spec.quantity == "subsurface_color":
+                v = vals["rgb_albedo_multiple"]
+            elif spec.quantity in ("subsurface_radius", "subsurface_radius_scale"):
+                mfp = vals["rgb_mean_free_path_mm"].astype(np.float64) / mpsu_mm
+                radius = mfp.max(axis=1, keepdims=True)
+                if spec.quantity == "subsurface_radius":
+                    v = radius
+                else:
+                    v = np.divide(mfp, radius, out=np.ones_like(mfp), where=radius > 0)
+            else:  # subsurface_scatter_anisotropy
+                v = vals["anisotropy"][:, plan.visible_index].mean(axis=1, keepdims=True)
+        elif spec.kind == "pass":
+            v = (vals["albedo_multiple"].astype(np.float64) @ plan.pass_weights[spec.quantity])[:, None]
+        else:  # qa
+            cols = [clamped.astype(np.float32), enc_flag.astype(np.float32)]
+            if "fit_residual" in spec.channels:
+                cols.append(vals["rgb_fit_residual"].max(axis=1))
+            v = np.stack(cols, axis=1)
+        out[spec.key] = np.ascontiguousarray(np.asarray(v, dtype=np.float32).reshape(h, w, -1))
+    return out, int(clamped.sum())
+
+
+def iter_strips(plan: BakePlan, tile: int | None, *, lookup: TexelLookup | None = None,
+                memory_budget_bytes: int = 256 << 20, rows: int | None = None):
+    """Compute one tile's outputs strip by strip.
+
+    Parameters
+    ----------
+    plan : BakePlan
+    tile : int or None
+        UDIM tile (None for a single texture).
+    lookup : TexelLookup, optional
+        Prepared lookup (made from ``plan.request`` when omitted).
+    memory_budget_bytes : int
+        Bytes one strip of all outputs may take (float32); sets the strip height.
+    rows : int, optional
+        Strip height in rows, overriding the budget.
+
+    Yields
+    ------
+    Strip
+    """
+    ti = plan.tile_inputs(tile)
+    lookup = lookup or TexelLookup(plan.table, plan.request)
+    n_out = sum(len(s.channels) for s in plan.outputs) + lookup.channels + len(plan.axis_sources)
+    step = rows or rows_per_strip(ti.width, ti.height, n_out, memory_budget_bytes)
+    readers = _readers(plan, ti)
+    for r in readers.values():
+        r.__enter__()
+    try:
+        for y0 in range(0, ti.height, step):
+            y1 = min(ti.height, y0 + step)
+            n = (y1 - y0) * ti.width
+            params = np.empty((n, len(plan.axis_sources)), dtype=np.float64)
+            enc = np.zeros(n, dtype=bool)
+            for i, src in enumerate(plan.axis_sources):
+                if src.value is not None:
+                    params[:, i] = src.value
+                    continue
+                raw = readers[src.name].read_rows(y0, y1).reshape(-1)
+                if not np.all(np.isfinite(raw)):
+                    bad = np.argwhere(~np.isfinite(raw))[0][0]
+                    raise ImageError(f"map of parameter '{src.name}' {readers[src.name].info.path}: texel "
+                                     f"(x={bad % ti.width}, y={y0 + bad // ti.width}) is not finite")
+                outside = (raw < 0.0) | (raw > 1.0)
+                if outside.any():
+                    if plan.config.out_of_range == "error":
+                        bad = int(np.argmax(outside))
+                        raise ImageError(f"map of parameter '{src.name}' {readers[src.name].info.path}: texel "
+                                         f"(x={bad % ti.width}, y={y0 + bad // ti.width}) = {raw[bad]:g} lies "
+                                         "outside the encoding range [0, 1]")
+                    enc |= outside
+                    raw = np.clip(raw, 0.0, 1.0)
+                params[:, i] = src.decode(raw)
+            values, n_clamped = _compute(plan, lookup, params, enc, (y1 - y0, ti.width))
+            yield Strip(tile, y0, y1, values, n_clamped, int(enc.sum()))
+    finally:
+        for r in readers.values():
+            r.close()

@@ -1,0 +1,298 @@
+"""A whole bake into an output folder: lock, check, compute strip by strip, write, checksum, commit.
+
+:func:`bake` is the Python entry point behind ``matgen bake``. It holds a lock on the output folder (a
+second bake into the same folder refuses, naming the lock; a one-tile farm bake locks only its tile), reads
+and checks every map before it computes anything, writes every texture into a hidden staging folder inside
+the output folder, validates the MaterialX document and the descriptor, and only then moves each file into
+place with ``os.replace``, the descriptor last. A bake that fails or is killed part-way therefore leaves no
+partial output file; the staging folder of a killed bake is removed by the next bake into that folder.
+Units: lengths in mm; renderer-target lengths in scene units.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import time
+import uuid
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from matgen import __version__
+from matgen.bake.config import BakeConfig
+from matgen.bake.lookup import TexelLookup, set_threads
+from matgen.bake.run import BakePlan, check_inputs, iter_strips, plan_bake
+from matgen.errors import PathError
+from matgen.export.descriptor import DESCRIPTOR_FORMAT, DESCRIPTOR_VERSION, descriptor_json, texture_entry
+from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture
+from matgen.fsutil import FolderLock
+from matgen.provenance import hash_json, sha256_file
+from matgen.tables.store import Table, default_table_path, load_default_table
+
+#: Prefix of the hidden staging folders inside an output folder.
+STAGING_PREFIX = ".matgen-staging-"
+
+
+def load_table(config: BakeConfig):
+    """The table a config names: the shipped default table, or a table file."""
+    if config.table_path == "default":
+        return load_default_table()
+    return Table.load(config.table_path)
+
+
+def _table_identity(config: BakeConfig, table) -> tuple:
+    if config.table_path == "default":
+        path = default_table_path()
+    else:
+        path = Path(config.table_path)
+    if path.is_file():
+        return path.name, sha256_file(path)
+    return "in-memory", hash_json({"axes": [a.to_dict() for a in table.axes], "manifest": table.manifest})
+
+
+def _spectra_provenance(table) -> object:
+    man = table.manifest or {}
+    for key in ("spectra", "provenance", "spectra_provenance"):
+        if key in man:
+            return man[key]
+    return "not recorded in the table manifest"
+
+
+@dataclass
+class BakeResult:
+    """What :func:`bake` did: output folder, descriptor, files written (relative), counts and timing."""
+
+    out_dir: Path
+    descriptor: Path | None
+    files: list = field(default_factory=list)
+    texels: int = 0
+    table_clamped: int = 0
+    encoding_clamped: int = 0
+    seconds: float = 0.0
+    dry_run: bool = False
+
+
+def check_writable(out_dir: Path) -> None:
+    """Refuse an output folder that exists as a file or cannot be created or written."""
+    if out_dir.exists() and not out_dir.is_dir():
+        raise PathError(f"output folder {out_dir} exists and is not a folder")
+    try:
+        out_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise PathError(f"cannot create output folder {out_dir}: {exc.strerror or exc}") from exc
+    if not os.access(out_dir, os.W_OK | os.X_OK):
+        raise PathError(f"output folder {out_dir} is not writable")
+
+
+def _process_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def _remove_stale_staging(out_dir: Path) -> None:
+    for entry in out_dir.glob(STAGING_PREFIX + "*"):
+        try:
+            pid = int(entry.name[len(STAGING_PREFIX):].split("-")[0])
+        except ValueError:
+            continue
+        if not _process_alive(pid) or pid == os.getpid():
+            shutil.rmtree(entry, ignore_errors=True)
+
+
+def planned_files(plan: BakePlan, name: str) -> list:
+    """Relative paths of every file a bake of ``plan`` writes, descriptor last."""
+    files = [spec.file_name(t) for t in plan.tile_numbers for spec in plan.outputs]
+    if plan.config.outputs.materialx and plan.single_tile is None:
+        files.append("material.mtlx")
+    files.append(_descriptor_name(plan))
+    return files
+
+
+def _descriptor_name(plan: BakePlan) -> str:
+    return "material.json" if plan.single_tile is None else f"material.{plan.single_tile}.json"
+
+
+def _openpbr_inputs(plan: BakePlan, spec_ior: float) -> dict:
+    udim = plan.tile_numbers[0] is not None
+    inputs = {"subsurface_weight": {"value": 1.0, "type": "float"}}
+    for spec in plan.outputs:
+        if spec.kind == "target":
+            path = f"{spec.key}.<UDIM>.exr" if udim else f"{spec.key}.exr"
+            inputs[spec.quantity] = {"texture": path, "unit": spec.unit,
+                                     "type": "color3" if len(spec.channels) == 3 else "float"}
+    if spec_ior is not None:  # the table's boundary index (mean over its grid)
+        inputs["specular_ior"] = {"value": spec_ior, "type": "float", "unit": "1"}
+    return inputs
+
+
+def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, tile: int | None = None,
+         dry_run: bool = False, allow_outside: bool = False, progress=None,
+         memory_budget_bytes: int = 256 << 20, rows: int | None = None) -> BakeResult:
+    """Bake a material config into an output folder.
+
+    Parameters
+    ----------
+    config : BakeConfig
+        The material config (:func:`matgen.bake.config.load_config`).
+    out_dir : str or Path
+        Output folder (created if needed).
+    table : matgen.tables.store.Table, optional
+        Table to use instead of the one the config names.
+    jobs : int, optional
+        Threads of the per-texel lookup (default: all cores).
+    tile : int, optional
+        Bake only this UDIM tile (writes ``material.<tile>.json``); tiles are independent and deterministic.
+    dry_run : bool
+        Check the config and every map, list the files, write nothing.
+    allow_outside : bool
+        Allow pass-response paths outside the config's folder.
+    progress : callable, optional
+        Called as ``progress(texels_done, texels_total)`` after each strip.
+    memory_budget_bytes : int
+        Bytes one strip of all channels may take (float32); bounds memory.
+    rows : int, optional
+        Fixed strip height in rows (overrides the budget).
+
+    Returns
+    -------
+    BakeResult
+    """
+    t_start = time.perf_counter()
+    out_dir = Path(out_dir)
+    table = table if table is not None else load_table(config)
+    plan = plan_bake(config, table, tile=tile, allow_outside=allow_outside)
+    files = planned_files(plan, config.name)
+    if dry_run:
+        check_inputs(plan)
+        return BakeResult(out_dir, None, files, plan.texels, dry_run=True,
+                          seconds=time.perf_counter() - t_start)
+    check_writable(out_dir)
+    lock_name = ".matgen-bake.lock" if tile is None else f".matgen-bake.{int(tile)}.lock"
+    with FolderLock(out_dir, name=lock_name, purpose="bake"):
+        _remove_stale_staging(out_dir)
+        report = check_inputs(plan)
+        set_threads(jobs)
+        staging = out_dir / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
+        staging.mkdir()
+        try:
+            result = _bake_into(plan, table, staging, progress, memory_budget_bytes, rows, report)
+            _commit(staging, out_dir, result.files)
+        finally:
+            shutil.rmtree(staging, ignore_errors=True)
+    result.out_dir = out_dir
+    result.descriptor = out_dir / result.files[-1]
+    result.seconds = time.perf_counter() - t_start
+    return result
+
+
+def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, report) -> BakeResult:
+    cfg = plan.config
+    opts = cfg.outputs
+    lookup = TexelLookup(table, plan.request)
+    total = plan.texels
+    done = 0
+    entries, written = [], []
+    n_table, n_enc = 0, report.total_clamped
+    base_attrs = {"matgen:version": __version__}
+    for ti in plan.tiles:
+        writers = {}
+        try:
+            for spec in plan.outputs:
+                rel = spec.file_name(ti.tile)
+                (staging / rel).parent.mkdir(parents=True, exist_ok=True)
+                attrs = dict(base_attrs, **{"matgen:quantity": spec.quantity, "matgen:unit": spec.unit,
+                                            "matgen:kind": spec.kind})
+                if spec.kind == "spectral":
+                    attrs["spectralLayoutVersion"] = SPECTRAL_LAYOUT_VERSION
+                if spec.kind in ("rgb", "target") and len(spec.channels) == 3:
+                    attrs["matgen:working_space"] = table.working_space
+                target = staging / (rel + ".scan.exr") if opts.texture else staging / rel
+                writers[spec.key] = StreamingExr(target, ti.width, ti.height, spec.channels,
+                                                 pixel_type=opts.pixel_type, compression=opts.compression,
+                                                 attributes=attrs)
+            for strip in iter_strips(plan, ti.tile, lookup=lookup, memory_budget_bytes=budget, rows=rows):
+                for key, w in writers.items():
+                    w.write_rows(strip.y0, strip.values[key])
+                n_table += strip.table_clamped
+                done += (strip.y1 - strip.y0) * ti.width
+                if progress is not None:
+                    progress(done, total)
+            for w in writers.values():
+                w.close()
+        except BaseException:
+            for w in writers.values():
+                w.abort()
+            raise
+        for spec in plan.outputs:
+            rel = spec.file_name(ti.tile)
+            if opts.texture:
+                make_texture(staging / (rel + ".scan.exr"), staging / rel)
+                (staging / (rel + ".scan.exr")).unlink()
+            entries.append(texture_entry(spec, rel, staging / rel, ti.tile, ti.width, ti.height, opts.pixel_type,
+                                         opts.texture))
+            written.append(rel)
+    ior = float(np.mean(table.quantities["ior"])) if "ior" in table.quantities else None
+    targets = {}
+    if "openpbr" in opts.targets:
+        targets["openpbr"] = {"shading_model": "OpenPBR Surface 1.1 (MaterialX open_pbr_surface)",
+                              "inputs": _openpbr_inputs(plan, ior)}
+    documents = {}
+    if "material.mtlx" in planned_files(plan, cfg.name):
+        from matgen.export.materialx import document_text, openpbr_document
+
+        inputs = targets.get("openpbr", {}).get("inputs", {"subsurface_weight": {"value": 1.0}})
+        doc = openpbr_document(cfg.name, {k: {kk: vv for kk, vv in v.items() if kk in ("texture", "value")}
+                                          for k, v in inputs.items()}, table.working_space)
+        (staging / "material.mtlx").write_text(document_text(doc))
+        documents["materialx"] = {"path": "material.mtlx", "sha256": sha256_file(staging / "material.mtlx")}
+        written.append("material.mtlx")
+    table_name, table_hash = _table_identity(cfg, table)
+    source = {k: v for k, v in cfg.source.items()}
+    desc = {
+        "format": DESCRIPTOR_FORMAT,
+        "format_version": DESCRIPTOR_VERSION,
+        "name": cfg.name,
+        "units": {"wavelength": "nm", "length": "mm", "scene_length": "scene_unit",
+                  "metres_per_scene_unit": cfg.metres_per_scene_unit},
+        "bands": {"table": table.bands.to_dict(), "spectral_stacks": plan.spectral_bands.to_dict()},
+        "working_space": table.working_space,
+        "illuminant": table.illuminant,
+        "udim_tiles": None if plan.tile_numbers[0] is None else [int(t) for t in plan.tile_numbers],
+        "textures": entries,
+        "passes": {k: {"weights": v.tolist()} for k, v in plan.pass_weights.items()},
+        "targets": targets,
+        "documents": documents,
+        "provenance": {
+            "matgen_version": __version__,
+            "table": table_name,
+            "table_sha256": table_hash,
+            "table_manifest": {k: v for k, v in (table.manifest or {}).items() if k in ("spec", "spec_hash",
+                                                                                        "name", "hash")},
+            "spectra": _spectra_provenance(table),
+            "config": source,
+            "config_sha256": hash_json(source),
+        },
+        "statistics": {"texels": int(plan.texels), "table_clamped_texels": int(n_table),
+                       "encoding_clamped_texels": int(n_enc)},
+    }
+    name = _descriptor_name(plan)
+    (staging / name).write_text(descriptor_json(desc))
+    written.append(name)
+    return BakeResult(staging, None, written, plan.texels, n_table, n_enc)
+
+
+def _commit(staging: Path, out_dir: Path, files: list) -> None:
+    """Move every staged file into place (descriptor last); each move is atomic."""
+    for rel in files:
+        src, dst = staging / rel, out_dir / rel
+        if not src.is_file():
+            raise PathError(f"staged output {rel} is missing; nothing was committed after it")
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        os.replace(src, dst)

@@ -1,0 +1,105 @@
+"""MaterialX document: an OpenPBR surface whose subsurface inputs read the baked RGB maps.
+
+Written with the ``materialx`` package (1.39, which ships the ``open_pbr_surface`` node definition) and
+checked with its own ``Document.validate()`` against the standard data libraries before it is written, so a
+misspelt input or a wrong type is refused. Image nodes use MaterialX's ``<UDIM>`` token for UDIM sets.
+Inputs (OpenPBR 1.1 names): ``subsurface_weight`` (float), ``subsurface_color`` (color3, an albedo in the
+working space), ``subsurface_radius`` (float, scene units), ``subsurface_radius_scale`` (color3,
+dimensionless), ``subsurface_scatter_anisotropy`` (float), ``specular_ior`` (float).
+"""
+
+from __future__ import annotations
+
+from matgen._optional import require
+from matgen.errors import DataError
+
+#: matgen working-space names -> MaterialX colour-space names.
+MATERIALX_COLORSPACES = {"ACEScg": "acescg", "Rec.709": "lin_rec709", "sRGB linear": "lin_rec709",
+                         "ITU-R BT.709": "lin_rec709"}
+
+#: OpenPBR input -> MaterialX type.
+OPENPBR_INPUT_TYPES = {
+    "subsurface_weight": "float",
+    "subsurface_color": "color3",
+    "subsurface_radius": "float",
+    "subsurface_radius_scale": "color3",
+    "subsurface_scatter_anisotropy": "float",
+    "specular_ior": "float",
+}
+
+
+def _libraries(mx):
+    lib = mx.createDocument()
+    mx.loadLibraries(mx.getDefaultDataLibraryFolders(), mx.getDefaultDataSearchPath(), lib)
+    return lib
+
+
+def openpbr_document(name: str, inputs: dict, working_space: str):
+    """Build and validate a MaterialX document with one OpenPBR material.
+
+    Parameters
+    ----------
+    name : str
+        Material name (letters, digits, underscores).
+    inputs : dict
+        OpenPBR input name -> ``{"texture": relative path (may hold <UDIM>)}`` or ``{"value": number}``.
+    working_space : str
+        Working space of the colour maps (a key of :data:`MATERIALX_COLORSPACES`).
+
+    Returns
+    -------
+    MaterialX.Document
+
+    Raises
+    ------
+    DataError
+        If the working space has no MaterialX name or the document fails MaterialX validation.
+    """
+    mx = require("MaterialX", "write MaterialX documents")
+    if working_space not in MATERIALX_COLORSPACES:
+        raise DataError(f"working space '{working_space}' has no MaterialX colour-space name; known: "
+                        f"{sorted(MATERIALX_COLORSPACES)}")
+    cs = MATERIALX_COLORSPACES[working_space]
+    safe = "".join(ch if ch.isalnum() or ch == "_" else "_" for ch in name) or "material"
+    if safe[0].isdigit():
+        safe = "m_" + safe
+    doc = mx.createDocument()
+    doc.setDataLibrary(_libraries(mx))
+    doc.setColorSpace(cs)
+    shader = doc.addNode("open_pbr_surface", f"{safe}_shader", "surfaceshader")
+    for key, entry in inputs.items():
+        if key not in OPENPBR_INPUT_TYPES:
+            raise DataError(f"'{key}' is not an OpenPBR input matgen writes; known: {sorted(OPENPBR_INPUT_TYPES)}")
+        typ = OPENPBR_INPUT_TYPES[key]
+        inp = shader.addInput(key, typ)
+        if "texture" in entry:
+            img = doc.addNode("image", f"{safe}_{key}_image", typ)
+            f = img.addInput("file", "filename")
+            f.setValueString(entry["texture"])
+            if key == "subsurface_color":
+                f.setColorSpace(cs)
+            inp.setNodeName(img.getName())
+        else:
+            inp.setValue(float(entry["value"]))
+    doc.addMaterialNode(safe, shader)
+    ok, message = doc.validate()
+    if not ok:
+        raise DataError(f"the MaterialX document for '{name}' fails MaterialX validation: {message.strip()}")
+    return doc
+
+
+def document_text(doc) -> str:
+    """XML text of a MaterialX document (without the data libraries)."""
+    mx = require("MaterialX", "write MaterialX documents")
+    opts = mx.XmlWriteOptions()
+    opts.writeXIncludeEnable = False
+    return mx.writeToXmlString(doc, opts)
+
+
+def validate_file(path) -> tuple:
+    """Read a ``.mtlx`` file, attach the standard libraries and validate: returns (ok, message)."""
+    mx = require("MaterialX", "validate MaterialX documents")
+    doc = mx.createDocument()
+    mx.readFromXmlFile(doc, str(path))
+    doc.setDataLibrary(_libraries(mx))
+    return doc.validate()
