@@ -1,0 +1,471 @@
+"""Effective homogeneous medium: from multiple-scattering albedo A to single-scattering albedo and mean free path.
+
+Units: lengths in mm; albedos dimensionless. A is the total diffuse reflectance of a semi-infinite medium
+at normal incidence, as a fraction of the incident power (the specular Fresnel reflection excluded).
+
+Methods (``method=`` of :func:`albedo_single` and :func:`albedo_multiple`):
+
+- ``"ChiangKutzBurley2016"``: the closed-form inversion alpha = 1 - s^2 of ``Chiang2016``, isotropic and
+  index matched;
+- ``"OpenPBR2024"``: its anisotropic form alpha = (1 - s^2) / (1 - g s^2) as given in the OpenPBR Surface
+  specification v0.4 (``OpenPBR2024``, Subsurface section), the inverse of van de Hulst's
+  A = (1 - s)(1 - 0.139 s) / (1 + 1.17 s), s = sqrt((1 - alpha) / (1 - g alpha)) (``vandeHulst1980``);
+  index matched;
+- ``"boundary_table"``: matgen's own boundary-aware inversion, a table of A(alpha, g, n) and of the
+  profile scaling l / d computed with matgen's transport engine for a homogeneous half-space under a smooth
+  boundary of index n against air (``tools/make_inversion_table.py``; file ``fit/data/inversion_table.npz``
+  with its provenance record), inverted numerically.
+
+The mean free path of the effective medium follows from the fitted shape distance d: l = s d with the
+scaling factor s of Christensen & Burley's mean-free-path fit (closed-form methods) or of the table.
+"""
+
+from __future__ import annotations
+
+import json
+from functools import lru_cache
+from importlib import resources
+
+import numpy as np
+
+from matgen.errors import DataError, FitError, ParameterError
+from matgen.fit.models import shape_scaling_Christensen2015
+
+#: Names accepted by ``method=``.
+INVERSION_METHODS = ("ChiangKutzBurley2016", "OpenPBR2024", "boundary_table")
+
+TABLE_FILE = "inversion_table.npz"
+TABLE_PROVENANCE = "inversion_table.provenance.json"
+
+
+def specular_reflectance_normal(n_medium, n_outside=1.0):
+    """Fresnel reflectance of a smooth boundary at normal incidence, ((n1 - n2) / (n1 + n2))^2.
+
+    Parameters
+    ----------
+    n_medium, n_outside : float or ndarray
+        Refractive indices (dimensionless).
+
+    Returns
+    -------
+    ndarray
+        Reflectance (dimensionless).
+
+    References
+    ----------
+    ``BornWolf1999``, Sec. 1.5 (Fresnel formulae at normal incidence).
+    """
+    n1 = np.asarray(n_medium, dtype=np.float64)
+    return ((n1 - n_outside) / (n1 + n_outside)) ** 2
+
+
+def _check_unit_interval(name, values, open_low=True, open_high=True):
+    v = np.asarray(values, dtype=np.float64)
+    bad = ~np.isfinite(v)
+    bad |= (v <= 0) if open_low else (v < 0)
+    bad |= (v >= 1) if open_high else (v > 1)
+    if bad.any():
+        i = int(np.argmax(bad.reshape(-1)))
+        lo = "(0" if open_low else "[0"
+        hi = "1)" if open_high else "1]"
+        raise FitError(f"{name}[{i}] = {v.reshape(-1)[i]!r}; must lie in {lo}, {hi}")
+    return v
+
+
+def _check_g(g):
+    gv = np.asarray(g, dtype=np.float64)
+    bad = ~np.isfinite(gv) | (gv <= -1) | (gv >= 1)
+    if bad.any():
+        i = int(np.argmax(bad.reshape(-1)))
+        raise ParameterError(f"anisotropy g[{i}] = {gv.reshape(-1)[i]!r}; must lie in (-1, 1)")
+    return gv
+
+
+# --------------------------------------------------------------------------------------------------------
+# Closed forms
+# --------------------------------------------------------------------------------------------------------
+
+
+def albedo_multiple_vanDeHulst1980(albedo_single, g=0.0):
+    """Multiple-scattering albedo of a half-space from van de Hulst's approximation (dimensionless).
+
+    A = (1 - s)(1 - 0.139 s) / (1 + 1.17 s), s = sqrt((1 - alpha) / (1 - g alpha)).
+
+    Parameters
+    ----------
+    albedo_single : float or ndarray
+        Single-scattering albedo alpha in [0, 1].
+    g : float or ndarray
+        Henyey-Greenstein anisotropy in (-1, 1).
+
+    Returns
+    -------
+    ndarray
+        A in [0, 1].
+
+    References
+    ----------
+    ``vandeHulst1980`` as quoted in ``OpenPBR2024`` (Subsurface section, v0.4).
+    """
+    a = np.asarray(albedo_single, dtype=np.float64)
+    gv = np.asarray(g, dtype=np.float64)
+    s = np.sqrt((1.0 - a) / (1.0 - gv * a))
+    return (1.0 - s) * (1.0 - 0.139 * s) / (1.0 + 1.17 * s)
+
+
+def _ckb_s(albedo_multiple):
+    c = np.asarray(albedo_multiple, dtype=np.float64)
+    return 4.09712 + 4.20863 * c - np.sqrt(9.59217 + 41.6808 * c + 17.7126 * c * c)
+
+
+def albedo_single_ChiangKutzBurley2016(albedo_multiple):
+    """Single-scattering albedo from multiple-scattering albedo, isotropic and index matched.
+
+    alpha = 1 - (4.09712 + 4.20863 A - sqrt(9.59217 + 41.6808 A + 17.7126 A^2))^2.
+
+    Parameters
+    ----------
+    albedo_multiple : float or ndarray
+        A in [0, 1].
+
+    Returns
+    -------
+    ndarray
+        alpha in [0, 1].
+
+    References
+    ----------
+    ``Chiang2016`` (coefficients as re-read in ``OpenPBR2024``, which gives the same expression).
+    """
+    s = _ckb_s(albedo_multiple)
+    return 1.0 - s * s
+
+
+def albedo_single_OpenPBR2024(albedo_multiple, g=0.0):
+    """Single-scattering albedo from multiple-scattering albedo with anisotropy, index matched.
+
+    alpha = (1 - s^2) / (1 - g s^2), s = 4.09712 + 4.20863 A - sqrt(9.59217 + 41.6808 A + 17.7126 A^2).
+
+    Parameters
+    ----------
+    albedo_multiple : float or ndarray
+        A in [0, 1] (OpenPBR's subsurface_color C).
+    g : float or ndarray
+        Henyey-Greenstein anisotropy in (-1, 1).
+
+    Returns
+    -------
+    ndarray
+        alpha in [0, 1].
+
+    References
+    ----------
+    ``OpenPBR2024``, Subsurface section (v0.4, 2024-04-30), inverse of ``vandeHulst1980``.
+    """
+    s2 = _ckb_s(albedo_multiple) ** 2
+    gv = np.asarray(g, dtype=np.float64)
+    return (1.0 - s2) / (1.0 - gv * s2)
+
+
+# --------------------------------------------------------------------------------------------------------
+# Boundary-aware table
+# --------------------------------------------------------------------------------------------------------
+
+
+class InversionTable:
+    """Table of A(alpha, g, n) and of the profile scaling l/d for a homogeneous half-space.
+
+    Attributes
+    ----------
+    albedo_single : ndarray, shape (Na,)
+        Single-scattering albedo nodes, ascending, 0 first and 1 last (both analytic: A(0) = 0,
+        A(1) = 1 - R_specular(n)).
+    g : ndarray, shape (Ng,)
+        Anisotropy nodes, ascending.
+    n : ndarray, shape (Nn,)
+        Refractive-index nodes of the medium (air above), ascending.
+    albedo_multiple, albedo_multiple_stderr : ndarray, shape (Na, Ng, Nn)
+        Diffuse reflectance at normal incidence (fraction of incident power) and its standard error.
+    shape_scaling, shape_scaling_stderr : ndarray, shape (Na, Ng, Nn)
+        l / d, the mean free path over the fitted normalised-diffusion shape distance (NaN at the analytic
+        end nodes, where no profile exists; interpolation there uses the neighbouring node).
+    provenance : dict
+        How the table was made.
+    """
+
+    def __init__(self, albedo_single, g, n, albedo_multiple, albedo_multiple_stderr, shape_scaling,
+                 shape_scaling_stderr, provenance=None):
+        self.albedo_single = np.asarray(albedo_single, dtype=np.float64)
+        self.g = np.asarray(g, dtype=np.float64)
+        self.n = np.asarray(n, dtype=np.float64)
+        self.albedo_multiple = np.asarray(albedo_multiple, dtype=np.float64)
+        self.albedo_multiple_stderr = np.asarray(albedo_multiple_stderr, dtype=np.float64)
+        self.shape_scaling = np.asarray(shape_scaling, dtype=np.float64)
+        self.shape_scaling_stderr = np.asarray(shape_scaling_stderr, dtype=np.float64)
+        self.provenance = dict(provenance or {})
+        shape = (self.albedo_single.size, self.g.size, self.n.size)
+        for name in ("albedo_multiple", "albedo_multiple_stderr", "shape_scaling", "shape_scaling_stderr"):
+            if getattr(self, name).shape != shape:
+                raise DataError(f"inversion table: {name} has shape {getattr(self, name).shape}, expected {shape}")
+        if np.any(np.diff(self.albedo_multiple, axis=0) <= 0):
+            raise DataError("inversion table: A(alpha) is not strictly increasing along alpha for some (g, n)")
+        # fill the analytic end nodes' scaling from their neighbours for interpolation
+        s = self.shape_scaling.copy()
+        if np.isnan(s[0]).any():
+            s[0] = np.where(np.isnan(s[0]), s[1], s[0])
+        if np.isnan(s[-1]).any():
+            s[-1] = np.where(np.isnan(s[-1]), s[-2], s[-1])
+        if np.isnan(s).any():
+            raise DataError("inversion table: shape_scaling has NaN at interior nodes")
+        self._scaling_filled = s
+
+    # -- io --------------------------------------------------------------------------------------------
+    def save(self, path_npz, path_provenance=None):
+        """Write the table (``.npz``) and, if given, its provenance record (JSON)."""
+        np.savez_compressed(
+            path_npz,
+            albedo_single=self.albedo_single,
+            g=self.g,
+            n=self.n,
+            albedo_multiple=self.albedo_multiple,
+            albedo_multiple_stderr=self.albedo_multiple_stderr,
+            shape_scaling=self.shape_scaling,
+            shape_scaling_stderr=self.shape_scaling_stderr,
+        )
+        if path_provenance is not None:
+            with open(path_provenance, "w") as fh:
+                json.dump(self.provenance, fh, indent=2, sort_keys=True)
+                fh.write("\n")
+
+    @classmethod
+    def load(cls, path_npz, path_provenance=None):
+        """Read a table written by :meth:`save`."""
+        try:
+            with np.load(path_npz) as z:
+                arrays = {k: z[k] for k in z.files}
+        except (OSError, ValueError) as exc:
+            raise DataError(f"cannot read inversion table {path_npz}: {exc}") from exc
+        prov = {}
+        if path_provenance is not None:
+            with open(path_provenance) as fh:
+                prov = json.load(fh)
+        try:
+            return cls(provenance=prov, **arrays)
+        except TypeError as exc:
+            raise DataError(f"inversion table {path_npz} lacks arrays ({exc})") from exc
+
+    # -- lookup ----------------------------------------------------------------------------------------
+    def _corner_weights(self, g, n):
+        """Bilinear weights over the (g, n) grid: index arrays (4, K) into g and n, weights (4, K)."""
+        g = np.asarray(g, dtype=np.float64).reshape(-1)
+        n = np.asarray(n, dtype=np.float64).reshape(-1)
+        for name, v, nodes in (("anisotropy g", g, self.g), ("refractive index n", n, self.n)):
+            out = (v < nodes[0] - 1e-12) | (v > nodes[-1] + 1e-12)
+            if out.any():
+                i = int(np.argmax(out))
+                raise ParameterError(
+                    f"{name} = {v[i]!r} lies outside the boundary-aware inversion table "
+                    f"[{nodes[0]:g}, {nodes[-1]:g}]; use a closed-form method or extend the table"
+                )
+
+        def axis(v, nodes):
+            if nodes.size == 1:
+                z = np.zeros(v.size, dtype=np.int64)
+                return z, z, np.zeros(v.size)
+            i = np.clip(np.searchsorted(nodes, v, side="right") - 1, 0, nodes.size - 2)
+            t = np.clip((v - nodes[i]) / (nodes[i + 1] - nodes[i]), 0.0, 1.0)
+            return i, i + 1, t
+
+        g0, g1, tg = axis(g, self.g)
+        n0, n1, tn = axis(n, self.n)
+        gi = np.stack([g0, g1, g0, g1])
+        ni = np.stack([n0, n0, n1, n1])
+        w = np.stack([(1 - tg) * (1 - tn), tg * (1 - tn), (1 - tg) * tn, tg * tn])
+        return gi, ni, w
+
+    def _curves(self, table, g, n):
+        gi, ni, w = self._corner_weights(g, n)
+        # table[:, gi, ni] -> (Na, 4, K)
+        return np.einsum("ack,ck->ka", table[:, gi, ni], w)  # (K, Na)
+
+    def albedo_multiple_of(self, albedo_single, g, n):
+        """A(alpha, g, n) by interpolation (linear in u = sqrt(1 - alpha), bilinear in g and n)."""
+        a = np.asarray(albedo_single, dtype=np.float64).reshape(-1)
+        g, n = np.broadcast_to(g, a.shape), np.broadcast_to(n, a.shape)
+        curves = self._curves(self.albedo_multiple, g, n)
+        u_nodes = np.sqrt(1.0 - self.albedo_single)[::-1]
+        u = np.sqrt(np.clip(1.0 - a, 0.0, 1.0))
+        return np.array([np.interp(u[k], u_nodes, curves[k, ::-1]) for k in range(a.size)])
+
+    def invert(self, albedo_multiple, g, n):
+        """alpha and the scaling l/d that reproduce A for each (g, n); arrays of A's shape.
+
+        Raises :class:`FitError` where A exceeds the largest diffuse reflectance the boundary allows,
+        1 - R_specular(n).
+        """
+        a_in = np.asarray(albedo_multiple, dtype=np.float64)
+        shape = a_in.shape
+        a = a_in.reshape(-1)
+        g = np.broadcast_to(np.asarray(g, dtype=np.float64), shape).reshape(-1)
+        n = np.broadcast_to(np.asarray(n, dtype=np.float64), shape).reshape(-1)
+        curves = self._curves(self.albedo_multiple, g, n)  # (K, Na), increasing along Na
+        top = curves[:, -1]
+        over = a >= top
+        if over.any():
+            i = int(np.argmax(over))
+            raise FitError(
+                f"albedo_multiple[{i}] = {a[i]:.6g} is not reachable by a half-space of index {n[i]:g}: "
+                f"at most {top[i]:.6g} (1 - normal specular reflectance)"
+            )
+        k = np.clip(np.sum(curves < a[:, None], axis=1) - 1, 0, curves.shape[1] - 2)
+        rows = np.arange(a.size)
+        a0, a1 = curves[rows, k], curves[rows, k + 1]
+        t = (a - a0) / (a1 - a0)
+        u_nodes = np.sqrt(1.0 - self.albedo_single)
+        u = u_nodes[k] + t * (u_nodes[k + 1] - u_nodes[k])
+        alpha = 1.0 - u * u
+        s_curves = self._curves(self._scaling_filled, g, n)
+        s = s_curves[rows, k] + t * (s_curves[rows, k + 1] - s_curves[rows, k])
+        return alpha.reshape(shape), s.reshape(shape)
+
+
+@lru_cache(maxsize=1)
+def default_inversion_table() -> InversionTable:
+    """The shipped boundary-aware inversion table (``matgen/fit/data/inversion_table.npz``)."""
+    root = resources.files("matgen.fit").joinpath("data")
+    npz = root.joinpath(TABLE_FILE)
+    prov = root.joinpath(TABLE_PROVENANCE)
+    if not npz.is_file():
+        raise DataError(
+            "the boundary-aware inversion table fit/data/inversion_table.npz is missing; build it with "
+            "tools/make_inversion_table.py or use method='OpenPBR2024'"
+        )
+    return InversionTable.load(str(npz), str(prov) if prov.is_file() else None)
+
+
+def has_default_table() -> bool:
+    """Whether the shipped boundary-aware inversion table is present."""
+    return resources.files("matgen.fit").joinpath("data", TABLE_FILE).is_file()
+
+
+# --------------------------------------------------------------------------------------------------------
+# Dispatchers
+# --------------------------------------------------------------------------------------------------------
+
+
+def _check_method(method):
+    if method not in INVERSION_METHODS:
+        raise ParameterError(f"unknown inversion method {method!r}; use one of {', '.join(INVERSION_METHODS)}")
+
+
+def albedo_single(albedo_multiple, g=0.0, n=1.0, *, method="boundary_table", table=None):
+    """Single-scattering albedo of the homogeneous half-space whose diffuse reflectance is A.
+
+    Parameters
+    ----------
+    albedo_multiple : float or ndarray
+        A, strictly in (0, 1).
+    g : float or ndarray
+        Henyey-Greenstein anisotropy in (-1, 1) (ignored by ``"ChiangKutzBurley2016"``).
+    n : float or ndarray
+        Refractive index of the medium against air (used by ``"boundary_table"`` only; the closed forms
+        assume an index-matched boundary).
+    method : str
+        One of :data:`INVERSION_METHODS`.
+    table : InversionTable, optional
+        Table for ``"boundary_table"`` (default: the shipped one).
+
+    Returns
+    -------
+    ndarray
+        alpha in (0, 1).
+
+    References
+    ----------
+    ``Chiang2016``; ``OpenPBR2024``; ``vandeHulst1980``; the table: matgen's own transport.
+    """
+    _check_method(method)
+    a = _check_unit_interval("albedo_multiple", albedo_multiple)
+    gv = _check_g(g)
+    if method == "ChiangKutzBurley2016":
+        return albedo_single_ChiangKutzBurley2016(a)
+    if method == "OpenPBR2024":
+        return albedo_single_OpenPBR2024(a, gv)
+    tab = table if table is not None else default_inversion_table()
+    return tab.invert(a, gv, n)[0]
+
+
+def albedo_multiple(albedo_single_value, g=0.0, n=1.0, *, method="boundary_table", table=None):
+    """Diffuse reflectance A of a homogeneous half-space of single-scattering albedo alpha.
+
+    Parameters
+    ----------
+    albedo_single_value : float or ndarray
+        alpha in [0, 1].
+    g, n : float or ndarray
+        Anisotropy and medium refractive index (n used by the table only).
+    method : str
+        ``"ChiangKutzBurley2016"`` (van de Hulst with g = 0), ``"OpenPBR2024"`` (van de Hulst with g),
+        ``"boundary_table"``.
+    table : InversionTable, optional
+        Table for ``"boundary_table"``.
+
+    Returns
+    -------
+    ndarray
+        A.
+
+    References
+    ----------
+    ``vandeHulst1980``; ``OpenPBR2024``; the table: matgen's own transport.
+    """
+    _check_method(method)
+    a = _check_unit_interval("albedo_single", albedo_single_value, open_low=False, open_high=False)
+    gv = _check_g(g)
+    if method == "ChiangKutzBurley2016":
+        return albedo_multiple_vanDeHulst1980(a, 0.0)
+    if method == "OpenPBR2024":
+        return albedo_multiple_vanDeHulst1980(a, gv)
+    tab = table if table is not None else default_inversion_table()
+    return tab.albedo_multiple_of(a, gv, n).reshape(np.shape(a))
+
+
+def effective_medium(albedo_multiple_value, shape_distance_mm, g=0.0, n=1.0, *, method="boundary_table",
+                     table=None):
+    """Single-scattering albedo and mean free path of the half-space matching A and the profile width d.
+
+    Parameters
+    ----------
+    albedo_multiple_value : ndarray
+        A, strictly in (0, 1).
+    shape_distance_mm : ndarray
+        Fitted normalised-diffusion shape distance d in mm (> 0).
+    g, n : float or ndarray
+        Anisotropy and refractive index of the effective medium.
+    method : str
+        One of :data:`INVERSION_METHODS`.
+    table : InversionTable, optional
+        For ``"boundary_table"``.
+
+    Returns
+    -------
+    dict of ndarray
+        ``albedo_single``, ``mean_free_path_mm`` (l = s d), ``shape_scaling`` (s = l / d).
+
+    References
+    ----------
+    ``Christensen2015`` (s(A) for mean free path, closed-form methods); ``Chiang2016``; ``OpenPBR2024``.
+    """
+    _check_method(method)
+    a = _check_unit_interval("albedo_multiple", albedo_multiple_value)
+    d = np.asarray(shape_distance_mm, dtype=np.float64)
+    if np.any(~np.isfinite(d) | (d <= 0)):
+        raise FitError("shape_distance_mm must be finite and > 0 mm")
+    gv = _check_g(g)
+    if method == "boundary_table":
+        tab = table if table is not None else default_inversion_table()
+        alpha, s = tab.invert(a, gv, n)
+    else:
+        alpha = albedo_single(a, gv, n, method=method)
+        s = shape_scaling_Christensen2015(a, "mfp")
+    return {"albedo_single": alpha, "mean_free_path_mm": s * d, "shape_scaling": np.broadcast_to(s, np.shape(a)).copy()}
