@@ -1,0 +1,217 @@
+"""Running one table task: a scattering simulation plus absorption reweighting, written atomically. Units: mm, 1/mm.
+
+:func:`compute_task` is a pure function of the plan and the task: it builds the skin parameters of every grid
+point the task covers, their absorption (``absorption_batch``), the node's scattering stack for the task's
+band (``skin_optics``), runs the transport once with photon records at the reference absorption (per-layer
+minimum over the grid points) and reweights the records for every grid point (``Alerstam2008white``).
+
+:func:`run_task` makes that idempotent and safe to run twice at once: a finished task (record present, task id
+equal, SHA-256 of the output equal) is skipped; otherwise the task takes its lock (``O_CREAT | O_EXCL`` lock
+file with host and PID; a lock of a dead process on this host is stale and taken over), computes, writes the
+output ``.npz`` through a temporary file and ``os.replace``, then its ``.json`` record the same way. A second
+process arriving while the first runs waits for the lock and then finds the task done.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import socket
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from matgen.errors import TableError
+from matgen.fsutil import FolderLock, atomic_write_text
+from matgen.provenance import sha256_file
+from matgen.tables.plan import JobFolder, Plan, Task, base_parameters, parameters_at
+from matgen.tables.store import _write_npz_deterministic, read_npz_checked
+
+#: Arrays of a task output and their meaning (K = grid points of the task, R = rings, L = layers).
+TASK_ARRAYS = {
+    "grid_index": "(K, D) int64 grid indices of the task's points",
+    "diffuse_reflectance": "(K,) diffuse reflectance (fraction of launched weight)",
+    "diffuse_reflectance_stderr": "(K,) its standard error",
+    "transmittance": "(K,) transmittance",
+    "transmittance_stderr": "(K,) its standard error",
+    "radial_reflectance_per_mm2": "(K, R) radial reflectance, mm^-2",
+    "radial_stderr_per_mm2": "(K, R) its standard error, mm^-2",
+    "mean_penetration_depth_mm": "(K,) mean maximum depth of reflected light, mm",
+    "absorbed": "(K, L) fraction of launched weight absorbed in each layer",
+    "absorbed_stderr": "(K, L) its standard error",
+    "mu_a_per_mm": "(K, L) absorption coefficients of the grid points, 1/mm",
+    "mu_a_reference_per_mm": "(L,) reference absorption of the scattering run, 1/mm",
+    "mu_s_per_mm": "(L,) scattering coefficients, 1/mm",
+    "g": "(L,) Henyey-Greenstein anisotropy",
+    "n": "(L,) refractive indices",
+    "thickness_mm": "(L,) layer thicknesses, mm",
+    "n_ambient": "(2,) refractive index above and below the stack",
+    "specular_reflectance": "(1,) Fresnel reflection at entry",
+    "ring_edges_mm": "(R+1,) ring edges, mm",
+    "task_id": "uint8 bytes of the task id (ASCII hex)",
+}
+
+
+def _deps():
+    try:
+        from matgen.tissue.optics import absorption_batch, skin_optics
+        from matgen.transport.reweight import reweight
+        from matgen.transport.simulate import simulate
+        from matgen.transport.stack import Stack
+    except ImportError as exc:
+        raise TableError(f"running table tasks needs the tissue model and the transport engine: {exc}") from exc
+    return absorption_batch, skin_optics, simulate, reweight, Stack
+
+
+def compute_task(plan: Plan, task: Task, threads: int | None = None) -> dict:
+    """Compute the output arrays of one task (see :data:`TASK_ARRAYS`).
+
+    Parameters
+    ----------
+    plan : Plan
+    task : Task
+    threads : int, optional
+        Threads of the transport and reweighting kernels (results do not depend on it).
+
+    Returns
+    -------
+    dict of str to ndarray
+    """
+    absorption_batch, skin_optics, simulate, reweight, Stack = _deps()
+    spec = plan.spec
+    bands = spec.bands.subset(np.array([task.band]))
+    base = base_parameters(spec)
+    idx, values = plan.task_grid_points(task)
+    params = [parameters_at(base, v, spec.source) for v in values]
+    mu_a = np.asarray(absorption_batch(params, bands, packaging=spec.packaging), dtype=np.float64)[:, :, 0]
+    optics = skin_optics(params[0], bands, packaging=spec.packaging)
+    layer = optics.band(0)
+    # the reference absorption: per-layer minimum over the task's grid points, so every reweighting factor
+    # exp(-(mu_a - mu_a_ref) L) is <= 1
+    mu_ref = mu_a.min(axis=0)
+    stack = Stack(**{**layer, "mu_a": mu_ref})
+    result, records = simulate(stack, spec.photons_per_band, seed=task.seed, threads=threads,
+                               ring_edges_mm=plan.ring_edges_mm, records=True)
+    rw = reweight(records, mu_a, ring_edges_mm=plan.ring_edges_mm, threads=threads)
+    return {
+        "grid_index": idx,
+        "diffuse_reflectance": np.asarray(rw.diffuse_reflectance, np.float64),
+        "diffuse_reflectance_stderr": np.asarray(rw.diffuse_reflectance_stderr, np.float64),
+        "transmittance": np.asarray(rw.transmittance, np.float64),
+        "transmittance_stderr": np.asarray(rw.transmittance_stderr, np.float64),
+        "radial_reflectance_per_mm2": np.asarray(rw.radial_reflectance_per_mm2, np.float64),
+        "radial_stderr_per_mm2": np.asarray(rw.radial_stderr_per_mm2, np.float64),
+        "mean_penetration_depth_mm": np.asarray(rw.mean_penetration_depth_mm, np.float64),
+        "absorbed": np.asarray(rw.absorbed, np.float64),
+        "absorbed_stderr": np.asarray(rw.absorbed_stderr, np.float64),
+        "mu_a_per_mm": mu_a,
+        "mu_a_reference_per_mm": mu_ref,
+        "mu_s_per_mm": np.asarray(stack.mu_s, np.float64),
+        "g": np.asarray(stack.g, np.float64),
+        "n": np.asarray(stack.n, np.float64),
+        "thickness_mm": np.asarray(stack.thickness_mm, np.float64),
+        "n_ambient": np.array([stack.n_above, stack.n_below], np.float64),
+        "specular_reflectance": np.array([float(rw.specular_reflectance)], np.float64),
+        "ring_edges_mm": np.asarray(rw.ring_edges_mm, np.float64),
+        "task_id": np.frombuffer(task.task_id.encode("ascii"), dtype=np.uint8),
+    }
+
+
+@dataclass(frozen=True)
+class TaskState:
+    """State of one task output: ``done``, ``missing`` or ``corrupt`` (with the reason)."""
+
+    index: int
+    state: str
+    reason: str = ""
+
+
+def task_state(job: JobFolder, index: int) -> TaskState:
+    """Check task ``index``'s output: present, of this task id, and matching its recorded SHA-256."""
+    task = job.plan.tasks[index]
+    out, rec = job.output_path(index), job.record_path(index)
+    if not rec.exists():
+        return TaskState(index, "missing", "no record" if not out.exists() else "output without record")
+    try:
+        record = json.loads(rec.read_text())
+    except (OSError, ValueError):
+        return TaskState(index, "corrupt", "record is not valid JSON")
+    if record.get("task_id") != task.task_id:
+        return TaskState(index, "corrupt", "record belongs to another task id")
+    if not out.exists():
+        return TaskState(index, "corrupt", "output file missing")
+    if out.stat().st_size != record.get("bytes") or sha256_file(out) != record.get("sha256"):
+        return TaskState(index, "corrupt", "output does not match its recorded SHA-256 (truncated or altered)")
+    return TaskState(index, "done")
+
+
+def load_task_output(job: JobFolder, index: int) -> dict:
+    """Read a finished task's arrays, checking its checksum and task id."""
+    st = task_state(job, index)
+    if st.state != "done":
+        raise TableError(f"task {index} of {job.path} is {st.state} ({st.reason})")
+    arrays = read_npz_checked(job.output_path(index), "task output")
+    tid = bytes(arrays.get("task_id", np.zeros(0, np.uint8))).decode("ascii", "replace")
+    if tid != job.plan.tasks[index].task_id:
+        raise TableError(f"task {index} output of {job.path} carries task id {tid[:12]}..., not its own")
+    return arrays
+
+
+def run_task(job: JobFolder, index: int, *, threads: int | None = None, wait_s: float = 24 * 3600.0) -> str:
+    """Run task ``index`` of a job folder unless it is already done.
+
+    Parameters
+    ----------
+    job : JobFolder
+    index : int
+        0-based task index.
+    threads : int, optional
+        Kernel threads (results do not depend on it).
+    wait_s : float
+        How long to wait for a lock held by another live process before raising
+        :class:`~matgen.errors.LockError`.
+
+    Returns
+    -------
+    str
+        ``"done"`` if it was already finished, ``"computed"`` if this call computed it.
+    """
+    n = len(job.plan.tasks)
+    if not (0 <= index < n):
+        raise TableError(f"task index {index} is outside this job's tasks 0..{n - 1} ({job.path})")
+    if task_state(job, index).state == "done":
+        return "done"
+    job.tasks_dir.mkdir(exist_ok=True)
+    lock = FolderLock(job.locks_dir, f"task-{index:05d}.lock", wait_s=wait_s, purpose=f"table task {index}")
+    lock.acquire()
+    try:
+        if task_state(job, index).state == "done":  # finished by another process while we waited
+            return "done"
+        task = job.plan.tasks[index]
+        t0, c0 = time.perf_counter(), time.process_time()
+        arrays = compute_task(job.plan, task, threads=threads)
+        wall = time.perf_counter() - t0
+        out = job.output_path(index)
+        _write_npz_deterministic(out, arrays)
+        record = {
+            "index": index,
+            "task_id": task.task_id,
+            "sha256": sha256_file(out),
+            "bytes": out.stat().st_size,
+            "wall_s": wall,
+            "cpu_s": time.process_time() - c0,
+            "photons": job.plan.spec.photons_per_band,
+            "grid_points": int(arrays["diffuse_reflectance"].size),
+            "host": socket.gethostname(),
+            "pid": os.getpid(),
+        }
+        atomic_write_text(job.record_path(index), json.dumps(record, indent=1) + "\n")
+        return "computed"
+    finally:
+        lock.release()
+
+
+def job_states(job: JobFolder) -> list:
+    """:class:`TaskState` of every task of the job."""
+    return [task_state(job, i) for i in range(len(job.plan.tasks))]
