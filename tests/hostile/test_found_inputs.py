@@ -57,3 +57,160 @@ def test_stack_names_not_a_sequence_is_stack_error():
 
     with pytest.raises(MatgenError):
         Stack([1.0], [1.4], [0.1], [1.0], [0.5], names=5)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Table.load (matgen/tables/store.py): open findings, exact inputs below
+
+
+def _saved_table(tmp_path):
+    from targets import _small_table
+
+    return _small_table().save(tmp_path / "t.npz")
+
+
+def _rewrite_member(path, member, payload=None, raw_compressed=None):
+    """Rewrite one member of a zip; ``raw_compressed`` overwrites its deflated bytes in place."""
+    import zipfile
+
+    if raw_compressed is not None:
+        with zipfile.ZipFile(path) as zf:
+            info = zf.getinfo(member)
+        data = bytearray(path.read_bytes())
+        name_len = int.from_bytes(data[info.header_offset + 26:info.header_offset + 28], "little")
+        extra_len = int.from_bytes(data[info.header_offset + 28:info.header_offset + 30], "little")
+        start = info.header_offset + 30 + name_len + extra_len
+        data[start:start + len(raw_compressed)] = raw_compressed
+        path.write_bytes(bytes(data))
+        return
+    with zipfile.ZipFile(path) as zf:
+        members = {n: zf.read(n) for n in zf.namelist()}
+    members[member] = payload
+    with zipfile.ZipFile(path, "w") as zf:
+        for n, p in members.items():
+            zf.writestr(n, p)
+
+
+def _header_member(obj_bytes):
+    import io
+
+    import numpy as np
+
+    buf = io.BytesIO()
+    np.lib.format.write_array(buf, np.frombuffer(obj_bytes, dtype=np.uint8), allow_pickle=False)
+    return buf.getvalue()
+
+
+@pytest.mark.xfail(strict=True, reason="open: Table.load lets zlib.error escape on a corrupt deflate stream")
+def test_table_with_corrupt_deflate_stream_is_table_error(tmp_path):
+    """The .npz member 'header.json.npy' with its deflated bytes overwritten by b'\\xff' * 8 raised zlib.error."""
+    from matgen.errors import TableError
+    from matgen.tables.store import Table
+
+    p = _saved_table(tmp_path)
+    p.with_suffix(".json").unlink()
+    _rewrite_member(p, "header.json.npy", raw_compressed=b"\xff" * 8)
+    with pytest.raises(TableError):
+        Table.load(p)
+
+
+@pytest.mark.xfail(strict=True, reason="open: Table.load reads header['working_space'] outside its error guard")
+def test_table_header_without_working_space_is_table_error(tmp_path):
+    """A header JSON lacking the key 'working_space' raised KeyError."""
+    import json
+
+    from matgen.errors import TableError
+    from matgen.tables.store import Table
+
+    p = _saved_table(tmp_path)
+    p.with_suffix(".json").unlink()
+    header = _small_header(tmp_path)
+    del header["working_space"]
+    _rewrite_member(p, "header.json.npy", _header_member(json.dumps(header).encode()))
+    with pytest.raises(TableError):
+        Table.load(p)
+
+
+@pytest.mark.xfail(strict=True, reason="open: Table.load calls header.get on a header that is not a JSON object")
+def test_table_header_not_an_object_is_table_error(tmp_path):
+    """A header JSON '[]' raised AttributeError."""
+    from matgen.errors import TableError
+    from matgen.tables.store import Table
+
+    p = _saved_table(tmp_path)
+    p.with_suffix(".json").unlink()
+    _rewrite_member(p, "header.json.npy", _header_member(b"[]"))
+    with pytest.raises(TableError):
+        Table.load(p)
+
+
+@pytest.mark.xfail(strict=True, reason="open: Table.load calls side_doc.get on a manifest that is not a JSON object")
+def test_table_manifest_not_an_object_is_table_error(tmp_path):
+    """A manifest t.json holding '-1' beside a valid t.npz raised AttributeError."""
+    from matgen.errors import TableError
+    from matgen.tables.store import Table
+
+    p = _saved_table(tmp_path)
+    p.with_suffix(".json").write_text("-1")
+    with pytest.raises(TableError):
+        Table.load(p)
+
+
+@pytest.mark.xfail(strict=True, reason="open: tokenize.TokenError from numpy's .npy header parser escapes Table.load")
+def test_table_member_with_unparsable_shape_is_table_error(tmp_path):
+    """A member 'q_albedo_multiple.npy' whose header declares shape '(2*' raised tokenize.TokenError."""
+    from targets import _npy_member
+
+    from matgen.errors import TableError
+    from matgen.tables.store import Table
+
+    p = _saved_table(tmp_path)
+    p.with_suffix(".json").unlink()
+    _rewrite_member(p, "q_albedo_multiple.npy", _npy_member(b"(2*"))
+    with pytest.raises(TableError):
+        Table.load(p)
+
+
+def test_table_member_with_huge_declared_shape_is_refused_before_allocation(tmp_path):
+    """A member declaring shape (100000, 100000, 100000) with 16 bytes of data: LimitError, no allocation."""
+    import tracemalloc
+
+    from targets import _npy_member
+
+    from matgen.errors import LimitError
+    from matgen.tables.store import Table
+
+    p = _saved_table(tmp_path)
+    p.with_suffix(".json").unlink()
+    _rewrite_member(p, "q_albedo_multiple.npy", _npy_member(b"(100000, 100000, 100000)"))
+    tracemalloc.start()
+    try:
+        with pytest.raises(LimitError, match="MATGEN_MAX_TABLE_ENTRIES"):
+            Table.load(p)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak < 50e6, f"{peak / 1e6:.0f} MB allocated while refusing a hostile header"
+
+
+def _small_header(tmp_path):
+    from targets import _small_table
+
+    return _small_table().header()
+
+
+@pytest.mark.xfail(strict=True, reason="open: zipfile's NotImplementedError (unknown compression method) escapes "
+                   "Table.load")
+def test_table_with_unknown_compression_method_is_table_error(tmp_path):
+    """The central-directory compression method of the first member set to 99: NotImplementedError escaped."""
+    from matgen.errors import TableError
+    from matgen.tables.store import Table
+
+    p = _saved_table(tmp_path)
+    p.with_suffix(".json").unlink()
+    data = bytearray(p.read_bytes())
+    at = data.index(b"PK\x01\x02")
+    data[at + 10:at + 12] = (99).to_bytes(2, "little")
+    p.write_bytes(bytes(data))
+    with pytest.raises(TableError):
+        Table.load(p)
