@@ -21,6 +21,7 @@ from matgen.bake.config import BakeConfig
 from matgen.bake.lookup import TexelLookup
 from matgen.bake.maps import MapReader, discover_tiles, map_info, scan_map, tile_path
 from matgen.bake.tiles import rows_per_strip
+from matgen.color import pass_weights
 from matgen.errors import BandError, ClampWarning, ConfigError, ImageError
 from matgen.fsutil import resolve_inside
 from matgen.limits import check_udim_tiles
@@ -154,8 +155,6 @@ def _spectral_subset(table_bands: BandSet, spec: str):
 def _resolve_passes(config: BakeConfig, bands: BandSet, allow_outside: bool) -> dict:
     if not config.outputs.passes:
         return {}
-    from matgen.color import pass_weights  # colour is rank-lower than bake; imported only when passes are asked
-
     out = {}
     for entry in config.outputs.passes:
         if entry.lower().endswith(".csv"):
@@ -240,7 +239,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
                                  "exist (every UDIM map must have every tile of the set)")
             infos[p.name] = map_info(path, t if p.is_udim else None, channel=p.channel,
                                      what=f"map of parameter '{p.name}'")
-        first = next(iter(infos.values()))
+        first = max(infos.values(), key=lambda i: i.width * i.height)  # resampling goes to the largest map
         for name, info in infos.items():
             if (info.width, info.height) != (first.width, first.height) and config.resample == "error":
                 raise ImageError(

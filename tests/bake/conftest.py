@@ -124,3 +124,17 @@ def make_project(root, h=32, w=32, tiles=None, extra="", pixel_type="float", see
 @pytest.fixture(scope="session")
 def test_table():
     return make_test_table()
+
+
+class _Kit:
+    """The helpers above, handed to tests as the ``kit`` fixture (tests import in importlib mode)."""
+
+    make_test_table = staticmethod(make_test_table)
+    write_map = staticmethod(write_map)
+    smooth_maps = staticmethod(smooth_maps)
+    make_project = staticmethod(make_project)
+
+
+@pytest.fixture(scope="session")
+def kit():
+    return _Kit
