@@ -1,0 +1,143 @@
+"""Per-photon records of a reference run, for absorption reweighting ("white Monte Carlo"). Units: mm.
+
+One record per launched photon, in photon-index order (photons ended by roulette keep a record with
+weight 0 and side 0, so that records of consecutive runs concatenate into the records of one long run):
+
+=================  ===========  =====================================================================
+field              dtype        meaning
+=================  ===========  =====================================================================
+``path_mm``        float32 (L)  geometric path length travelled in each layer (mm)
+``weighted_path_``  float32 (L)  ``weighted_path_mm``: integral of w(s) / w_launch ds over the layer under
+``mm``                           the reference absorption (mm); equals ``path_mm`` where mu_a_ref = 0
+``exit_radius_mm`` float32      distance of the exit point from the entry point (mm)
+``exit_cos``       float32      cosine of the exit direction in the ambient medium (0 if none)
+``max_depth_mm``   float32      deepest point reached (mm)
+``weight``         float32      weight at exit under the reference absorption (roulette included)
+``side``           uint8        0 ended by roulette (or never escaping), 1 left through the top, 2 bottom
+=================  ===========  =====================================================================
+
+Memory: 8 L + 17 bytes per photon (57 bytes for 5 layers: 57 MB per 10^6 photons), plus a few hundred
+bytes of metadata (the stack, reference absorption, seed, photon range, launch).
+
+References: ``Alerstam2008white``, ``Graaff1993condensed``.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from matgen.errors import DataError, ParameterError
+
+_ARRAYS = ("path_mm", "weighted_path_mm", "exit_radius_mm", "exit_cos", "max_depth_mm", "weight", "side")
+_FORMAT = "matgen.photon_records/1"
+
+
+def bytes_per_photon(n_layers: int) -> int:
+    """Memory of one photon record in bytes: 8 per layer plus 17."""
+    return 8 * int(n_layers) + 17
+
+
+@dataclass
+class PhotonRecords:
+    """Records of one reference run (see the module docstring for fields and memory).
+
+    Attributes
+    ----------
+    path_mm, weighted_path_mm, exit_radius_mm, exit_cos, max_depth_mm, weight, side : ndarray
+        Per-photon arrays (length N; ``path_mm`` and ``weighted_path_mm`` are (N, L)).
+    meta : dict
+        ``stack`` (the reference stack as :meth:`Stack.to_dict`), ``mu_a_ref`` (1/mm, L values),
+        ``seed``, ``first_photon``, ``photons``, ``incidence_cos``, ``specular_reflectance``,
+        ``launch_weight``, ``depth_scale_mm``.
+    """
+
+    path_mm: np.ndarray
+    weighted_path_mm: np.ndarray
+    exit_radius_mm: np.ndarray
+    exit_cos: np.ndarray
+    max_depth_mm: np.ndarray
+    weight: np.ndarray
+    side: np.ndarray
+    meta: dict = field(default_factory=dict)
+
+    @property
+    def photons(self) -> int:
+        """Photons launched (records held)."""
+        return int(self.weight.size)
+
+    @property
+    def n_layers(self) -> int:
+        """Layers of the reference stack."""
+        return int(self.path_mm.shape[1])
+
+    @property
+    def mu_a_ref(self) -> np.ndarray:
+        """Reference absorption per layer (1/mm)."""
+        return np.asarray(self.meta["mu_a_ref"], dtype=np.float64)
+
+    @property
+    def nbytes(self) -> int:
+        """Memory held by the per-photon arrays, in bytes."""
+        return int(sum(getattr(self, a).nbytes for a in _ARRAYS))
+
+    def save(self, path) -> None:
+        """Write the records to an ``.npz`` file (uncompressed; metadata as JSON text)."""
+        arrays = {a: getattr(self, a) for a in _ARRAYS}
+        meta = dict(self.meta, format=_FORMAT)
+        with open(path, "wb") as fh:
+            np.savez(fh, meta=np.array(json.dumps(meta)), **arrays)
+
+    @classmethod
+    def load(cls, path) -> PhotonRecords:
+        """Read records written by :meth:`save`; a malformed file raises :class:`DataError` naming it."""
+        p = Path(path)
+        try:
+            with np.load(p, allow_pickle=False) as z:
+                meta = json.loads(str(z["meta"]))
+                arrays = {a: z[a] for a in _ARRAYS}
+        except (OSError, KeyError, ValueError) as exc:
+            raise DataError(f"photon records file '{p}' cannot be read: {exc}") from exc
+        if meta.get("format") != _FORMAT:
+            raise DataError(f"photon records file '{p}' has format {meta.get('format')!r}, expected {_FORMAT}")
+        meta.pop("format")
+        rec = cls(meta=meta, **arrays)
+        rec._check(str(p))
+        return rec
+
+    def _check(self, where: str) -> None:
+        n = self.weight.size
+        if self.path_mm.ndim != 2 or self.path_mm.shape[0] != n:
+            raise DataError(f"photon records {where}: path_mm has shape {self.path_mm.shape} for {n} photons")
+        if self.weighted_path_mm.shape != self.path_mm.shape:
+            raise DataError(f"photon records {where}: weighted_path_mm has shape {self.weighted_path_mm.shape}")
+        for a in _ARRAYS[2:]:
+            if getattr(self, a).shape != (n,):
+                raise DataError(f"photon records {where}: field '{a}' has shape {getattr(self, a).shape}")
+        if len(self.meta.get("mu_a_ref", [])) != self.path_mm.shape[1]:
+            raise DataError(f"photon records {where}: mu_a_ref does not match {self.path_mm.shape[1]} layers")
+
+    @staticmethod
+    def concatenate(parts) -> PhotonRecords:
+        """Join records of runs on the same stack, reference absorption, seed and launch, in the order given.
+
+        Runs covering consecutive photon ranges give exactly the records of one run over the whole range.
+        """
+        parts = list(parts)
+        if not parts:
+            raise ParameterError("concatenate needs at least one PhotonRecords")
+        first = parts[0]
+        keys = ("stack", "mu_a_ref", "seed", "incidence_cos", "launch_weight")
+        for i, p in enumerate(parts[1:], start=1):
+            for k in keys:
+                if p.meta.get(k) != first.meta.get(k):
+                    raise ParameterError(f"photon records part {i} differs from part 0 in '{k}'; "
+                                         "only records of the same stack, absorption, seed and launch join")
+        arrays = {a: np.concatenate([getattr(p, a) for p in parts]) for a in _ARRAYS}
+        meta = dict(first.meta)
+        meta["photons"] = int(arrays["weight"].size)
+        meta["photon_ranges"] = [[int(p.meta.get("first_photon", 0)), int(p.photons)] for p in parts]
+        return PhotonRecords(meta=meta, **arrays)
