@@ -185,7 +185,8 @@ def analytic_records():
             **common,
             "source": "approximate band models, not tabulated spectra: beta-carotene three vibronic Gaussian bands "
             "(425, 450, 478 nm) scaled to a 450 nm peak of 1.395e5 cm^-1/M (hexane; PhotochemCAD, from memory); "
-            "bilirubin one Gaussian band at 453 nm scaled to 5.5e4 cm^-1/M (chloroform; PhotochemCAD via Prahl)",
+            "bilirubin one asymmetric Gaussian band at 453 nm (widths from memory) scaled to 5.5e4 cm^-1/M "
+            "(chloroform; PhotochemCAD via Prahl)",
             "units": "molar extinction coefficient, decadic, cm^-1/M",
             "license": "model parameters (no data copied)",
             "wavelength_range_nm": [250.0, 1700.0],

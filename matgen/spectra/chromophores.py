@@ -363,19 +363,23 @@ def mu_a_lipid(bands: BandSet, method: str = "vanVeen2005") -> np.ndarray:
 #: Prahl; value from memory) and vibronic bands (centre nm, relative height, Gaussian sigma in cm^-1; from memory
 #: of the published spectrum's shape: shoulder 425, peak 450, 478 nm, and the weak cis band near 340 nm).
 CAROTENE_PEAK_PER_CM_PER_MOLAR = 1.395e5
-CAROTENE_BANDS = ((425.0, 0.72, 650.0), (450.0, 1.0, 650.0), (478.0, 0.86, 650.0), (340.0, 0.10, 1500.0))
+CAROTENE_BANDS = ((425.0, 0.72, 650.0, 650.0), (450.0, 1.0, 650.0, 650.0), (478.0, 0.86, 650.0, 650.0),
+                  (340.0, 0.10, 1500.0, 1500.0))
 #: bilirubin in chloroform: peak 5.5e4 cm^-1/M at about 451-453 nm (PhotochemCAD via Prahl; re-read from a
-#: quotation of that entry), one broad band (sigma in cm^-1 from memory of its ~100 nm width).
+#: quotation of that entry), one broad, asymmetric band: half maximum near 410 nm and 490 nm (from memory), i.e.
+#: Gaussian sigma 1970 cm^-1 on the blue side and 1420 cm^-1 on the red side.
 BILIRUBIN_PEAK_PER_CM_PER_MOLAR = 5.5e4
-BILIRUBIN_BANDS = ((453.0, 1.0, 2000.0),)
+BILIRUBIN_BANDS = ((453.0, 1.0, 1970.0, 1420.0),)
 MOLAR_MODEL_RANGE_NM = (250.0, 1700.0)
 
 
 def _gauss_bands(wl_nm, bands):
     nu = 1.0e7 / wl_nm
     out = np.zeros_like(wl_nm, dtype=np.float64)
-    for centre, height, sigma in bands:
-        out += height * np.exp(-0.5 * ((nu - 1.0e7 / centre) / sigma) ** 2)
+    for centre, height, sigma_blue, sigma_red in bands:
+        d = nu - 1.0e7 / centre  # > 0 on the blue (short-wavelength) side
+        sigma = np.where(d > 0, sigma_blue, sigma_red)
+        out += height * np.exp(-0.5 * (d / sigma) ** 2)
     return out
 
 
@@ -405,7 +409,8 @@ def extinction_carotene(bands: BandSet) -> np.ndarray:
 def extinction_bilirubin(bands: BandSet) -> np.ndarray:
     """Band-averaged molar extinction of bilirubin, approximate one-band model.
 
-    One Gaussian band in wavenumber at 453 nm scaled to 5.5e4 cm^-1/M (PhotochemCAD1998; width from memory).
+    One asymmetric Gaussian band in wavenumber at 453 nm scaled to 5.5e4 cm^-1/M (PhotochemCAD1998; widths from
+    memory, :data:`BILIRUBIN_BANDS`).
 
     Returns
     -------
