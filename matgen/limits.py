@@ -356,11 +356,19 @@ def read_text_limited(path, what: str = "input file") -> str:
     """
     ceiling = get_limit("text_bytes")
     check_file_size(path, what, text=True)
+    chunks, total = [], 0
     try:
         with open(path, "rb") as fh:
-            data = fh.read(ceiling + 1)  # the file may grow between stat and read
+            # in chunks: read(n) would reserve n bytes up front, and the file may grow between stat and read
+            while total <= ceiling:
+                block = fh.read(min(1 << 20, ceiling + 1 - total))
+                if not block:
+                    break
+                chunks.append(block)
+                total += len(block)
     except OSError as exc:
         raise ConfigError(f"cannot read {what} '{path}': {exc.strerror or exc}") from None
+    data = b"".join(chunks)
     if len(data) > ceiling:
         _exceeds("text_bytes", len(data), f"the size of {what} '{path}'")
     try:

@@ -145,3 +145,26 @@ def test_check_image_dims_accepts_exactly_the_dims_within_every_ceiling(w, h, c)
     else:
         with pytest.raises(MatgenError):
             limits.check_image_dims(w, h, c)
+
+
+def test_reading_a_small_text_file_does_not_reserve_the_ceiling(tmp_path):
+    """read(ceiling + 1) once reserved 64 MiB per config read; the reader must allocate in proportion to the file."""
+    import tracemalloc
+
+    p = tmp_path / "small.toml"
+    p.write_text("a = 1\n")
+    tracemalloc.start()
+    try:
+        limits.read_text_limited(p, "config")
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak < 4 << 20, f"{peak} bytes allocated to read a 6-byte file"
+
+
+def test_text_file_grown_past_the_ceiling_is_refused(tmp_path):
+    p = tmp_path / "big.toml"
+    p.write_bytes(b"#" * (3 << 20))
+    with limits.override(text_bytes=(2 << 20) + 5):
+        with pytest.raises(LimitError):
+            limits.read_text_limited(p, "config")
