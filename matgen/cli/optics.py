@@ -19,7 +19,7 @@ import tempfile
 
 from matgen.cli import add_command
 from matgen.errors import ParameterError, PathError
-from matgen.spectra.bands import BandSet, default_bands
+from matgen.spectra.bands import BandSet
 from matgen.tissue.optics import SkinOptics, skin_optics
 from matgen.tissue.packaging import PACKAGING_MODES
 from matgen.tissue.parameters import FIELD_SPECS, SkinParameters
@@ -170,7 +170,7 @@ def _write_atomic(path: str, data: bytes):
 
 def run(args) -> int:
     params = parameters_from_args(args)
-    bands = BandSet.parse(args.wavelengths) if args.wavelengths else default_bands()
+    bands = BandSet.parse(args.wavelengths)  # an empty spec is an error, never a silent default
     optics = skin_optics(params, bands, packaging=args.packaging)
     for arr, what in ((optics.mu_a, "mu_a"), (optics.mu_s, "mu_s")):
         if not all(math.isfinite(v) for v in arr.ravel()):

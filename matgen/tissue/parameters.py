@@ -182,7 +182,7 @@ class SkinParameters:
     def __post_init__(self):
         for name, spec in FIELD_SPECS.items():
             raw = getattr(self, name)
-            if isinstance(raw, bool):
+            if isinstance(raw, (bool, str, bytes)):
                 raise ParameterError(f"{name} is {raw!r}; must be a number ({spec.unit})")
             try:
                 value = float(raw)
