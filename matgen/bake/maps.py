@@ -19,7 +19,7 @@ import OpenImageIO as oiio
 
 from matgen.bake.config import UDIM_TOKEN
 from matgen.errors import ColourSpaceWarning, ImageError
-from matgen.limits import check_image_dims
+from matgen.limits import check_count, check_image_dims
 
 
 def udim_of(u: int, v: int) -> int:
@@ -90,6 +90,7 @@ def map_info(path, tile=None, *, channel: int = 0, what: str = "map") -> MapInfo
     finally:
         inp.close()
     check_image_dims(info.width, info.height, 1, path=_where(path, tile))
+    check_count(info.nchannels, "image_channels", f"the channel count of {what} {_where(path, tile)}")
     if channel >= info.nchannels:
         raise ImageError(f"{what} {_where(path, tile)} has {info.nchannels} channel(s); the config reads channel "
                          f"{channel} (channels count from 0)")
