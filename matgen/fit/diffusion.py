@@ -8,7 +8,7 @@ tallies, each ring weighted by 1 / stderr^2. The search runs on log d for all pr
 log grid brackets the minimum, then golden-section search narrows it to a relative width of 1e-12.
 
 ``fit_residual`` is the relative weighted RMS misfit
-sqrt(sum w (model - data)^2 / sum w data^2) with w = 1 / stderr^2 (0 = perfect; independent of the photon
+sqrt(sum ((model - data) / stderr)^2 / sum (data / stderr)^2) (0 = perfect; independent of the photon
 count for a model error, unlike chi-square), and ``chi2_reduced`` the reduced chi-square.
 """
 
@@ -87,25 +87,63 @@ def validate_profiles(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multi
 
 
 def ring_weights(radial_per_mm2, radial_stderr):
-    """Weights 1 / stderr^2 of each ring; rings with zero error carry weight 0 (no photon reached them).
+    """Inverse standard errors 1 / stderr of each ring (the square root of the fit weight).
 
-    Raises :class:`FitError` if a profile has fewer than two weighted rings.
+    Rings with zero error carry weight 0 (no photon reached them); values are capped at 1e150 so that the
+    weighted residuals (model - data) / stderr stay finite. Raises :class:`FitError` if a profile has fewer
+    than two rings with a nonzero error.
     """
     s = np.asarray(radial_stderr, dtype=np.float64)
-    # relative weights (s_min / s)^2 per profile: same minimiser as 1 / s^2, free of overflow
-    s_pos = np.where(s > 0, s, np.inf)
-    s_min = np.min(s_pos, axis=-1, keepdims=True)
-    s_min = np.where(np.isfinite(s_min), s_min, 1.0)
-    w = np.where(s > 0, (s_min / np.where(s > 0, s, 1.0)) ** 2, 0.0)
+    with np.errstate(divide="ignore", over="ignore"):
+        inv = np.where(s > 0, np.minimum(1.0 / np.where(s > 0, s, 1.0), 1e150), 0.0)
     few = np.count_nonzero(s > 0, axis=-1) < 2
     if few.any():
         i = int(np.argmax(few.reshape(-1)))
         raise FitError(f"profile {i} has fewer than 2 rings with a nonzero standard error; cannot fit a shape")
-    return w
+    return inv
 
 
-def _weighted_misfit(model, y, w):
-    return np.sum(w * (model - y) ** 2, axis=-1)
+def _weighted_misfit(model, y, inv):
+    return np.sum(((model - y) * inv) ** 2, axis=-1)
+
+
+def golden_log_search(cost, grid, n):
+    """Minimise ``cost(x)`` (x, cost: shape (n,)) for n independent problems on a shared 1-D grid.
+
+    A coarse pass over ``grid`` brackets each minimum between the neighbours of the best node, then
+    golden-section search (one new evaluation per step, :data:`_GOLDEN_ITERATIONS` steps) narrows it.
+
+    Returns
+    -------
+    tuple
+        ``(x_min (n,), at_edge (n,) bool)``; ``at_edge`` marks minima found at the grid's ends (the true
+        minimum may lie outside the searched range).
+    """
+    costs = np.empty((n, grid.size))
+    for k, g in enumerate(grid):
+        costs[:, k] = cost(np.full(n, g))
+    best = np.argmin(costs, axis=1)
+    left = grid[np.clip(best - 1, 0, grid.size - 1)]
+    right = grid[np.clip(best + 1, 0, grid.size - 1)]
+    at_edge = (best == 0) | (best == grid.size - 1)
+    invphi = (np.sqrt(5.0) - 1.0) / 2.0
+    x1 = right - invphi * (right - left)
+    x2 = left + invphi * (right - left)
+    f1 = cost(x1)
+    f2 = cost(x2)
+    for _ in range(_GOLDEN_ITERATIONS):
+        go_left = f1 < f2  # minimum in [left, x2]
+        right = np.where(go_left, x2, right)
+        left = np.where(go_left, left, x1)
+        x_new = np.where(go_left, right - invphi * (right - left), left + invphi * (right - left))
+        f_new = cost(x_new)
+        x2, f2, x1, f1 = (
+            np.where(go_left, x1, x_new),
+            np.where(go_left, f1, f_new),
+            np.where(go_left, x_new, x2),
+            np.where(go_left, f_new, f2),
+        )
+    return 0.5 * (left + right), at_edge
 
 
 def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, *, conserve_albedo=True):
@@ -129,8 +167,8 @@ def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple
     -------
     dict of ndarray, each shape (N,)
         ``shape_distance_mm`` (d), ``albedo_multiple`` (A used or fitted), ``fit_residual`` (relative weighted
-        RMS misfit), ``chi2_reduced`` (chi-square per degree of freedom), ``scaling_mm_per_mm`` is not given
-        here: the mean free path needs a scaling factor (see :mod:`matgen.fit.inversion`).
+        RMS misfit), ``chi2_reduced`` (chi-square per degree of freedom), ``at_search_edge`` (bool: the
+        minimum lay at an end of the searched d range, 1e-2 x the first ring edge to 1e2 x the last).
 
     Raises
     ------
@@ -156,48 +194,22 @@ def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple
         if conserve_albedo:
             amp = a
         else:
-            num = np.sum(w * unit * y, axis=-1)
-            den = np.sum(w * unit * unit, axis=-1)
+            num = np.sum((unit * w) * (y * w), axis=-1)
+            den = np.sum((unit * w) ** 2, axis=-1)
             amp = np.where(den > 0, num / np.where(den > 0, den, 1.0), 0.0)
         return _weighted_misfit(amp[:, None] * unit, y, w), amp
 
-    costs = np.empty((n, _GRID_POINTS))
-    for k, g in enumerate(grid):
-        costs[:, k], _ = misfit(np.full(n, g))
-    best = np.argmin(costs, axis=1)
-    left = grid[np.clip(best - 1, 0, _GRID_POINTS - 1)]
-    right = grid[np.clip(best + 1, 0, _GRID_POINTS - 1)]
-    at_edge = (best == 0) | (best == _GRID_POINTS - 1)
-    # golden-section search in [left, right], one new evaluation per step
-    invphi = (np.sqrt(5.0) - 1.0) / 2.0
-    x1 = right - invphi * (right - left)
-    x2 = left + invphi * (right - left)
-    f1, _ = misfit(x1)
-    f2, _ = misfit(x2)
-    for _ in range(_GOLDEN_ITERATIONS):
-        go_left = f1 < f2  # minimum in [left, x2]
-        right = np.where(go_left, x2, right)
-        left = np.where(go_left, left, x1)
-        x_new = np.where(go_left, right - invphi * (right - left), left + invphi * (right - left))
-        f_new, _ = misfit(x_new)
-        x2, f2, x1, f1 = (
-            np.where(go_left, x1, x_new),
-            np.where(go_left, f1, f_new),
-            np.where(go_left, x_new, x2),
-            np.where(go_left, f_new, f2),
-        )
-    log_d = 0.5 * (left + right)
+    log_d, at_edge = golden_log_search(lambda x: misfit(x)[0], grid, n)
     cost, amp = misfit(log_d)
     d = np.exp(log_d)
-    norm = np.sum(w * y * y, axis=-1)
+    norm = np.sum((y * w) ** 2, axis=-1)
     residual = np.sqrt(cost / norm)
     dof = np.maximum(np.count_nonzero(s > 0, axis=-1) - (1 if conserve_albedo else 2), 1)
-    s_min = np.min(np.where(s > 0, s, np.inf), axis=-1)
     out = {
         "shape_distance_mm": d,
         "albedo_multiple": amp.copy(),
         "fit_residual": residual,
-        "chi2_reduced": cost / (s_min**2 * dof),
+        "chi2_reduced": cost / dof,
         "at_search_edge": at_edge,
     }
     return out

@@ -63,7 +63,7 @@ def summarize(bands, ring_edges_mm, albedo_multiple, albedo_multiple_stderr, rad
         Total diffuse reflectance A per band and its standard error.
     radial_per_mm2, radial_stderr : ndarray, shape (N, B, R)
         Radial profiles and standard errors in mm^-2.
-    g : ndarray, shape (N, B) or (B,)
+    g : ndarray, shape (N, B) or (B,), or float
         Anisotropy given to the effective medium per band.
     n : float
         Refractive index of the effective medium's boundary (air outside).
@@ -104,8 +104,8 @@ def summarize(bands, ring_edges_mm, albedo_multiple, albedo_multiple_stderr, rad
     if y.shape[:2] != (nset, nb) or y.ndim != 3:
         raise FitError(f"radial_per_mm2 has shape {y.shape}; expected ({nset}, {nb}, R)")
     gg = np.asarray(g, dtype=np.float64)
-    if gg.shape not in ((nb,), (nset, nb)):
-        raise FitError(f"g has shape {gg.shape}; expected ({nb},) or ({nset}, {nb})")
+    if gg.shape not in ((), (nb,), (nset, nb)):
+        raise FitError(f"g has shape {gg.shape}; expected a scalar, ({nb},) or ({nset}, {nb})")
     gg = np.broadcast_to(gg, (nset, nb))
     try:
         n_val = float(n)

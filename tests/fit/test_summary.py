@@ -1,0 +1,114 @@
+"""summarize(): the fixed table quantities from band tallies, on synthetic normalised-diffusion profiles."""
+
+import json
+
+import numpy as np
+import pytest
+
+from matgen.cli import main
+from matgen.errors import FitError, ParameterError
+from matgen.fit.channels import channel_profiles
+from matgen.fit.diffusion import fit_burley2015
+from matgen.fit.models import burley2015_rings
+from matgen.fit.summary import TABLE_QUANTITIES, summarize
+from matgen.color import channel_weights
+from matgen.spectra.bands import BandSet
+from matgen.transport.results import Estimate, TransportResult
+
+EDGES = np.concatenate(([0.0], np.logspace(-3.0, 2.0, 51)))
+BANDS = BandSet.regular(380.0, 780.0, 20.0)
+
+
+def _inputs(n=3, seed=0):
+    rng = np.random.default_rng(seed)
+    nb = len(BANDS)
+    a = np.clip(0.1 + 0.5 * (BANDS.centre_nm - 380) / 400 + 0.05 * rng.standard_normal((n, nb)), 0.05, 0.9)
+    d = 0.05 + 1.5 * ((BANDS.centre_nm - 380) / 400) ** 2 * rng.uniform(0.8, 1.2, (n, 1))
+    y = burley2015_rings(EDGES, a, d)
+    s = 0.01 * y
+    return a, 1e-3 * a, y, s, d
+
+
+def test_keys_shapes_and_band_values():
+    a, a_err, y, s, d = _inputs()
+    q = summarize(BANDS, EDGES, a, a_err, y, s, np.full(len(BANDS), 0.8), 1.4, inversion="OpenPBR2024")
+    assert set(q) == set(TABLE_QUANTITIES)
+    for k, c in TABLE_QUANTITIES.items():
+        assert q[k].shape == (3, len(BANDS) if c == "B" else c), k
+    np.testing.assert_allclose(q["shape_distance_mm"], d, rtol=1e-6)
+    np.testing.assert_allclose(q["albedo_multiple"], a)
+    assert np.all(q["fit_residual"] < 1e-6)
+    assert np.all(q["ior"] == 1.4)
+    assert np.all((q["albedo_single"] > 0) & (q["albedo_single"] < 1))
+
+
+def test_rgb_from_spectral_A_and_channel_profile_fit():
+    """RGB colour = ACEScg weights @ spectral A; RGB radius = fit of the channel-weighted profile (not an
+    average of band radii): checked by refitting the weighted profile independently."""
+    a, a_err, y, s, _ = _inputs(n=2, seed=4)
+    q = summarize(BANDS, EDGES, a, a_err, y, s, 0.0, 1.0, inversion="ChiangKutzBurley2016")
+    w = channel_weights(BANDS, "ACEScg", "D65")
+    np.testing.assert_allclose(q["rgb_albedo_multiple"], a @ w.T, rtol=1e-12)
+    prof, err, _ = channel_profiles(w, y, s)
+    ref = fit_burley2015(EDGES, prof.reshape(6, -1), err.reshape(6, -1), (a @ w.T).reshape(-1))
+    np.testing.assert_allclose(q["rgb_shape_distance_mm"].reshape(-1), ref["shape_distance_mm"], rtol=1e-9)
+    band_mean = (q["shape_distance_mm"] @ np.abs(w.T)) / np.abs(w).sum(axis=1)
+    assert not np.allclose(q["rgb_shape_distance_mm"], band_mean, rtol=1e-3)
+
+
+def test_bad_inputs():
+    a, a_err, y, s, _ = _inputs(n=1)
+    g = np.zeros(len(BANDS))
+    with pytest.raises(FitError, match="albedo_multiple"):
+        summarize(BANDS, EDGES, a[:, :-1], a_err, y, s, g, 1.4)
+    with pytest.raises(ParameterError, match="working space"):
+        summarize(BANDS, EDGES, a, a_err, y, s, g, 1.4, working_space="nope", inversion="OpenPBR2024")
+    with pytest.raises(ParameterError, match="illuminant"):
+        summarize(BANDS, EDGES, a, a_err, y, s, g, 1.4, illuminant="nope", inversion="OpenPBR2024")
+    bad = y.copy()
+    bad[0, 2, 5] = np.nan
+    with pytest.raises(FitError, match="finite"):
+        summarize(BANDS, EDGES, a, a_err, bad, s, g, 1.4, inversion="OpenPBR2024")
+
+
+def _result_dict(a, y, s):
+    return TransportResult(
+        photons=100000, specular_reflectance=Estimate(0.028, 0.0), diffuse_reflectance=Estimate(float(a), 1e-3),
+        transmittance=Estimate(0.0, 0.0), absorbed=np.zeros(1), absorbed_stderr=np.zeros(1), ring_edges_mm=EDGES,
+        radial_reflectance_per_mm2=y, radial_stderr_per_mm2=s, exit_cos_edges=np.linspace(0, 1, 3),
+        exit_angle_per_sr=np.zeros(2), exit_angle_stderr_per_sr=np.zeros(2),
+        mean_penetration_depth_mm=Estimate(0.0, 0.0),
+    ).to_dict()
+
+
+def test_cli_fit_per_band_json(tmp_path, capsys):
+    a, _, y, s, d = _inputs(n=1, seed=2)
+    doc = {"bands": BANDS.to_dict(), "results": [_result_dict(a[0, b], y[0, b], s[0, b]) for b in range(len(BANDS))]}
+    path = tmp_path / "result.json"
+    path.write_text(json.dumps(doc))
+    rc = main(["fit", str(path), "--json", "--inversion", "OpenPBR2024", "--anisotropy", "0.8", "--ior", "1.4"])
+    assert rc == 0
+    out = json.loads(capsys.readouterr().out)
+    assert len(out["bands"]) == len(BANDS)
+    np.testing.assert_allclose([e["shape_distance_mm"] for e in out["bands"]], d[0], rtol=1e-6)
+    assert set(out["targets"]) == {"openpbr", "standard_surface", "spectral_medium", "reflectance_mfp"}
+    assert len(out["targets"]["openpbr"]["subsurface_color"]) == 3
+    assert "fit_residual" in out["targets"]["openpbr"]
+
+
+def test_cli_fit_single_band_text_and_errors(tmp_path, capsys):
+    a, _, y, s, _ = _inputs(n=1)
+    path = tmp_path / "one.json"
+    path.write_text(json.dumps(_result_dict(a[0, 3], y[0, 3], s[0, 3])))
+    assert main(["fit", str(path), "--inversion", "OpenPBR2024"]) == 0
+    text = capsys.readouterr().out
+    assert "target spectral_medium" in text and "target openpbr" not in text
+    bad = tmp_path / "bad.json"
+    bad.write_text("{not json")
+    assert main(["fit", str(bad)]) == 2
+    assert "not JSON" in capsys.readouterr().err
+    noprof = _result_dict(a[0, 3], y[0, 3], s[0, 3])
+    del noprof["profile"]
+    bad.write_text(json.dumps(noprof))
+    assert main(["fit", str(bad)]) == 2
+    assert "no radial profile" in capsys.readouterr().err

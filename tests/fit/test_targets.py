@@ -1,0 +1,80 @@
+"""Targets: each round trip (medium -> inputs -> the consumer's documented remap -> medium) within 1 %."""
+
+import warnings
+
+import numpy as np
+import pytest
+
+from matgen.errors import ClampWarning, ParameterError
+from matgen.fit.targets import TARGETS, EffectiveMedium, get_target
+
+RGB = EffectiveMedium(
+    albedo_single=np.array([0.995, 0.97, 0.93]),
+    mean_free_path_mm=np.array([0.9, 0.35, 0.2]),
+    anisotropy=np.full(3, 0.8),
+    ior=1.4,
+    albedo_multiple=np.array([0.62, 0.41, 0.30]),
+)
+BANDS = EffectiveMedium(
+    albedo_single=np.linspace(0.8, 0.999, 8),
+    mean_free_path_mm=np.linspace(0.05, 2.0, 8),
+    anisotropy=np.linspace(0.7, 0.9, 8),
+    ior=1.4,
+)
+
+
+def _close(a, b):
+    np.testing.assert_allclose(a.albedo_single, b.albedo_single, rtol=1e-2)
+    np.testing.assert_allclose(a.mean_free_path_mm, b.mean_free_path_mm, rtol=1e-2)
+    np.testing.assert_allclose(a.anisotropy, b.anisotropy, rtol=1e-2, atol=1e-9)
+    assert a.ior == pytest.approx(b.ior)
+
+
+@pytest.mark.parametrize("scale", [0.01, 1.0, 0.001])
+@pytest.mark.parametrize("name, medium", [("openpbr", RGB), ("standard_surface", RGB), ("spectral_medium", BANDS)])
+def test_round_trip(name, medium, scale):
+    """OpenPBR v0.4 remap (mfp = radius * radius_scale, mu_t = 1/r, van de Hulst inversion); Standard Surface
+    as carried by MaterialX 1.39 (radius * scale); raw spectral medium (albedo = sigma_s / sigma_t)."""
+    t = get_target(name)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", ClampWarning)
+        inputs = t.to_inputs(medium, metres_per_scene_unit=scale)
+    _close(t.from_inputs(inputs, metres_per_scene_unit=scale), medium)
+
+
+def test_reflectance_mfp_round_trip_with_closed_form():
+    t = TARGETS["reflectance_mfp"]
+    inputs = t.to_inputs(BANDS, metres_per_scene_unit=0.01, inversion="OpenPBR2024")
+    _close(t.from_inputs(inputs, metres_per_scene_unit=0.01), BANDS)
+
+
+def test_openpbr_convention_values():
+    """Largest channel mfp as subsurface_radius, ratios as radius_scale (in [0, 1]); centimetre scene."""
+    inputs = TARGETS["openpbr"].to_inputs(RGB, metres_per_scene_unit=0.01)
+    assert inputs["subsurface_radius"] == pytest.approx(0.09)  # 0.9 mm = 0.09 cm
+    np.testing.assert_allclose(inputs["subsurface_radius_scale"], [1.0, 0.35 / 0.9, 0.2 / 0.9])
+    assert inputs["subsurface_scatter_anisotropy"] == pytest.approx(0.8)
+
+
+def test_openpbr_observed_convention_is_documented_colour():
+    """'observed': C = E_ms / (1 - E_spec), with E_spec = ((n-1)/(n+1))^2 (Fresnel at normal incidence)."""
+    inputs = TARGETS["openpbr"].to_inputs(RGB, metres_per_scene_unit=0.01, albedo_convention="observed")
+    np.testing.assert_allclose(inputs["subsurface_color"], RGB.albedo_multiple / (1 - (0.4 / 2.4) ** 2))
+
+
+def test_clamp_warning_names_consumer():
+    """Channel anisotropies differ: OpenPBR takes one scalar; the warning names OpenPBR Surface."""
+    m = EffectiveMedium(RGB.albedo_single, RGB.mean_free_path_mm, np.array([0.7, 0.8, 0.9]), 1.4)
+    with pytest.warns(ClampWarning, match="OpenPBR Surface"):
+        TARGETS["openpbr"].to_inputs(m, metres_per_scene_unit=0.01)
+    with pytest.warns(ClampWarning, match="OpenPBR Surface.*minimum"):
+        TARGETS["openpbr"].to_inputs(RGB, metres_per_scene_unit=0.01, min_radius_scene=1.0)
+
+
+def test_bad_scale_and_name():
+    with pytest.raises(ParameterError, match="metres_per_scene_unit"):
+        TARGETS["openpbr"].to_inputs(RGB, metres_per_scene_unit=0.0)
+    with pytest.raises(ParameterError, match="openpbr"):
+        get_target("nope")
+    with pytest.raises(ParameterError, match="3 RGB"):
+        TARGETS["openpbr"].to_inputs(BANDS, metres_per_scene_unit=0.01)
