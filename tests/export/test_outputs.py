@@ -1,0 +1,191 @@
+"""EXR layout, descriptor schema and checksums, MaterialX validation, passes and the dry run.
+
+Outside references: the spectral OpenEXR layout of Fichet, Pacanowski & Wilkie 2021 (JCGT 10(3)) as read by
+colour-science 0.4.7's independent reader ``colour.io.read_spectral_image_Fichet2021``; OpenImageIO 3.2 for
+reading headers back; MaterialX 1.39.5's ``Document.validate()`` with its standard data libraries; jsonschema
+(draft 2020-12) for the descriptor schema. The table is test data (see tests/bake/conftest.py).
+"""
+
+import json
+import shutil
+
+import colour
+import jsonschema
+import numpy as np
+import OpenImageIO as oiio
+import pytest
+
+from matgen.bake.config import load_config
+from matgen.cli import main
+from matgen.errors import ConfigError, DataError, PathError
+from matgen.export.descriptor import descriptor_schema, inspect_descriptor, validate_descriptor
+from matgen.export.exr import read_exr, write_exr
+from matgen.export.job import bake
+from matgen.export.materialx import openpbr_document, validate_file
+from matgen.tables.store import Table
+
+PASSES_EXTRA = 'passes = ["uv365", "nir850"]\n'
+
+
+@pytest.fixture(scope="module")
+def baked(tmp_path_factory, kit):
+    root = tmp_path_factory.mktemp("baked")
+    cfg = kit.make_project(root / "p", 12, 10, pixel_type="float")
+    cfg.write_text(cfg.read_text().replace("passes = []", PASSES_EXTRA.strip()))
+    out = root / "out"
+    res = bake(load_config(cfg), out)
+    return root, out, res
+
+
+def test_spectral_exr_layout_read_by_colour_science(baked):
+    """colour-science 0.4.7 read_spectral_image_Fichet2021 finds the reflective component 'T' and its bands."""
+    _, out, _ = baked
+    path = out / "spectral" / "albedo_multiple.exr"
+    components, spec = colour.io.read_spectral_image_Fichet2021(str(path), additional_data=True)
+    assert set(components) == {"T"}
+    wl, values = components["T"]
+    assert sorted(wl.tolist()) == [400.0, 450.0, 500.0, 550.0, 600.0, 650.0, 700.0]
+    attrs = {a.name: a.value for a in spec.attributes}
+    assert attrs["spectralLayoutVersion"] == "1.0"
+    assert attrs["matgen:quantity"] == "albedo_multiple" and attrs["matgen:unit"] == "1"
+    pix, chans, _ = read_exr(path)
+    i550 = list(wl).index(550.0)
+    np.testing.assert_array_equal(values[..., i550], pix[..., chans.index("T.550,000000nm")])
+
+
+def test_exr_round_trip_header_and_compression(tmp_path):
+    pix = np.random.default_rng(0).uniform(0, 1, (5, 7, 2)).astype(np.float32)
+    write_exr(tmp_path / "a.exr", pix, ("T.400,000000nm", "T.410,000000nm"), pixel_type="float",
+              compression="piz", attributes={"spectralLayoutVersion": "1.0"})
+    back, chans, attrs = read_exr(tmp_path / "a.exr")
+    np.testing.assert_array_equal(back, pix)
+    assert attrs["compression"] == "piz" and attrs["spectralLayoutVersion"] == "1.0"
+    inp = oiio.ImageInput.open(str(tmp_path / "a.exr"))
+    assert inp.spec().format == oiio.FLOAT
+    inp.close()
+    with pytest.raises(Exception, match="lossless"):
+        write_exr(tmp_path / "b.exr", pix, ("a", "b"), compression="dwaa")
+
+
+def test_textures_mipmapped_on_request(tmp_path, kit):
+    cfg = kit.make_project(tmp_path / "p", 32, 32)
+    cfg.write_text(cfg.read_text().replace('pixel_type = "float"', 'pixel_type = "half"\ntexture = true'))
+    res = bake(load_config(cfg), tmp_path / "out")
+    inp = oiio.ImageInput.open(str(tmp_path / "out" / "rgb" / "albedo_multiple.exr"))
+    spec = inp.spec()
+    levels = 0
+    while inp.seek_subimage(0, levels):
+        levels += 1
+    inp.close()
+    assert spec.tile_width == 64 and levels == 6  # 32, 16, 8, 4, 2, 1
+    assert all(t["tiled_mipmapped"] for t in json.loads(res.descriptor.read_text())["textures"])
+
+
+def test_descriptor_validates_and_paths_are_relative_with_checksums(baked):
+    _, out, res = baked
+    doc = json.loads((out / "material.json").read_text())
+    jsonschema.Draft202012Validator(descriptor_schema()).validate(doc)
+    assert doc["units"]["metres_per_scene_unit"] == 0.01
+    assert sorted(t["path"] for t in doc["textures"]) == sorted(f for f in res.files if f.endswith(".exr"))
+    for t in doc["textures"]:
+        assert not t["path"].startswith("/") and ".." not in t["path"]
+        assert (out / t["path"]).is_file()
+    assert doc["documents"]["materialx"]["path"] == "material.mtlx"
+    assert doc["provenance"]["table_sha256"] == json.loads((baked[0] / "p" / "table.json").read_text())["npz_sha256"]
+    bad = json.loads(json.dumps(doc))
+    bad["textures"][0]["path"] = "../elsewhere.exr"
+    with pytest.raises(ConfigError, match="textures.0.path"):
+        validate_descriptor(bad)
+    bad["textures"][0]["path"] = "/abs/elsewhere.exr"
+    with pytest.raises((ConfigError, PathError)):
+        validate_descriptor(bad)
+
+
+def test_inspect_detects_modified_and_missing_texture(baked, tmp_path, capsys):
+    _, out, _ = baked
+    copy = tmp_path / "copy"
+    shutil.copytree(out, copy)
+    assert main(["inspect", str(copy / "material.json")]) == 0
+    assert "OK" in capsys.readouterr().out
+    target = copy / "rgb" / "albedo_multiple.exr"
+    pix, chans, _ = read_exr(target)
+    pix[0, 0, 0] += 0.25
+    write_exr(target, pix, chans, pixel_type="float")
+    rep = inspect_descriptor(copy / "material.json")
+    assert rep.modified == ["rgb/albedo_multiple.exr"] and not rep.missing
+    (copy / "qa" / "qa.exr").unlink()
+    assert main(["inspect", str(copy / "material.json")]) == 1
+    text = capsys.readouterr().out
+    assert "MODIFIED rgb/albedo_multiple.exr" in text and "MISSING  qa/qa.exr" in text
+
+
+def test_materialx_document_passes_materialx_validation(baked):
+    _, out, _ = baked
+    ok, msg = validate_file(out / "material.mtlx")
+    assert ok, msg
+    text = (out / "material.mtlx").read_text()
+    for name in ("subsurface_color", "subsurface_radius", "subsurface_radius_scale",
+                 "subsurface_scatter_anisotropy", "specular_ior", "open_pbr_surface"):
+        assert name in text
+    assert 'value="openpbr/subsurface_color.exr"' in text and 'colorspace="acescg"' in text
+
+
+def test_materialx_validation_catches_a_misspelt_input():
+    with pytest.raises(DataError, match="subsurface_colour"):
+        openpbr_document("m", {"subsurface_colour": {"value": 1.0}}, "ACEScg")
+
+
+def test_pass_maps_are_response_weighted_albedo(baked):
+    """A pass texel is w @ A over all table bands, with w from matgen.color.pass_weights (sum 1)."""
+    root, out, _ = baked
+    table = Table.load(root / "p" / "table.npz")
+    doc = json.loads((out / "material.json").read_text())
+    w = np.array(doc["passes"]["uv365"]["weights"])
+    assert abs(w.sum() - 1) < 1e-12 and w.size == len(table.bands)
+    uv, chans, _ = read_exr(out / "passes" / "uv365.exr")
+    ir, _, _ = read_exr(out / "passes" / "nir850.exr")
+    assert chans == ("Y",)
+    from matgen.bake.run import plan_bake
+
+    plan = plan_bake(load_config(root / "p" / "material.toml"), table)
+    inp = oiio.ImageInput.open(str(root / "p" / "maps" / "melanin.exr"))
+    mel = inp.read_image(oiio.FLOAT)[..., 0].astype(np.float64)
+    inp.close()
+    inp = oiio.ImageInput.open(str(root / "p" / "maps" / "eumelanin.exr"))
+    eu = inp.read_image(oiio.FLOAT)[..., 0].astype(np.float64)
+    inp.close()
+    inp = oiio.ImageInput.open(str(root / "p" / "maps" / "blood.png"))
+    bl = inp.read_image(oiio.FLOAT)[..., 0].astype(np.float64)
+    inp.close()
+    pts = np.stack([0.005 + mel * 0.445, eu, 0.002 + bl * 0.098, np.full_like(mel, 0.75)], -1).reshape(-1, 4)
+    ref, _ = table.lookup(pts, ["albedo_multiple"])
+    np.testing.assert_allclose(uv.reshape(-1), ref["albedo_multiple"].astype(np.float64) @ w, rtol=1e-6)
+    w850 = np.array(doc["passes"]["nir850"]["weights"])
+    np.testing.assert_allclose(ir.reshape(-1), ref["albedo_multiple"].astype(np.float64) @ w850, rtol=1e-6)
+    assert plan.pass_weights.keys() == {"uv365", "nir850"}
+
+
+def test_dry_run_lists_files_and_writes_nothing(tmp_path, kit, capsys):
+    cfg = kit.make_project(tmp_path / "p", 8, 8, tiles=[1001, 1002])
+    out = tmp_path / "out"
+    assert main(["bake", str(cfg), "--out", str(out), "--dry-run"]) == 0
+    text = capsys.readouterr().out
+    assert "spectral/albedo_multiple.1002.exr" in text and "material.json" in text and "material.mtlx" in text
+    assert not out.exists()
+
+
+def test_srgb_tagged_png_warns_and_is_read_as_data(tmp_path, kit):
+    """PNG values are read as stored integer / 65535 (no sRGB decoding); OpenImageIO tags PNGs as sRGB."""
+    from matgen.bake.maps import MapReader, map_info
+    from matgen.errors import ColourSpaceWarning
+
+    vals = np.linspace(0, 1, 16, dtype=np.float32).reshape(4, 4)
+    kit.write_map(tmp_path / "m.png", vals, oiio.UINT16)
+    with pytest.warns(ColourSpaceWarning, match="m.png"):
+        r = MapReader(map_info(tmp_path / "m.png"), 0)
+    with r:
+        got = r.read_rows(0, 4)
+    np.testing.assert_allclose(got, np.round(vals * 65535) / 65535, atol=1e-7)
+    kit.write_map(tmp_path / "m8.png", vals, oiio.UINT8)
+    with pytest.warns(ColourSpaceWarning), MapReader(map_info(tmp_path / "m8.png"), 0) as r8:
+        np.testing.assert_allclose(r8.read_rows(0, 4), np.round(vals * 255) / 255, atol=1e-7)
