@@ -97,6 +97,7 @@ class TracerLayer:
         Henyey-Greenstein anisotropy.
     n : float
         Refractive index.
+
     """
 
     thickness_mm: float
@@ -174,6 +175,7 @@ def stack_interfaces(layers, n_above: float, n_below: float, half_width_mm: floa
     -------
     dict
         Scene entries ``interface_<i>`` (i = 0 at the top).
+
     """
     mi = mitsuba()
     T = mi.ScalarTransform4f
@@ -223,6 +225,7 @@ def reflectance_scene(layers, n_above, n_below, lower_nm, upper_nm, *, paths_per
         Scattering events before Russian roulette starts.
     empty : bool
         Leave the stack and the black floor out (the camera then sees only the sky; a calibration check).
+
     """
     mi = mitsuba()
     T = mi.ScalarTransform4f
@@ -287,6 +290,7 @@ def render_reflectance(layers, n_above, n_below, lower_nm, upper_nm, *, paths=26
     -------
     Estimate
         Band-averaged total reflectance (dimensionless) and its standard error from the pixel spread.
+
     """
     if resolution < 8:
         raise ParameterError(f"resolution {resolution} px is too small for a noise estimate; use >= 8")

@@ -33,10 +33,16 @@ import math
 import time
 from dataclasses import dataclass, field
 
-import numpy as np
-
 from matgen.errors import DependencyError, MatgenError
 from matgen.preview import tracer
+from matgen.preview.media import (
+    ExportedMedium,
+    base_skin,
+    deep_depth_mfp,
+    exported_medium,
+    skin_runs,
+    skin_summary,
+)
 from matgen.spectra.bands import BandSet
 from matgen.transport.results import Estimate
 from matgen.transport.stack import Stack
@@ -50,9 +56,8 @@ ALLOWANCE_COLLAPSE = 0.02
 #: Number of combined standard errors a difference may reach before the allowance.
 SIGMA_BOUND = 3.0
 
-#: Optical thickness of the slab cases and the deep-slab (half-space stand-in) cases, in mean free paths.
+#: Optical thickness of the slab cases in mean free paths (deep slabs: :func:`matgen.preview.media.deep_depth_mfp`).
 SLAB_DEPTH_MFP = 10.0
-DEEP_DEPTH_MFP = 40.0
 
 #: Band centres (nm) of each comparison, quick and full runs.
 HOMOGENEOUS_BANDS_NM = {"quick": (300.0, 450.0, 600.0, 800.0, 1000.0),
@@ -64,7 +69,9 @@ MELANIN_SETTINGS = (("light", 0.02), ("dark", 0.30))
 
 #: Paths per tracer render and photons per matgen run, quick and full.
 TRACER_PATHS = {"quick": 65_536, "full": 262_144}
-MATGEN_PHOTONS = {"quick": 200_000, "full": 1_000_000}
+LAYERED_TRACER_PATHS = {"quick": 32_768, "full": 131_072}
+COLLAPSE_TRACER_PATHS = {"quick": 16_384, "full": 65_536}
+MATGEN_PHOTONS = {"quick": 100_000, "full": 500_000}
 
 #: Media of the harness check against adding-doubling: (albedo, g, n, optical thickness, band centre nm).
 #: The band only selects the wavelengths the tracer samples (the media are grey); spreading the cases over
@@ -92,6 +99,7 @@ class Row:
         Stated allowance (absolute) added to ``SIGMA_BOUND`` combined standard errors.
     note : str
         Anything a reader needs (depth, transmittance).
+
     """
 
     label: str
@@ -103,7 +111,7 @@ class Row:
 
     @property
     def difference(self) -> float:
-        """tested minus reference."""
+        """Tested minus reference."""
         return self.tested.value - self.reference.value
 
     @property
@@ -153,6 +161,7 @@ class Comparison:
     rows : list of Row
     seconds : float
         Wall time spent.
+
     """
 
     name: str
@@ -246,6 +255,7 @@ def adding_doubling_reflectance(albedo: float, optical_thickness: float, g: floa
     -------
     float
         Total reflectance (dimensionless).
+
     """
     try:
         import iadpython
@@ -298,170 +308,43 @@ def _slab_stack(albedo, sigma_t_per_mm, g, n, thickness_mm) -> Stack:
                  n_above=1.0, n_below=1.0, names=("medium",))
 
 
-# --------------------------------------------------------------------------------------------------------------
-# exported effective medium
-
-
-@dataclass(frozen=True)
-class ExportedMedium:
-    """Per-band parameters of a homogeneous medium as a spectral path tracer receives them.
-
-    Attributes
-    ----------
-    bands : BandSet
-    albedo : ndarray (B,)
-        Single-scattering albedo.
-    sigma_t_per_mm : ndarray (B,)
-        Extinction coefficient in 1/mm.
-    g : ndarray (B,)
-        HG anisotropy.
-    ior : float
-        Boundary refractive index.
-    source : str
-        How the numbers were obtained.
-    """
-
-    bands: BandSet
-    albedo: np.ndarray
-    sigma_t_per_mm: np.ndarray
-    g: np.ndarray
-    ior: float
-    source: str
-
-
-def skin_summary(params, bands: BandSet, photons: int, seed: int = 0) -> dict:
-    """Table quantities of one skin parameter set over ``bands`` from matgen's own pipeline.
-
-    Transport per band (``matgen.transport.simulate``), then ``matgen.fit.summary.summarize``.
-
-    Returns
-    -------
-    dict
-        The summary (table quantities, arrays with a leading axis of length 1) plus ``results`` (list of
-        TransportResult per band) and ``stacks`` (list of Stack per band).
-    """
-    try:
-        from matgen.fit.summary import summarize
-        from matgen.tissue.optics import skin_optics
-        from matgen.transport.simulate import default_ring_edges_mm, simulate
-    except ImportError as exc:
-        raise DependencyError(f"the skin pipeline is not complete in this build ({exc})") from exc
-    optics = skin_optics(params, bands)
-    edges = default_ring_edges_mm()
-    stacks, results = [], []
-    for b in range(len(bands)):
-        stack = Stack(**optics.band(b))
-        stacks.append(stack)
-        results.append(simulate(stack, photons, seed=seed + b, ring_edges_mm=edges))
-    albedo = np.array([[r.diffuse_reflectance.value for r in results]])
-    albedo_se = np.array([[r.diffuse_reflectance.stderr for r in results]])
-    radial = np.array([[r.radial_reflectance_per_mm2 for r in results]])
-    radial_se = np.array([[r.radial_stderr_per_mm2 for r in results]])
-    g_top = np.asarray(optics.g)[0]
-    summary = summarize(bands, edges, albedo, albedo_se, radial, radial_se, g_top, float(np.asarray(optics.n)[0, 0]))
-    summary = dict(summary)
-    summary["results"] = results
-    summary["stacks"] = stacks
-    return summary
-
-
-def exported_medium(summary: dict, bands: BandSet, metres_per_scene_unit: float = 0.001) -> ExportedMedium:
-    """The raw spectral-medium target's inputs for a summary, read back into mm and 1/mm.
-
-    Goes through ``matgen.fit.targets.TARGETS["spectral_medium"].to_inputs`` so that what is validated is
-    what matgen exports, then converts scene units back to mm with ``metres_per_scene_unit``.
-    """
-    try:
-        from matgen.fit.targets import TARGETS
-    except ImportError as exc:
-        raise DependencyError(f"matgen's renderer targets are not available ({exc})") from exc
-    target = TARGETS["spectral_medium"]
-    quantities = {k: np.asarray(v)[0] for k, v in summary.items() if k not in ("results", "stacks")}
-    inputs = target.to_inputs(quantities, bands=bands, metres_per_scene_unit=metres_per_scene_unit)
-    return _medium_from_inputs(inputs, bands, metres_per_scene_unit)
-
-
-def _medium_from_inputs(inputs: dict, bands: BandSet, metres_per_scene_unit: float) -> ExportedMedium:
-    from matgen.units import scene_units_to_mm
-
-    albedo = np.asarray(inputs["albedo"], dtype=np.float64).reshape(-1)
-    sigma_t_scene = np.asarray(inputs["sigma_t"], dtype=np.float64).reshape(-1)
-    # sigma_t is per scene unit: per mm = per scene unit / (mm per scene unit)
-    sigma_t = sigma_t_scene / scene_units_to_mm(1.0, metres_per_scene_unit)
-    g = np.broadcast_to(np.asarray(inputs["g"], dtype=np.float64).reshape(-1), albedo.shape).copy()
-    ior = float(np.asarray(inputs["ior"], dtype=np.float64).reshape(-1)[0])
-    return ExportedMedium(bands, albedo, sigma_t, g, ior, "matgen.fit.targets spectral_medium")
-
-
-def medium_from_summary(summary: dict, bands: BandSet) -> ExportedMedium:
-    """The effective medium straight from the table quantities (albedo_single, 1 / mean_free_path_mm, anisotropy, ior).
-
-    Used where the renderer targets are not available; :func:`exported_medium` is preferred.
-    """
-    albedo = np.asarray(summary["albedo_single"], dtype=np.float64).reshape(-1)
-    mfp = np.asarray(summary["mean_free_path_mm"], dtype=np.float64).reshape(-1)
-    g = np.broadcast_to(np.asarray(summary["anisotropy"], dtype=np.float64).reshape(-1), albedo.shape).copy()
-    ior = float(np.asarray(summary["ior"], dtype=np.float64).reshape(-1)[0])
-    return ExportedMedium(bands, albedo, 1.0 / mfp, g, ior, "table quantities (albedo_single, mean_free_path_mm)")
-
-
-def skin_medium(params, bands: BandSet, photons: int, seed: int = 0) -> tuple[ExportedMedium, dict]:
-    """Effective medium matgen exports for a skin parameter set (spectral-medium target), and the summary."""
-    summary = skin_summary(params, bands, photons, seed)
-    try:
-        medium = exported_medium(summary, bands)
-    except DependencyError:
-        medium = medium_from_summary(summary, bands)
-    return medium, summary
-
 
 # --------------------------------------------------------------------------------------------------------------
 # 2. homogeneous slabs of the exported medium
 
 
-def deep_depth_mfp(albedo: float, g: float) -> float:
-    """Depth (mean free paths) of a deep slab standing in for a half-space: 40, or 10 diffusion lengths if more.
-
-    The diffusion length in mean free paths is 1 / sqrt(3 (1 - a)(1 - a g)) (diffusion theory, e.g.
-    [Farrell1992]); capped at 400 so that renders stay affordable. The transmittance matgen finds is printed.
-    """
-    mu_eff = math.sqrt(max(3.0 * (1.0 - albedo) * (1.0 - albedo * g), 1e-12))
-    return float(min(max(DEEP_DEPTH_MFP, 10.0 / mu_eff), 400.0))
-
-
-def homogeneous_comparison(medium: ExportedMedium, *, n_values=(1.0, None), quick: bool = True, seed: int = 0,
+def homogeneous_comparison(medium: ExportedMedium, *, n_values=(1.0, 1.4), quick: bool = True, seed: int = 0,
                            bands_nm=None, deep: bool = False) -> Comparison:
-    """matgen's transport against the path tracer for slabs of the exported medium, band by band.
+    """Matgen's transport against the path tracer for slabs of the exported medium, band by band.
 
     Parameters
     ----------
     medium : ExportedMedium
         Per-band albedo, sigma_t (1/mm), g and IOR.
     n_values : sequence of float or None
-        Slab indices to test; ``None`` means the exported IOR.
+        Slab refractive indices to test; ``None`` stands for the exported IOR.
     quick : bool
         Quick mode (fewer paths).
     seed : int
         Seed of both sides.
     bands_nm : sequence of float, optional
-        Band centres to use (each must lie in ``medium.bands``); default :data:`HOMOGENEOUS_BANDS_NM`.
+        Band centres to use (each must lie in ``medium.bands``); default: all of ``medium.bands``.
     deep : bool
         Deep slabs (:func:`deep_depth_mfp`) instead of :data:`SLAB_DEPTH_MFP` slabs.
+
     """
     mode = _mode(quick)
     t0 = time.perf_counter()
     kind = "deep slabs (half-space stand-in)" if deep else f"{SLAB_DEPTH_MFP:g}-mfp slabs"
-    comp = Comparison(
-        "homogeneous" + ("_deep" if deep else ""),
-        f"Exported effective medium, {kind}: matgen transport vs path tracer ({medium.source})",
-        f"matgen {_package_version('matgen')} transport", tracer_label(),
-    )
-    centres = HOMOGENEOUS_BANDS_NM[mode] if bands_nm is None else bands_nm
+    comp = Comparison("homogeneous_deep" if deep else "homogeneous",
+                      f"Exported effective medium ({medium.source}), {kind}: matgen vs path tracer",
+                      f"matgen {_package_version('matgen')} transport", tracer_label())
+    centres = medium.bands.centre_nm if bands_nm is None else bands_nm
     k = 0
     for n_opt in n_values:
         n = medium.ior if n_opt is None else float(n_opt)
         for c in centres:
-            b = medium.bands.index_of(c)
+            b = medium.bands.index_of(float(c))
             a, st, g = float(medium.albedo[b]), float(medium.sigma_t_per_mm[b]), float(medium.g[b])
             depth_mfp = deep_depth_mfp(a, g) if deep else SLAB_DEPTH_MFP
             stack = _slab_stack(a, st, g, n, depth_mfp / st)
@@ -470,7 +353,7 @@ def homogeneous_comparison(medium: ExportedMedium, *, n_values=(1.0, None), quic
                                                   paths=TRACER_PATHS[mode], seed=seed + k)
             comp.rows.append(Row(f"{medium.bands.centre_nm[b]:g} nm n={n:g}", float(medium.bands.centre_nm[b]),
                                  total, est, ALLOWANCE_TRACER,
-                                 f"a={a:.4f} g={g:.3f} depth {depth_mfp:.0f} mfp, T={trans.value:.4f}"))
+                                 f"a={a:.4f} g={g:.3f} l={1 / st:.4f} mm, {depth_mfp:.0f} mfp, T={trans.value:.4f}"))
             k += 1
     comp.seconds = time.perf_counter() - t0
     return comp
@@ -480,55 +363,33 @@ def homogeneous_comparison(medium: ExportedMedium, *, n_values=(1.0, None), quic
 # 3. layered skin stack
 
 
-def layered_params(base, melanin_fraction: float):
-    """``base`` (a SkinParameters) with its epidermal melanin volume fraction replaced."""
-    return base.replace(melanin_fraction=float(melanin_fraction))
+def layered_comparison(runs: list, *, quick: bool = True, seed: int = 0) -> Comparison:
+    """Matgen's layered transport against the path tracer's nested media for skin stacks.
 
+    Parameters
+    ----------
+    runs : list of SkinRuns
+        matgen's runs per setting (e.g. light and dark melanin); their stacks go to the tracer unchanged: one
+        homogeneous medium per layer, a dielectric interface wherever the index changes.
+    quick : bool
+        Quick mode (fewer tracer paths).
+    seed : int
+        Tracer seed.
 
-def base_skin(preset_name: str = "cheek"):
-    """The preset skin parameter set used by the layered comparisons."""
-    try:
-        from matgen.tissue.presets import preset
-    except ImportError as exc:
-        raise DependencyError(f"the tissue model is not available ({exc})") from exc
-    return preset(preset_name)
-
-
-def skin_stacks(params, bands: BandSet) -> list[Stack]:
-    """One transport Stack per band for a skin parameter set (``matgen.tissue.optics.skin_optics``)."""
-    try:
-        from matgen.tissue.optics import skin_optics
-    except ImportError as exc:
-        raise DependencyError(f"the tissue model is not available ({exc})") from exc
-    optics = skin_optics(params, bands)
-    return [Stack(**optics.band(b)) for b in range(len(bands))]
-
-
-def layered_comparison(quick: bool = True, seed: int = 0, preset_name: str = "cheek",
-                       settings=MELANIN_SETTINGS, bands_nm=None) -> Comparison:
-    """matgen's layered transport against the path tracer's nested media for the skin stack.
-
-    For each melanin setting and band, the same per-layer mu_a, mu_s, g, n and thickness (from
-    ``skin_optics``) go to both sides; the tracer gets one homogeneous medium per layer and a dielectric
-    interface wherever the index changes.
     """
     mode = _mode(quick)
     t0 = time.perf_counter()
-    comp = Comparison("layered", f"Layered skin stack ({preset_name}): matgen transport vs path tracer nested media",
+    comp = Comparison("layered", "Layered skin stack: matgen transport vs path tracer (one medium per layer)",
                       f"matgen {_package_version('matgen')} transport", tracer_label())
-    centres = LAYERED_BANDS_NM[mode] if bands_nm is None else bands_nm
-    bands = BandSet.parse(",".join(f"{c:g}" for c in centres))
-    base = base_skin(preset_name)
     k = 0
-    for label, melanin in settings:
-        stacks = skin_stacks(layered_params(base, melanin), bands)
-        for b, stack in enumerate(stacks):
-            total, _diffuse, trans = matgen_reflectance(stack, MATGEN_PHOTONS[mode], seed=seed + k)
-            est = tracer.render_stack_reflectance(stack, bands.lower_nm[b], bands.upper_nm[b],
-                                                  paths=TRACER_PATHS[mode], seed=seed + k)
-            comp.rows.append(Row(f"{bands.centre_nm[b]:g} nm {label} (melanin {melanin:g})",
-                                 float(bands.centre_nm[b]), total, est, ALLOWANCE_TRACER,
-                                 f"{stack.n_layers} layers, {stack.total_thickness_mm:.2f} mm, T={trans.value:.4f}"))
+    for run in runs:
+        for b, (stack, res) in enumerate(zip(run.stacks, run.results)):
+            est = tracer.render_stack_reflectance(stack, run.bands.lower_nm[b], run.bands.upper_nm[b],
+                                                  paths=LAYERED_TRACER_PATHS[mode], seed=seed + k)
+            comp.rows.append(Row(f"{run.bands.centre_nm[b]:g} nm {run.label}", float(run.bands.centre_nm[b]),
+                                 res.total_reflectance, est, ALLOWANCE_TRACER,
+                                 f"melanin {run.params.melanin_fraction:g}, {stack.n_layers} layers, "
+                                 f"{stack.total_thickness_mm:.2f} mm, T={res.transmittance.value:.4f}"))
             k += 1
     comp.seconds = time.perf_counter() - t0
     return comp
@@ -538,38 +399,35 @@ def layered_comparison(quick: bool = True, seed: int = 0, preset_name: str = "ch
 # 4. cost of collapsing the layers into one effective medium
 
 
-def collapse_comparison(quick: bool = True, seed: int = 0, preset_name: str = "cheek",
-                        settings=MELANIN_SETTINGS, bands_nm=None) -> Comparison:
+def collapse_comparison(runs: list, *, quick: bool = True, seed: int = 0) -> Comparison:
     """Effective medium exported for a layered result, rendered as a deep slab, vs the layered diffuse albedo.
 
     matgen side: the layered stack's diffuse reflectance A (``albedo_multiple``) from matgen's transport.
     Reference side: the path tracer's total reflectance of a deep slab of the exported effective medium
-    minus its normal-incidence Fresnel reflectance ((n - 1)/(n + 1))^2, which is exact for a smooth boundary.
-    The difference is the cost of collapsing the layers (judged against :data:`ALLOWANCE_COLLAPSE`).
+    minus its normal-incidence Fresnel reflectance ((n - 1)/(n + 1))^2 (exact for a smooth boundary,
+    [Born1999]). The difference is the cost of collapsing the layers, judged against
+    :data:`ALLOWANCE_COLLAPSE` and printed in full.
     """
     mode = _mode(quick)
     t0 = time.perf_counter()
-    comp = Comparison("collapse", f"Cost of collapsing layers ({preset_name}): layered A vs effective medium",
+    comp = Comparison("collapse", "Cost of collapsing the layers: layered A vs rendered effective medium",
                       f"matgen {_package_version('matgen')} layered transport, diffuse A",
-                      tracer_label() + ", effective medium, deep slab, specular removed")
-    centres = LAYERED_BANDS_NM[mode] if bands_nm is None else bands_nm
-    bands = BandSet.parse(",".join(f"{c:g}" for c in centres))
-    base = base_skin(preset_name)
+                      tracer_label() + ", exported effective medium, deep slab, specular removed")
     k = 0
-    for label, melanin in settings:
-        medium, summary = skin_medium(layered_params(base, melanin), bands, MATGEN_PHOTONS[mode], seed=seed + 100 * k)
-        for b in range(len(bands)):
-            res = summary["results"][b]
+    for run in runs:
+        medium = exported_medium(skin_summary(run), run.bands)
+        for b, res in enumerate(run.results):
             a, st, g = float(medium.albedo[b]), float(medium.sigma_t_per_mm[b]), float(medium.g[b])
             depth_mfp = deep_depth_mfp(a, g)
             stack = _slab_stack(a, st, g, medium.ior, depth_mfp / st)
-            est = tracer.render_stack_reflectance(stack, bands.lower_nm[b], bands.upper_nm[b],
-                                                  paths=TRACER_PATHS[mode], seed=seed + k)
+            est = tracer.render_stack_reflectance(stack, run.bands.lower_nm[b], run.bands.upper_nm[b],
+                                                  paths=COLLAPSE_TRACER_PATHS[mode], seed=seed + k)
             spec = ((medium.ior - 1.0) / (medium.ior + 1.0)) ** 2
-            comp.rows.append(Row(f"{bands.centre_nm[b]:g} nm {label} (melanin {melanin:g})",
-                                 float(bands.centre_nm[b]), res.diffuse_reflectance,
-                                 Estimate(est.value - spec, est.stderr), ALLOWANCE_COLLAPSE,
-                                 f"alpha={a:.4f} l={1.0 / st:.3f} mm g={g:.2f} ior={medium.ior:.2f}"))
+            comp.rows.append(Row(f"{run.bands.centre_nm[b]:g} nm {run.label}", float(run.bands.centre_nm[b]),
+                                 res.diffuse_reflectance, Estimate(est.value - spec, est.stderr),
+                                 ALLOWANCE_COLLAPSE,
+                                 f"alpha={a:.4f} l={1.0 / st:.3f} mm g={g:.2f} ior={medium.ior:.2f}, "
+                                 f"{depth_mfp:.0f} mfp"))
             k += 1
     comp.seconds = time.perf_counter() - t0
     return comp
@@ -592,22 +450,30 @@ class ValidationRun:
 
     @property
     def passed(self) -> bool:
-        """True when every comparison that ran passed (those that could not run are listed as skipped)."""
+        """True when at least one comparison ran and every one that ran passed (see ``skipped`` for the rest)."""
         return bool(self.comparisons) and all(c.passed for c in self.comparisons)
 
+    def get(self, name: str) -> Comparison | None:
+        """The comparison called ``name``, or None."""
+        return next((c for c in self.comparisons if c.name == name), None)
+
     def format(self) -> str:
-        """All tables, then the skipped parts and the verdict."""
+        """All tables, then the parts that could not run, the collapse cost and the verdict."""
         parts = [c.format_table() for c in self.comparisons]
-        for name, why in self.skipped.items():
-            parts.append(f"{name}: NOT RUN ({why})")
-        collapse = [c for c in self.comparisons if c.name == "collapse"]
-        if collapse:
-            parts.append(f"cost of collapsing the layers into one medium: "
-                         f"max |A_layered - A_effective| = {collapse[0].max_abs_difference:.4f}, "
-                         f"{'within' if collapse[0].passed else 'OUTSIDE'} the stated {ALLOWANCE_COLLAPSE} + 3 se")
-        parts.append(f"validation ({'quick' if self.quick else 'full'}): {'PASS' if self.passed else 'FAIL'} "
-                     f"in {self.seconds:.1f} s")
+        parts.append(self.verdict())
         return "\n\n".join(parts)
+
+    def verdict(self) -> str:
+        """The closing lines: what did not run, the cost of collapsing layers, pass or fail."""
+        lines = [f"{name}: NOT RUN ({why})" for name, why in self.skipped.items()]
+        collapse = self.get("collapse")
+        if collapse is not None:
+            lines.append(f"cost of collapsing the layers into one medium: max |A_layered - A_effective| = "
+                         f"{collapse.max_abs_difference:.4f} "
+                         f"({'within' if collapse.passed else 'OUTSIDE'} 3 se + {ALLOWANCE_COLLAPSE})")
+        lines.append(f"validation ({'quick' if self.quick else 'full'}): {'PASS' if self.passed else 'FAIL'}"
+                     f"{' (incomplete)' if self.skipped else ''} in {self.seconds:.1f} s")
+        return "\n".join(lines)
 
     def to_dict(self) -> dict:
         """JSON form (the ``matgen validate --json`` layout)."""
@@ -621,42 +487,62 @@ class ValidationRun:
         }
 
 
+def _bands(centres) -> BandSet:
+    return BandSet.parse(",".join(f"{c:g}" for c in centres))
+
+
 def run_validation(quick: bool = True, seed: int = 0, only=None, preset_name: str = "cheek",
                    progress=None) -> ValidationRun:
     """Run the comparisons (all, or those named in ``only``) and collect them.
 
-    A comparison whose inputs are missing from this build (a stage not installed) is recorded under
-    ``skipped`` with the reason; a :class:`MatgenError` raised inside one is recorded the same way.
+    The layered and collapse comparisons share matgen's layered runs (one per melanin setting). A comparison
+    whose inputs are missing from this build raises :class:`DependencyError` inside and is recorded under
+    ``skipped`` with the reason, as is any other :class:`MatgenError` it raises.
     """
     names = COMPARISONS if not only else tuple(only)
     unknown = [n for n in names if n not in COMPARISONS]
     if unknown:
         raise MatgenError(f"unknown comparison(s) {unknown}; choose from {', '.join(COMPARISONS)}")
+    mode = _mode(quick)
     run = ValidationRun(quick=quick)
     t0 = time.perf_counter()
     tracer.mitsuba()  # fail early and clearly when the path tracer is missing
+    layered_runs = None
+
+    def _layered_runs():
+        nonlocal layered_runs
+        if layered_runs is None:
+            base = base_skin(preset_name)
+            bands = _bands(LAYERED_BANDS_NM[mode])
+            layered_runs = [skin_runs(label, base.replace(melanin_fraction=melanin), bands, MATGEN_PHOTONS[mode],
+                                      seed + 1000 * (i + 1)) for i, (label, melanin) in enumerate(MELANIN_SETTINGS)]
+        return layered_runs
+
     for name in names:
         try:
             if name == "harness":
-                comp = harness_check(quick, seed)
+                comps = [harness_check(quick, seed)]
             elif name == "homogeneous":
-                bands = BandSet.parse(",".join(f"{c:g}" for c in HOMOGENEOUS_BANDS_NM[_mode(quick)]))
-                medium, _ = skin_medium(base_skin(preset_name), bands, MATGEN_PHOTONS[_mode(quick)], seed)
-                comp = homogeneous_comparison(medium, quick=quick, seed=seed)
+                bands = _bands(HOMOGENEOUS_BANDS_NM[mode])
+                runs = skin_runs("base", base_skin(preset_name), bands, MATGEN_PHOTONS[mode], seed + 500)
+                medium = exported_medium(skin_summary(runs), bands)
+                n_values = (1.0, 1.4) if quick else (1.0, 1.4, None)
+                comps = [homogeneous_comparison(medium, n_values=n_values, quick=quick, seed=seed + 2000)]
                 if not quick:
-                    run.comparisons.append(comp)
-                    comp = homogeneous_comparison(medium, quick=quick, seed=seed + 1000, deep=True)
+                    comps.append(homogeneous_comparison(medium, n_values=(1.0, None), quick=quick,
+                                                        seed=seed + 3000, deep=True))
             elif name == "layered":
-                comp = layered_comparison(quick, seed, preset_name)
+                comps = [layered_comparison(_layered_runs(), quick=quick, seed=seed + 4000)]
             else:
-                comp = collapse_comparison(quick, seed, preset_name)
+                comps = [collapse_comparison(_layered_runs(), quick=quick, seed=seed + 5000)]
         except MatgenError as exc:
             run.skipped[name] = str(exc)
             if progress:
                 progress(f"{name}: NOT RUN ({exc})")
             continue
-        run.comparisons.append(comp)
-        if progress:
-            progress(comp.format_table())
+        for comp in comps:
+            run.comparisons.append(comp)
+            if progress:
+                progress(comp.format_table())
     run.seconds = time.perf_counter() - t0
     return run
