@@ -242,6 +242,9 @@ KNOWN_OPEN: dict[str, list[tuple[str, str]]] = {
         (r"^AttributeError: '\w+' object has no attribute 'get'", "Table.load: manifest not a JSON object"),
     ],
     "table_declared_shape": [(r"^TokenError", "numpy .npy header TokenError escapes Table.load")],
+    "map_exr": [(r"^UnicodeDecodeError", "oiio.geterror() UnicodeDecodeError in map_info")],
+    "map_png": [(r"^UnicodeDecodeError", "oiio.geterror() UnicodeDecodeError in map_info")],
+    "map_tif": [(r"^UnicodeDecodeError", "oiio.geterror() UnicodeDecodeError in map_info")],
 }
 
 
@@ -253,3 +256,210 @@ def known_open(failure) -> str | None:
         if re.search(pattern, failure.kind):
             return what
     return None
+
+
+# ---------------------------------------------------------------------------------------------------------
+# table build specs and job folders (matgen.tables.spec, matgen.tables.plan, matgen.tables.tasks)
+
+
+def _lut_spec_texts() -> list:
+    import importlib.resources as ir
+
+    root = ir.files("matgen.lut").joinpath("specs")
+    return [root.joinpath(n).read_bytes() for n in ("tiny.toml", "default.toml")]
+
+
+@target("table_spec", lambda d: _lut_spec_texts(), requires=("matgen.tables.spec",),
+        notes="load_spec on a mutated TOML table spec (seeds: lut/specs/*.toml)")
+def _table_spec(data: bytes, scratch: Path):
+    from matgen.tables.spec import load_spec
+
+    p = scratch / "spec.toml"
+    p.write_bytes(data)
+    load_spec(p)
+
+
+_TINY_JOB: dict = {}
+
+
+def _tiny_job_text() -> bytes:
+    """job.json of the tiny spec (planned once per process; planning probes the tissue model)."""
+    if "text" not in _TINY_JOB:
+        import tempfile
+
+        from matgen.tables.build import plan_job
+
+        with tempfile.TemporaryDirectory() as d:
+            spec = Path(d) / "tiny.toml"
+            spec.write_bytes(_lut_spec_texts()[0])
+            job = plan_job(spec, Path(d) / "job")
+            _TINY_JOB["text"] = (job.path / "job.json").read_bytes()
+    return _TINY_JOB["text"]
+
+
+@target("job_file", lambda d: [_tiny_job_text()], requires=("matgen.tables.plan", "matgen.tissue.optics"),
+        notes="JobFolder.open on a mutated job.json")
+def _job_file(data: bytes, scratch: Path):
+    from matgen.tables.plan import JobFolder
+
+    job = scratch / "job"
+    (job / "tasks").mkdir(parents=True)
+    (job / "job.json").write_bytes(data)
+    JobFolder.open(job)
+
+
+def _task_record_seed(d: Path) -> list:
+    import json
+
+    from matgen.provenance import sha256_file
+    from matgen.tables.plan import JobFolder
+
+    job = d / "job"
+    (job / "tasks").mkdir(parents=True)
+    (job / "job.json").write_bytes(_tiny_job_text())
+    jf = JobFolder.open(job)
+    out = jf.output_path(0)
+    out.write_bytes(b"task output bytes")
+    rec = {"index": 0, "task_id": jf.plan.tasks[0].task_id, "sha256": sha256_file(out), "bytes": out.stat().st_size,
+           "wall_s": 0.1}
+    return [json.dumps(rec, indent=1).encode()]
+
+
+@target("task_record", _task_record_seed, requires=("matgen.tables.tasks", "matgen.tissue.optics"),
+        notes="task_state (resume check) on a mutated task record JSON")
+def _task_record(data: bytes, scratch: Path):
+    from matgen.tables.plan import JobFolder
+    from matgen.tables.tasks import task_state
+
+    job = scratch / "job"
+    (job / "tasks").mkdir(parents=True)
+    (job / "job.json").write_bytes(_tiny_job_text())
+    jf = JobFolder.open(job)
+    jf.output_path(0).write_bytes(b"task output bytes")
+    jf.record_path(0).write_bytes(data)
+    st = task_state(jf, 0)
+    assert st.state in ("done", "missing", "corrupt"), st
+
+
+# ---------------------------------------------------------------------------------------------------------
+# material configs, maps, descriptors, response curves (matgen.bake, matgen.export, matgen.color)
+
+_BAKE_REQ = ("matgen.bake.config", "matgen.export.job", "OpenImageIO")
+
+
+def _project(scratch: Path) -> Path:
+    from projects import make_project
+
+    return make_project(scratch / "proj")
+
+
+def _bake(cfg_path: Path, scratch: Path):
+    import warnings
+
+    from matgen.bake.config import load_config
+    from matgen.errors import MatgenWarning
+    from matgen.export.job import bake
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", MatgenWarning)
+        config = load_config(cfg_path)
+        return bake(config, scratch / "out", jobs=1)
+
+
+def _config_seeds(d: Path) -> list:
+    return [_project(d).read_bytes()]
+
+
+@target("material_config", _config_seeds, requires=_BAKE_REQ, time_budget_s=30.0,
+        notes="load_config + bake on a mutated material config TOML (valid maps and table beside it)")
+def _material_config(data: bytes, scratch: Path):
+    cfg = _project(scratch)
+    cfg.write_bytes(data)
+    _bake(cfg, scratch)
+
+
+def _map_seeds(kind: str):
+    def seeds(d: Path) -> list:
+        cfg = _project(d)
+        return [(cfg.parent / "maps" / f"melanin.{kind}").read_bytes()]
+
+    return seeds
+
+
+def _map_target(kind: str):
+    def run(data: bytes, scratch: Path):
+        cfg = _project(scratch)
+        text = cfg.read_text().replace("maps/melanin.exr", f"maps/melanin.{kind}")
+        cfg.write_text(text)
+        (cfg.parent / "maps" / f"melanin.{kind}").write_bytes(data)
+        _bake(cfg, scratch)
+
+    return run
+
+
+def _map_seeds_as(kind: str):
+    def seeds(d: Path) -> list:
+        import OpenImageIO as oiio
+
+        from projects import pigment_maps, write_map
+
+        mel, _ = pigment_maps(16, 16)
+        p = d / f"m.{kind}"
+        write_map(p, mel, oiio.UINT16 if kind in ("png", "tif") else oiio.HALF)
+        return [p.read_bytes()]
+
+    return seeds
+
+
+for _kind in ("exr", "png", "tif"):
+    TARGETS[f"map_{_kind}"] = Target(f"map_{_kind}", _map_seeds_as(_kind), _map_target(_kind), _BAKE_REQ, 30.0,
+                                     f"bake with a mutated {_kind.upper()} melanin map")
+
+
+def _descriptor_seeds(d: Path) -> list:
+    _bake(_project(d), d)
+    return [(d / "out" / "material.json").read_bytes()]
+
+
+_BAKED: dict = {}
+
+
+@target("descriptor", _descriptor_seeds, requires=_BAKE_REQ + ("matgen.export.descriptor",), time_budget_s=30.0,
+        notes="inspect_descriptor on a mutated material.json beside its baked textures")
+def _descriptor(data: bytes, scratch: Path):
+    import shutil
+
+    from matgen.export.descriptor import inspect_descriptor
+
+    if "out" not in _BAKED:
+        import tempfile
+
+        d = Path(tempfile.mkdtemp(prefix="matgen-baked-"))
+        _bake(_project(d), d)
+        _BAKED["out"] = d / "out"
+    shutil.copytree(_BAKED["out"], scratch / "baked")
+    (scratch / "baked" / "material.json").write_bytes(data)
+    rep = inspect_descriptor(scratch / "baked" / "material.json")
+    for p in rep.missing + rep.modified:
+        assert isinstance(p, str), p
+
+
+def _csv_seeds(_d: Path) -> list:
+    import importlib.resources as ir
+
+    root = ir.files("matgen.color").joinpath("data")
+    return [root.joinpath(f"{n}.csv").read_bytes() for n in ("uv365", "nir850", "nir940")]
+
+
+@target("response_csv", _csv_seeds, requires=("matgen.color.passes",),
+        notes="pass_weights on a mutated response-curve CSV file")
+def _response_csv(data: bytes, scratch: Path):
+    import numpy as np
+
+    from matgen.color.passes import pass_weights
+    from matgen.spectra.bands import BandSet
+
+    p = scratch / "curve.csv"
+    p.write_bytes(data)
+    w = np.asarray(pass_weights(p, BandSet.regular(300.0, 1000.0, 10.0)))
+    assert np.all(np.isfinite(w)) and abs(float(w.sum()) - 1.0) < 1e-6, f"weights not normalised: {w}"

@@ -214,3 +214,31 @@ def test_table_with_unknown_compression_method_is_table_error(tmp_path):
     p.write_bytes(bytes(data))
     with pytest.raises(TableError):
         Table.load(p)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# pigment maps (matgen/bake/maps.py)
+
+
+@pytest.mark.xfail(strict=True, reason="open: oiio.geterror() raises UnicodeDecodeError on a message holding the "
+                   "file's non-UTF-8 bytes (matgen/bake/maps.py map_info)")
+def test_exr_with_non_utf8_attribute_type_is_image_error(tmp_path):
+    """An EXR whose 'channels' attribute type 'chlist' is overwritten by b'ch\\xc9ist' raised UnicodeDecodeError."""
+    pytest.importorskip("OpenImageIO")
+    import warnings
+
+    from projects import make_project
+
+    from matgen.bake.config import load_config
+    from matgen.errors import ImageError
+    from matgen.export.job import bake
+
+    cfg = make_project(tmp_path)
+    m = tmp_path / "maps" / "melanin.exr"
+    data = m.read_bytes()
+    assert data.count(b"chlist") == 1
+    m.write_bytes(data.replace(b"chlist", b"ch\xc9ist"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        with pytest.raises(ImageError, match="melanin"):
+            bake(load_config(cfg), tmp_path / "out", jobs=1)
