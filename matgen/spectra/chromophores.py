@@ -20,9 +20,9 @@ from __future__ import annotations
 
 import functools
 import io
+from collections.abc import Callable
 from dataclasses import dataclass
 from importlib import resources
-from typing import Callable
 
 import numpy as np
 
@@ -30,7 +30,7 @@ from matgen.constants import HEMOGLOBIN_MOLAR_MASS_G_PER_MOL, LN10, MM_PER_CM, W
 from matgen.errors import BandError, DataError, ParameterError
 from matgen.spectra.bands import BandSet, band_average
 
-#: Largest continuation of the haemoglobin table beyond its last point (nm), and the span it is fitted on (nm).
+#: Largest continuation of the haemoglobin table beyond its last point (nm), and the span fitted (nm).
 HEMOGLOBIN_EXTENSION_NM = 50.0
 HEMOGLOBIN_FIT_SPAN_NM = 20.0
 #: Lowest wavelength (nm) to which the lipid table's first value is held.
@@ -43,9 +43,9 @@ ANALYTIC_RANGE_NM = (250.0, 1100.0)
 QUADRATURE_POINTS = 16
 
 
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # data loading
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 def _read_csv(name: str) -> np.ndarray:
     try:
         text = resources.files("matgen.spectra").joinpath("data", f"{name}.csv").read_text()
@@ -58,7 +58,7 @@ def _read_csv(name: str) -> np.ndarray:
     return table
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def hemoglobin_table() -> tuple[np.ndarray, np.ndarray]:
     """Prahl's haemoglobin table as vendored, without extension.
 
@@ -67,12 +67,13 @@ def hemoglobin_table() -> tuple[np.ndarray, np.ndarray]:
     wavelength_nm : ndarray, shape (M,)
     extinction : ndarray, shape (M, 2)
         Molar extinction of HbO2 (column 0) and Hb (column 1), decadic, cm^-1/M. Source: Prahl1999.
+
     """
     t = _read_csv("hemoglobin_prahl1999")
     return t[:, 0].copy(), t[:, 1:3].copy()
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _hemoglobin_extended() -> tuple[np.ndarray, np.ndarray]:
     wl, ext = hemoglobin_table()
     fit = wl >= wl[-1] - HEMOGLOBIN_FIT_SPAN_NM
@@ -86,7 +87,7 @@ def _hemoglobin_extended() -> tuple[np.ndarray, np.ndarray]:
     return np.concatenate([wl, new_wl]), np.vstack([ext, np.stack(cols, axis=1)])
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def water_table() -> tuple[np.ndarray, np.ndarray]:
     """Water absorption from Segelstein 1981 k values as vendored: (wavelength_nm (M,), mu_a (M,) in 1/mm).
 
@@ -97,16 +98,16 @@ def water_table() -> tuple[np.ndarray, np.ndarray]:
     return wl.copy(), 4.0 * np.pi * t[:, 1] / (wl * 1.0e-6)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def lipid_table() -> tuple[np.ndarray, np.ndarray]:
     """Fat absorption of van Veen et al. 2005 as vendored: (wavelength_nm (M,), mu_a (M,) in 1/mm)."""
     t = _read_csv("lipid_vanveen2005")
     return t[:, 0].copy(), t[:, 1] / 1000.0  # 1/m -> 1/mm
 
 
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # band integration of analytic laws
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 def _check_range(bands: BandSet, lo_nm: float, hi_nm: float, dataset: str):
     bad = (bands.lower_nm < lo_nm - 1e-9) | (bands.upper_nm > hi_nm + 1e-9)
     if bad.any():
@@ -117,8 +118,12 @@ def _check_range(bands: BandSet, lo_nm: float, hi_nm: float, dataset: str):
         )
 
 
-def band_average_function(func: Callable[[np.ndarray], np.ndarray], bands: BandSet, dataset: str,
-                          valid_range_nm: tuple[float, float]) -> np.ndarray:
+def band_average_function(
+    func: Callable[[np.ndarray], np.ndarray],
+    bands: BandSet,
+    dataset: str,
+    valid_range_nm: tuple[float, float],
+) -> np.ndarray:
     """Average an analytic spectrum over each band by Gauss-Legendre quadrature.
 
     Parameters
@@ -136,6 +141,7 @@ def band_average_function(func: Callable[[np.ndarray], np.ndarray], bands: BandS
     -------
     ndarray, shape (B,)
         Band averages, in the unit of ``func``.
+
     """
     _check_range(bands, valid_range_nm[0], valid_range_nm[1], dataset)
     x, w = np.polynomial.legendre.leggauss(QUADRATURE_POINTS)
@@ -145,9 +151,9 @@ def band_average_function(func: Callable[[np.ndarray], np.ndarray], bands: BandS
     return (func(wl) * w[None, :]).sum(axis=1) * 0.5
 
 
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # haemoglobin
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 def hemoglobin_extinction(bands: BandSet) -> np.ndarray:
     """Band-averaged molar extinction of HbO2 and Hb.
 
@@ -160,6 +166,7 @@ def hemoglobin_extinction(bands: BandSet) -> np.ndarray:
     -------
     ndarray, shape (B, 2)
         Decadic molar extinction, cm^-1/M, columns (HbO2, Hb). Source: Prahl1999.
+
     """
     wl, ext = _hemoglobin_extended()
     return band_average(wl, ext, bands, "haemoglobin (Prahl 1999, extended log-linearly to 1050 nm)")
@@ -184,6 +191,7 @@ def mu_a_blood(bands: BandSet, oxygen_saturation, hemoglobin_g_per_l: float = WH
     -------
     ndarray, shape (B,) or (K, B)
         mu_a in 1/mm.
+
     """
     ext = hemoglobin_extinction(bands)
     s = np.asarray(oxygen_saturation, dtype=np.float64)
@@ -193,9 +201,9 @@ def mu_a_blood(bands: BandSet, oxygen_saturation, hemoglobin_g_per_l: float = WH
     return LN10 * e * hemoglobin_g_per_l / HEMOGLOBIN_MOLAR_MASS_G_PER_MOL / MM_PER_CM
 
 
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # melanins
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 #: Eumelanin melanosome law, Jacques 1998: mu_a = 6.6e11 lambda^-3.33 1/cm (= Donner & Jensen 2006,
 #: 6.6e10 lambda^-3.33 1/mm). Carried by simpa's Melanin.npz (checked in tests/spectra).
 EUMELANIN_JACQUES1998 = (6.6e11 / MM_PER_CM, -3.33)
@@ -228,14 +236,18 @@ def mu_a_eumelanin(bands: BandSet, method: str = "Jacques1998") -> np.ndarray:
     -------
     ndarray, shape (B,)
         mu_a in 1/mm.
+
     """
     _method(method, _EUMELANIN_METHODS, "eumelanin")
     if method == "Jacques1998":
         a, b = EUMELANIN_JACQUES1998
-        return band_average_function(lambda wl: a * wl**b, bands, "eumelanin (Jacques 1998)", ANALYTIC_RANGE_NM)
+        return band_average_function(
+            lambda wl: a * wl**b, bands, "eumelanin (Jacques 1998)", ANALYTIC_RANGE_NM
+        )
     a, b = EUMELANIN_JACQUES2013
-    return band_average_function(lambda wl: a * (wl / 500.0) ** b, bands, "eumelanin (Jacques 2013)",
-                                 ANALYTIC_RANGE_NM)
+    return band_average_function(
+        lambda wl: a * (wl / 500.0) ** b, bands, "eumelanin (Jacques 2013)", ANALYTIC_RANGE_NM
+    )
 
 
 def mu_a_pheomelanin(bands: BandSet, method: str = "DonnerJensen2006") -> np.ndarray:
@@ -252,15 +264,18 @@ def mu_a_pheomelanin(bands: BandSet, method: str = "DonnerJensen2006") -> np.nda
     -------
     ndarray, shape (B,)
         mu_a in 1/mm.
+
     """
     _method(method, _PHEOMELANIN_METHODS, "pheomelanin")
     a, b = PHEOMELANIN_DONNERJENSEN2006
-    return band_average_function(lambda wl: a * wl**b, bands, "pheomelanin (Donner & Jensen 2006)",
-                                 ANALYTIC_RANGE_NM)
+    return band_average_function(
+        lambda wl: a * wl**b, bands, "pheomelanin (Donner & Jensen 2006)", ANALYTIC_RANGE_NM
+    )
 
 
-def mu_a_melanin(bands: BandSet, eumelanin_share, eumelanin_method="Jacques1998",
-                 pheomelanin_method="DonnerJensen2006") -> np.ndarray:
+def mu_a_melanin(
+    bands: BandSet, eumelanin_share, eumelanin_method="Jacques1998", pheomelanin_method="DonnerJensen2006"
+) -> np.ndarray:
     """Melanosome absorption for a eumelanin / pheomelanin mixture (linear in the eumelanin share).
 
     Parameters
@@ -269,11 +284,14 @@ def mu_a_melanin(bands: BandSet, eumelanin_share, eumelanin_method="Jacques1998"
         Bands in nm.
     eumelanin_share : float or ndarray, shape (K,)
         Eumelanin / (eumelanin + pheomelanin), in [0, 1].
+    eumelanin_method, pheomelanin_method : str
+        Methods of :func:`mu_a_eumelanin` and :func:`mu_a_pheomelanin`.
 
     Returns
     -------
     ndarray, shape (B,) or (K, B)
         mu_a of the melanosome interior in 1/mm (Jacques1998; DonnerJensen2006).
+
     """
     s = np.asarray(eumelanin_share, dtype=np.float64)
     eu = mu_a_eumelanin(bands, eumelanin_method)
@@ -281,9 +299,9 @@ def mu_a_melanin(bands: BandSet, eumelanin_share, eumelanin_method="Jacques1998"
     return s[..., None] * eu + (1.0 - s[..., None]) * ph
 
 
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # baseline, water, lipid
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 _BASELINE_METHODS = ("Jacques1998", "Saidi1992")
 
 
@@ -303,15 +321,19 @@ def mu_a_baseline(bands: BandSet, method: str = "Jacques1998") -> np.ndarray:
     -------
     ndarray, shape (B,)
         mu_a in 1/mm.
+
     """
     _method(method, _BASELINE_METHODS, "baseline")
     if method == "Jacques1998":
         return band_average_function(
             lambda wl: (0.244 + 85.3 * np.exp(-(wl - 154.0) / 66.2)) / MM_PER_CM,
-            bands, "skin baseline (Jacques 1998)", ANALYTIC_RANGE_NM,
+            bands,
+            "skin baseline (Jacques 1998)",
+            ANALYTIC_RANGE_NM,
         )
-    return band_average_function(lambda wl: 7.84e8 * wl**-3.255 / MM_PER_CM, bands,
-                                 "skin baseline (Saidi 1992)", (450.0, 750.0))
+    return band_average_function(
+        lambda wl: 7.84e8 * wl**-3.255 / MM_PER_CM, bands, "skin baseline (Saidi 1992)", (450.0, 750.0)
+    )
 
 
 def mu_a_water(bands: BandSet, method: str = "Segelstein1981") -> np.ndarray:
@@ -328,6 +350,7 @@ def mu_a_water(bands: BandSet, method: str = "Segelstein1981") -> np.ndarray:
     -------
     ndarray, shape (B,)
         mu_a in 1/mm.
+
     """
     _method(method, ("Segelstein1981",), "water")
     wl, mua = water_table()
@@ -340,7 +363,8 @@ def mu_a_lipid(bands: BandSet, method: str = "vanVeen2005") -> np.ndarray:
     Parameters
     ----------
     bands : BandSet
-        Bands in nm, within 250-1098 nm (data 429-1098 nm; below 429 nm the 429 nm value is held, a lower bound).
+        Bands in nm, within 250-1098 nm (data 429-1098 nm; below 429 nm the 429 nm value is held,
+        a lower bound).
     method : {"vanVeen2005"}
         van Veen et al. 2005 pig-lard spectrum (vanVeen2005).
 
@@ -348,6 +372,7 @@ def mu_a_lipid(bands: BandSet, method: str = "vanVeen2005") -> np.ndarray:
     -------
     ndarray, shape (B,)
         mu_a in 1/mm.
+
     """
     _method(method, ("vanVeen2005",), "lipid")
     wl, mua = lipid_table()
@@ -356,17 +381,23 @@ def mu_a_lipid(bands: BandSet, method: str = "vanVeen2005") -> np.ndarray:
     return band_average(wl_ext, mua_ext, bands, "lipid (van Veen 2005, held below 429 nm)")
 
 
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # beta-carotene and bilirubin: approximate band models
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 #: beta-carotene in hexane: peak molar extinction (cm^-1/M, decadic) near 450 nm (PhotochemCAD entry quoted by
-#: Prahl; value from memory) and vibronic bands (centre nm, relative height, Gaussian sigma in cm^-1; from memory
-#: of the published spectrum's shape: shoulder 425, peak 450, 478 nm, and the weak cis band near 340 nm).
+#: Prahl; value from memory) and vibronic bands (centre nm, relative height, Gaussian sigma in cm^-1 on the
+#: blue and red sides; from memory of the published spectrum's shape: shoulder 425, peak 450, 478 nm, and
+#: the weak cis band near 340 nm).
 CAROTENE_PEAK_PER_CM_PER_MOLAR = 1.395e5
-CAROTENE_BANDS = ((425.0, 0.72, 650.0, 650.0), (450.0, 1.0, 650.0, 650.0), (478.0, 0.86, 650.0, 650.0),
-                  (340.0, 0.10, 1500.0, 1500.0))
+CAROTENE_BANDS = (
+    (425.0, 0.72, 650.0, 650.0),
+    (450.0, 1.0, 650.0, 650.0),
+    (478.0, 0.86, 650.0, 650.0),
+    (340.0, 0.10, 1500.0, 1500.0),
+)
 #: bilirubin in chloroform: peak 5.5e4 cm^-1/M at about 451-453 nm (PhotochemCAD via Prahl; re-read from a
-#: quotation of that entry), one broad, asymmetric band: half maximum near 410 nm and 490 nm (from memory), i.e.
+#: quotation of that entry), one broad, asymmetric band: half maximum near 410 nm and 490 nm (from
+#: memory), i.e.
 #: Gaussian sigma 1970 cm^-1 on the blue side and 1420 cm^-1 on the red side.
 BILIRUBIN_PEAK_PER_CM_PER_MOLAR = 5.5e4
 BILIRUBIN_BANDS = ((453.0, 1.0, 1970.0, 1420.0),)
@@ -383,7 +414,7 @@ def _gauss_bands(wl_nm, bands):
     return out
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _peak_norm(bands):
     wl = np.linspace(300.0, 700.0, 40001)
     return float(_gauss_bands(wl, bands).max())
@@ -400,26 +431,37 @@ def extinction_carotene(bands: BandSet) -> np.ndarray:
     -------
     ndarray, shape (B,)
         Decadic molar extinction in cm^-1/M.
+
     """
     norm = CAROTENE_PEAK_PER_CM_PER_MOLAR / _peak_norm(CAROTENE_BANDS)
-    return band_average_function(lambda wl: norm * _gauss_bands(wl, CAROTENE_BANDS), bands,
-                                 "beta-carotene (band model)", MOLAR_MODEL_RANGE_NM)
+    return band_average_function(
+        lambda wl: norm * _gauss_bands(wl, CAROTENE_BANDS),
+        bands,
+        "beta-carotene (band model)",
+        MOLAR_MODEL_RANGE_NM,
+    )
 
 
 def extinction_bilirubin(bands: BandSet) -> np.ndarray:
     """Band-averaged molar extinction of bilirubin, approximate one-band model.
 
-    One asymmetric Gaussian band in wavenumber at 453 nm scaled to 5.5e4 cm^-1/M (PhotochemCAD1998; widths from
+    One asymmetric Gaussian band in wavenumber at 453 nm scaled to 5.5e4 cm^-1/M (PhotochemCAD1998;
+    widths from
     memory, :data:`BILIRUBIN_BANDS`).
 
     Returns
     -------
     ndarray, shape (B,)
         Decadic molar extinction in cm^-1/M.
+
     """
     norm = BILIRUBIN_PEAK_PER_CM_PER_MOLAR / _peak_norm(BILIRUBIN_BANDS)
-    return band_average_function(lambda wl: norm * _gauss_bands(wl, BILIRUBIN_BANDS), bands,
-                                 "bilirubin (band model)", MOLAR_MODEL_RANGE_NM)
+    return band_average_function(
+        lambda wl: norm * _gauss_bands(wl, BILIRUBIN_BANDS),
+        bands,
+        "bilirubin (band model)",
+        MOLAR_MODEL_RANGE_NM,
+    )
 
 
 def mu_a_from_molar(extinction_per_cm_per_molar, concentration_umol_per_l):
@@ -436,14 +478,15 @@ def mu_a_from_molar(extinction_per_cm_per_molar, concentration_umol_per_l):
     -------
     ndarray, shape (B,) or (K, B)
         mu_a in 1/mm (Jacques2013).
+
     """
     c = np.asarray(concentration_umol_per_l, dtype=np.float64) * 1.0e-6
     return LN10 * np.asarray(extinction_per_cm_per_molar) * c[..., None] / MM_PER_CM
 
 
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # registry
-# ---------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class Chromophore:
     """One absorber known to matgen.
@@ -453,7 +496,8 @@ class Chromophore:
     name : str
         Registry key.
     kind : str
-        ``"volume"``: ``evaluate(bands)`` gives mu_a (1/mm) of the pure substance, weighted by a volume fraction;
+        ``"volume"``: ``evaluate(bands)`` gives mu_a (1/mm) of the pure substance, weighted by a volume
+        fraction;
         ``"molar"``: it gives decadic molar extinction (cm^-1/M), weighted by a concentration in umol/L.
     evaluate : callable
         ``evaluate(bands) -> ndarray (B,)``.
@@ -461,6 +505,7 @@ class Chromophore:
         BIBLIOGRAPHY key(s).
     provenance : str
         Name of the provenance record in ``spectra/data``.
+
     """
 
     name: str
@@ -471,24 +516,28 @@ class Chromophore:
 
 
 CHROMOPHORES: dict[str, Chromophore] = {
-    "oxyhemoglobin": Chromophore("oxyhemoglobin", "volume", lambda b: mu_a_blood(b, 1.0), "Prahl1999",
-                                 "hemoglobin_prahl1999"),
-    "deoxyhemoglobin": Chromophore("deoxyhemoglobin", "volume", lambda b: mu_a_blood(b, 0.0), "Prahl1999",
-                                   "hemoglobin_prahl1999"),
+    "oxyhemoglobin": Chromophore(
+        "oxyhemoglobin", "volume", lambda b: mu_a_blood(b, 1.0), "Prahl1999", "hemoglobin_prahl1999"
+    ),
+    "deoxyhemoglobin": Chromophore(
+        "deoxyhemoglobin", "volume", lambda b: mu_a_blood(b, 0.0), "Prahl1999", "hemoglobin_prahl1999"
+    ),
     "eumelanin": Chromophore("eumelanin", "volume", mu_a_eumelanin, "Jacques1998", "melanin_laws"),
     "pheomelanin": Chromophore("pheomelanin", "volume", mu_a_pheomelanin, "DonnerJensen2006", "melanin_laws"),
     "baseline": Chromophore("baseline", "volume", mu_a_baseline, "Jacques1998", "baseline_jacques1998"),
     "water": Chromophore("water", "volume", mu_a_water, "Segelstein1981", "water_segelstein1981"),
     "lipid": Chromophore("lipid", "volume", mu_a_lipid, "vanVeen2005", "lipid_vanveen2005"),
-    "beta_carotene": Chromophore("beta_carotene", "molar", extinction_carotene, "PhotochemCAD1998",
-                                 "carotene_bilirubin_models"),
-    "bilirubin": Chromophore("bilirubin", "molar", extinction_bilirubin, "PhotochemCAD1998",
-                             "carotene_bilirubin_models"),
+    "beta_carotene": Chromophore(
+        "beta_carotene", "molar", extinction_carotene, "PhotochemCAD1998", "carotene_bilirubin_models"
+    ),
+    "bilirubin": Chromophore(
+        "bilirubin", "molar", extinction_bilirubin, "PhotochemCAD1998", "carotene_bilirubin_models"
+    ),
 }
 
 
 def chromophore_spectrum(name: str, bands: BandSet) -> np.ndarray:
-    """Evaluate a registered chromophore over ``bands`` (see :class:`Chromophore` for the unit of each kind)."""
+    """Evaluate a registered chromophore over ``bands`` (units per kind: see :class:`Chromophore`)."""
     try:
         entry = CHROMOPHORES[name]
     except KeyError as exc:

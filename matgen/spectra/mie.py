@@ -43,6 +43,7 @@ def sphere_efficiencies(diameter_nm, n_particle: complex, n_medium: float, wavel
     -------
     q_sca, g : ndarray, shape (D,)
         Scattering efficiency (cross-section / geometric cross-section) and mean cosine of scattering.
+
     """
     mp = _miepython()
     d = np.atleast_1d(np.asarray(diameter_nm, dtype=np.float64))
@@ -52,7 +53,9 @@ def sphere_efficiencies(diameter_nm, n_particle: complex, n_medium: float, wavel
         raise ParameterError(f"n_medium = {n_medium!r} must be finite and >= 1")
     m = complex(n_particle)
     if m.imag < 0 or m.real <= 0:
-        raise ParameterError(f"n_particle = {n_particle!r}: real part > 0 and imaginary part >= 0 (absorbing)")
+        raise ParameterError(
+            f"n_particle = {n_particle!r}: real part > 0 and imaginary part >= 0 (absorbing)"
+        )
     q = np.empty(d.size)
     g = np.empty(d.size)
     for i, di in enumerate(d):
@@ -61,8 +64,14 @@ def sphere_efficiencies(diameter_nm, n_particle: complex, n_medium: float, wavel
     return q, g
 
 
-def population_scattering(bands: BandSet, volume_fraction: float, median_diameter_nm: float,
-                          n_particle: complex, n_medium: float, geometric_sigma: float = 1.0):
+def population_scattering(
+    bands: BandSet,
+    volume_fraction: float,
+    median_diameter_nm: float,
+    n_particle: complex,
+    n_medium: float,
+    geometric_sigma: float = 1.0,
+):
     """mu_s and g of a population of spheres with a log-normal number distribution of diameters.
 
     Parameters
@@ -86,6 +95,7 @@ def population_scattering(bands: BandSet, volume_fraction: float, median_diamete
         Scattering coefficient, 1/mm (band average).
     g : ndarray, shape (B,)
         Anisotropy, scattering-weighted over sizes and the band.
+
     """
     if not (0.0 < volume_fraction < 1.0):
         raise ParameterError(f"volume_fraction = {volume_fraction!r} must lie in (0, 1)")

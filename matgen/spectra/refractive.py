@@ -17,7 +17,8 @@ LAYER_INDEX: dict[str, tuple[float, str]] = {
     # Tearney et al. 1995 measured about 1.51 in vivo by OCT; the keratin-rich layer is usually modelled at
     # 1.5-1.55 (Lister2012 review). matgen takes 1.55. (from memory)
     "stratum_corneum": (1.55, "Tearney1995; Lister2012 (from memory)"),
-    # viable epidermis about 1.40 (Lister2012 review; Ding2006 reports 1.40-1.43 across 400-1000 nm; from memory)
+    # viable epidermis about 1.40 (Lister2012 review; Ding2006 reports 1.40-1.43 over 400-1000 nm;
+    # from memory)
     "epidermis": (1.40, "Lister2012; Ding2006 (from memory)"),
     # dermis 1.39-1.41 (Ding2006; Bolin1989; from memory)
     "papillary_dermis": (1.39, "Ding2006; Bolin1989 (from memory)"),
@@ -46,9 +47,12 @@ def layer_index(layer: str, bands: BandSet) -> np.ndarray:
     -------
     ndarray, shape (B,)
         Real refractive index (dimensionless). Sources per layer in :data:`LAYER_INDEX`.
+
     """
     try:
         n, _ = LAYER_INDEX[layer]
     except KeyError as exc:
-        raise ParameterError(f"no refractive index for layer {layer!r}; known: {', '.join(LAYER_INDEX)}") from exc
+        raise ParameterError(
+            f"no refractive index for layer {layer!r}; known: {', '.join(LAYER_INDEX)}"
+        ) from exc
     return np.full(len(bands), n)

@@ -43,6 +43,7 @@ class PowerLaw:
         Mie scattering power (dimensionless).
     source : str
         BIBLIOGRAPHY key and table.
+
     """
 
     a_prime_per_mm: float
@@ -53,14 +54,15 @@ class PowerLaw:
 
 #: Published parameter sets. Jacques 2013 Table 2 rows (from memory; re-check against the paper when it can be
 #: read): skin 46.0 1/cm, 0.409, 0.562; dermis 43.6 1/cm, 0.41, 0.562; epidermis 66.7 1/cm, 0.29, 0.689.
-#: Subcutaneous fat: Bashkatov et al. 2005 fit mu_s' = 1050.6 lambda^-0.68 1/cm (from memory), written as a pure
-#: Mie law (f_Ray = 0) with a' = 1050.6 * 500^-0.68 1/cm.
+#: Subcutaneous fat: Bashkatov et al. 2005 fit mu_s' = 1050.6 lambda^-0.68 1/cm (from memory), written as a
+#: pure Mie law (f_Ray = 0) with a' = 1050.6 * 500^-0.68 1/cm.
 POWER_LAWS: dict[str, PowerLaw] = {
     "skin_Jacques2013": PowerLaw(46.0 / MM_PER_CM, 0.409, 0.562, "Jacques2013 Table 2 (skin)"),
     "dermis_Jacques2013": PowerLaw(43.6 / MM_PER_CM, 0.41, 0.562, "Jacques2013 Table 2 (dermis)"),
     "epidermis_Jacques2013": PowerLaw(66.7 / MM_PER_CM, 0.29, 0.689, "Jacques2013 Table 2 (epidermis)"),
-    "subcutaneous_fat_Bashkatov2005": PowerLaw(1050.6 * 500.0**-0.68 / MM_PER_CM, 0.0, 0.68,
-                                               "Bashkatov2005 (subcutaneous adipose tissue)"),
+    "subcutaneous_fat_Bashkatov2005": PowerLaw(
+        1050.6 * 500.0**-0.68 / MM_PER_CM, 0.0, 0.68, "Bashkatov2005 (subcutaneous adipose tissue)"
+    ),
 }
 
 
@@ -82,6 +84,7 @@ def mu_s_reduced_Jacques2013(wavelength_nm, a_prime_per_mm: float, f_rayleigh: f
     -------
     float or ndarray
         mu_s' in 1/mm.
+
     """
     x = np.asarray(wavelength_nm, dtype=np.float64) / REFERENCE_WAVELENGTH_NM
     return a_prime_per_mm * (f_rayleigh * x**-4.0 + (1.0 - f_rayleigh) * x ** (-b_mie))
@@ -101,6 +104,7 @@ def mu_s_reduced(bands: BandSet, law: str | PowerLaw) -> np.ndarray:
     -------
     ndarray, shape (B,)
         mu_s' in 1/mm (Jacques2013 Eq. 2).
+
     """
     if isinstance(law, str):
         try:
@@ -110,7 +114,9 @@ def mu_s_reduced(bands: BandSet, law: str | PowerLaw) -> np.ndarray:
     p = law
     return band_average_function(
         lambda wl: mu_s_reduced_Jacques2013(wl, p.a_prime_per_mm, p.f_rayleigh, p.b_mie),
-        bands, f"reduced scattering ({p.source})", SCATTERING_RANGE_NM,
+        bands,
+        f"reduced scattering ({p.source})",
+        SCATTERING_RANGE_NM,
     )
 
 
@@ -129,6 +135,7 @@ def anisotropy_vanGemert1989(wavelength_nm):
     -------
     float or ndarray
         Henyey-Greenstein g (dimensionless).
+
     """
     return 0.62 + 0.29e-3 * np.asarray(wavelength_nm, dtype=np.float64)
 
@@ -150,6 +157,7 @@ def anisotropy(bands: BandSet, method: str = "vanGemert1989", value: float = 0.8
     -------
     ndarray, shape (B,)
         g (dimensionless).
+
     """
     if method not in _G_METHODS:
         raise ParameterError(f"unknown anisotropy method {method!r}; valid methods: {', '.join(_G_METHODS)}")
@@ -157,7 +165,9 @@ def anisotropy(bands: BandSet, method: str = "vanGemert1989", value: float = 0.8
         if not (np.isfinite(value) and -1.0 < value < 1.0):
             raise ParameterError(f"constant anisotropy {value!r} must lie in (-1, 1)")
         return np.full(len(bands), float(value))
-    return band_average_function(anisotropy_vanGemert1989, bands, "anisotropy (van Gemert 1989)", (250.0, 1100.0))
+    return band_average_function(
+        anisotropy_vanGemert1989, bands, "anisotropy (van Gemert 1989)", (250.0, 1100.0)
+    )
 
 
 def mu_s_from_reduced(mu_s_reduced_per_mm, g):

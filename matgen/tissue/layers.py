@@ -15,7 +15,8 @@ tables reuse one scattering simulation for every pigment combination.
 | hypodermis | Bashkatov 2005, subcutaneous fat | van Gemert 1989 | 1.44 |
 
 The stratum corneum takes the epidermis law for want of a separate published fit over 300-1000 nm; the van
-Gemert fit was made for dermis and is used for every layer (both limits are stated in docs/developers/tissue.md).
+Gemert fit was made for dermis and is used for every layer (both limits are stated in
+docs/developers/tissue.md).
 """
 
 from __future__ import annotations
@@ -62,6 +63,7 @@ def layer_scattering(bands: BandSet) -> dict[str, np.ndarray]:
         ``mu_s_reduced``, ``mu_s`` (1/mm), ``g``, ``n`` (dimensionless), each of shape (L, B).
         Sources: Jacques2013 Eq. 2 and Table 2; Bashkatov2005; vanGemert1989; refractive-index sources in
         :mod:`matgen.spectra.refractive`.
+
     """
     musr = np.stack([mu_s_reduced(bands, layer.scattering_law) for layer in LAYERS])
     g = np.stack([anisotropy(bands, layer.anisotropy_method) for layer in LAYERS])

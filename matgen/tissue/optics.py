@@ -5,13 +5,14 @@ Jacques1998 for the epidermis / dermis split):
 
     stratum corneum   f_w mu_water + mu_carotene + (1 - f_w) mu_baseline
     epidermis         f_mel P_mel mu_melanosome + f_w mu_water + mu_carotene + (1 - f_mel - f_w) mu_baseline
-    dermis (2 layers) f_bl P_bl mu_blood + f_w mu_water + f_lip mu_lipid + (1 - f_bl - f_w - f_lip) mu_baseline
+    dermis (2 layers) f_bl P_bl mu_blood + f_w mu_water + f_lip mu_lipid
+                      + (1 - f_bl - f_w - f_lip) mu_baseline
     hypodermis        f_bl P_bl mu_blood + f_w mu_water + f_lip mu_lipid + (rest) mu_baseline
 
 where mu_melanosome mixes eumelanin and pheomelanin by the eumelanin share, mu_blood holds oxy- and
 deoxyhaemoglobin at the oxygen saturation plus plasma bilirubin, P_mel and P_bl are the packaging factors of
-:mod:`matgen.tissue.packaging` (1 when packaging is off), and the baseline (Jacques1998, bloodless skin) stands
-for the protein background of the volume not given to an explicit chromophore.
+:mod:`matgen.tissue.packaging` (1 when packaging is off), and the baseline (Jacques1998, bloodless skin)
+stands for the protein background of the volume not given to an explicit chromophore.
 
 Scattering (mu_s, g, n) and thickness come from :mod:`matgen.tissue.layers` and the thickness fields only.
 """
@@ -19,8 +20,8 @@ Scattering (mu_s, g, n) and thickness come from :mod:`matgen.tissue.layers` and 
 from __future__ import annotations
 
 import functools
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Sequence
 
 import numpy as np
 
@@ -33,7 +34,7 @@ from matgen.tissue.layers import LAYER_NAMES, layer_scattering
 from matgen.tissue.packaging import applies, check_packaging, duysens_sphere_factor, vessel_factor
 from matgen.tissue.parameters import SkinParameters
 
-#: Plasma share of whole-blood volume, 1 - haematocrit, with haematocrit 0.45 (typical adult value, from memory).
+#: Plasma share of whole-blood volume, 1 - haematocrit, haematocrit 0.45 (typical adult value, from memory).
 PLASMA_FRACTION = 0.55
 
 
@@ -66,16 +67,19 @@ def _spectra(key) -> dict[str, np.ndarray]:
 
 
 def chromophore_spectra(bands: BandSet) -> dict[str, np.ndarray]:
-    """The band-averaged base spectra the model combines (cached per band set; read-only arrays).
+    """Return the band-averaged base spectra the model combines (cached per band set; read-only).
 
-    Keys: ``hbo2``, ``hb`` (whole blood at 150 g/L, 1/mm), ``eumelanin``, ``pheomelanin`` (melanosome interior,
+    Keys: ``hbo2``, ``hb`` (whole blood at 150 g/L, 1/mm), ``eumelanin``, ``pheomelanin`` (melanosome
+    interior,
     1/mm), ``water``, ``lipid``, ``baseline`` (1/mm), ``carotene_ext``, ``bilirubin_ext`` (cm^-1/M), and
     ``scatter_mu_s_reduced``, ``scatter_mu_s``, ``scatter_g``, ``scatter_n`` of shape (L, B).
     """
     return _spectra(_band_key(bands))
 
 
-def absorption_batch(param_sets: Sequence[SkinParameters], bands: BandSet, packaging: str = "on") -> np.ndarray:
+def absorption_batch(
+    param_sets: Sequence[SkinParameters], bands: BandSet, packaging: str = "on"
+) -> np.ndarray:
     """Absorption coefficients of every layer for many parameter sets at once.
 
     Parameters
@@ -91,6 +95,7 @@ def absorption_batch(param_sets: Sequence[SkinParameters], bands: BandSet, packa
     -------
     ndarray, shape (K, L, B)
         mu_a in 1/mm, layers in :data:`matgen.tissue.layers.LAYER_NAMES` order. Sources: see module docstring.
+
     """
     check_packaging(packaging)
     param_sets = list(param_sets)
@@ -129,7 +134,11 @@ def absorption_batch(param_sets: Sequence[SkinParameters], bands: BandSet, packa
     rest = 1.0 - fb - fw - fl
     pap = fb * blood_pap + fw * water + fl * lipid + rest * base
     ret = fb * blood_ret + fw * water + fl * lipid + rest * base
-    fb, fw, fl = col("hypodermis_blood_fraction"), col("hypodermis_water_fraction"), col("hypodermis_lipid_fraction")
+    fb, fw, fl = (
+        col("hypodermis_blood_fraction"),
+        col("hypodermis_water_fraction"),
+        col("hypodermis_lipid_fraction"),
+    )
     hyp = fb * blood_ret + fw * water + fl * lipid + (1.0 - fb - fw - fl) * base
     return np.stack([sc, epi, pap, ret, hyp], axis=1)
 
@@ -151,6 +160,7 @@ class SkinOptics:
     packaging : str
         Packaging mode used for mu_a.
     params : SkinParameters
+
     """
 
     layer_names: tuple
@@ -191,7 +201,14 @@ class SkinOptics:
         return {
             "wavelength_nm": self.bands.centre_nm.tolist(),
             "bands": self.bands.to_dict(),
-            "units": {"wavelength": "nm", "thickness": "mm", "mu_a": "1/mm", "mu_s": "1/mm", "g": "1", "n": "1"},
+            "units": {
+                "wavelength": "nm",
+                "thickness": "mm",
+                "mu_a": "1/mm",
+                "mu_s": "1/mm",
+                "g": "1",
+                "n": "1",
+            },
             "n_above": self.n_above,
             "n_below": self.n_below,
             "packaging": self.packaging,
@@ -226,6 +243,7 @@ def skin_optics(params: SkinParameters, bands: BandSet, packaging: str = "on") -
     -------
     SkinOptics
         mu_a, mu_s (1/mm), g, n per layer and band; thickness (mm). Sources in the module docstring.
+
     """
     if not isinstance(params, SkinParameters):
         raise ParameterError(f"params must be SkinParameters, not {type(params).__name__}")
@@ -240,5 +258,12 @@ def skin_optics(params: SkinParameters, bands: BandSet, packaging: str = "on") -
     }
     for arr in arrays.values():
         arr.setflags(write=False)
-    return SkinOptics(layer_names=LAYER_NAMES, bands=bands, n_above=N_AIR, n_below=N_BELOW_MUSCLE,
-                      packaging=packaging, params=params, **arrays)
+    return SkinOptics(
+        layer_names=LAYER_NAMES,
+        bands=bands,
+        n_above=N_AIR,
+        n_below=N_BELOW_MUSCLE,
+        packaging=packaging,
+        params=params,
+        **arrays,
+    )

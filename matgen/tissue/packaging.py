@@ -54,6 +54,7 @@ def duysens_sphere_factor(mu_a_particle_per_mm, diameter_mm):
     -------
     float or ndarray
         F in (0, 1]; mu_a,effective = F * (volume fraction) * mu_a,particle.
+
     """
     tau = np.asarray(mu_a_particle_per_mm, dtype=np.float64) * np.asarray(diameter_mm, dtype=np.float64)
     small = tau < SERIES_BELOW_TAU
@@ -91,6 +92,7 @@ def vessel_factor_vanVeen2002(mu_a_blood_per_mm, radius_mm):
     -------
     float or ndarray
         C in (0, 1]; mu_a,effective = C * (blood fraction) * mu_a,blood.
+
     """
     x = 2.0 * np.asarray(mu_a_blood_per_mm, dtype=np.float64) * np.asarray(radius_mm, dtype=np.float64)
     x_safe = np.where(x > 1e-8, x, 1.0)

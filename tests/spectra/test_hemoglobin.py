@@ -1,4 +1,5 @@
-"""Haemoglobin: vendored Prahl table against the installed mne copy, published facts, blood conversion, extension."""
+"""Haemoglobin: vendored Prahl table against the installed mne copy, published facts, blood conversion,
+extension."""
 
 import numpy as np
 import pytest
@@ -14,7 +15,8 @@ def _narrow(centres, half=0.01):
 
 
 def test_vendored_table_matches_mne(ref):
-    """mne 1.x, mne/data/extinction_coef.mat (Prahl's compilation): relative difference < 0.5 % at every point."""
+    """mne 1.x, mne/data/extinction_coef.mat (Prahl's compilation): relative difference < 0.5 % at every
+    point."""
     wl, hbo2, hb = ref.mne_extinction()
     v_wl, v_ext = ch.hemoglobin_table()
     assert np.array_equal(v_wl, wl)
@@ -23,7 +25,8 @@ def test_vendored_table_matches_mne(ref):
 
 
 def test_band_average_at_table_points_matches_mne(ref):
-    """Narrow bands (0.02 nm) centred on mne's 2 nm points reproduce mne's values within 0.5 % (250.01-999.99 nm)."""
+    """Narrow bands (0.02 nm) centred on mne's 2 nm points reproduce mne's values within 0.5 %
+    (250.01-999.99 nm)."""
     wl, hbo2, hb = ref.mne_extinction()
     keep = (wl > 250) & (wl < 1000)
     ext = ch.hemoglobin_extinction(_narrow(wl[keep]))
@@ -37,7 +40,8 @@ def _peak(wl, v, lo, hi):
 
 
 def test_peaks_and_isosbestic_point():
-    """Facts of Prahl's table (REFERENCES.md, read from the table): HbO2 peaks 414, 542, 576 nm; Hb 432, 556 nm
+    """Facts of Prahl's table (REFERENCES.md, read from the table): HbO2 peaks 414, 542, 576 nm; Hb 432,
+    556 nm
     (+-2 nm); HbO2/Hb crossing near 797 nm (796.8 nm, +-3 nm)."""
     wl, ext = ch.hemoglobin_table()
     hbo2, hb = ext[:, 0], ext[:, 1]

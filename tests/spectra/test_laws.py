@@ -38,7 +38,8 @@ def test_eumelanin_matches_simpa(ref):
 
 
 def test_pheomelanin_and_mixture():
-    """Donner & Jensen 2006 pheomelanin 2.9e14 lambda^-4.75 1/mm (from memory); mixture linear in the share."""
+    """Donner & Jensen 2006 pheomelanin 2.9e14 lambda^-4.75 1/mm (from memory); mixture linear in the
+    share."""
     band = _narrow([500.0])
     ph = ch.mu_a_pheomelanin(band)[0]
     assert ph == pytest.approx(2.9e14 * 500.0**-4.75, rel=1e-8)
@@ -66,8 +67,11 @@ def test_baseline_matches_formula_and_simpa(ref):
 
 
 def test_saidi_baseline_range():
-    """Saidi's neonatal fit 7.84e8 lambda^-3.255 1/cm holds on 450-750 nm only (Jacques 1998): error beyond."""
-    assert ch.mu_a_baseline(_narrow([600.0]), "Saidi1992")[0] == pytest.approx(7.84e8 * 600**-3.255 / 10, rel=1e-8)
+    """Saidi's neonatal fit 7.84e8 lambda^-3.255 1/cm holds on 450-750 nm only (Jacques 1998): error
+    beyond."""
+    assert ch.mu_a_baseline(_narrow([600.0]), "Saidi1992")[0] == pytest.approx(
+        7.84e8 * 600**-3.255 / 10, rel=1e-8
+    )
     with pytest.raises(BandError, match="450-750"):
         ch.mu_a_baseline(_narrow([800.0]), "Saidi1992")
 

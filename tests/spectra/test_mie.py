@@ -1,4 +1,5 @@
-"""Mie scattering of sphere populations (miepython) against the analytic Rayleigh limit and the extinction paradox."""
+"""Mie scattering of sphere populations (miepython) against the analytic Rayleigh limit and the
+extinction paradox."""
 
 import numpy as np
 import pytest

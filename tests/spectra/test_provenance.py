@@ -40,6 +40,10 @@ def test_make_spectra_reproduces_vendored_files():
             __import__("importlib.metadata").metadata.version(dist)
         except Exception:
             pytest.skip(f"{dist} not installed")
-    proc = subprocess.run([sys.executable, str(ROOT / "tools" / "make_spectra.py"), "--check"],
-                          capture_output=True, text=True, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, str(ROOT / "tools" / "make_spectra.py"), "--check"],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert proc.returncode == 0, proc.stderr

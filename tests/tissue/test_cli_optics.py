@@ -1,4 +1,5 @@
-"""``matgen optics``: outputs, plot, every parameter as an option, and bad input (exit 2, one message, no file)."""
+"""``matgen optics``: outputs, plot, every parameter as an option, and bad input (exit 2, one message, no
+file)."""
 
 import csv
 import io
@@ -8,10 +9,10 @@ import numpy as np
 import pytest
 
 from matgen.cli import main
+from matgen.spectra.bands import BandSet
 from matgen.tissue.optics import skin_optics
 from matgen.tissue.parameters import FIELD_SPECS
 from matgen.tissue.presets import preset
-from matgen.spectra.bands import BandSet
 
 
 def test_cheek_table_and_plot(tmp_path, capsys):
@@ -27,13 +28,29 @@ def test_cheek_table_and_plot(tmp_path, capsys):
 
 
 def test_json_matches_library(capsys):
-    assert main(["optics", "--preset", "forearm", "--blood-fraction", "0.05", "--format", "json",
-                 "--wavelengths", "400:700:50"]) == 0
+    assert (
+        main(
+            [
+                "optics",
+                "--preset",
+                "forearm",
+                "--blood-fraction",
+                "0.05",
+                "--format",
+                "json",
+                "--wavelengths",
+                "400:700:50",
+            ]
+        )
+        == 0
+    )
     d = json.loads(capsys.readouterr().out)
-    expect = skin_optics(preset("forearm").replace(blood_fraction=0.05), BandSet.parse("400:700:50")).to_dict()
+    expect = skin_optics(
+        preset("forearm").replace(blood_fraction=0.05), BandSet.parse("400:700:50")
+    ).to_dict()
     assert d["wavelength_nm"] == [400.0, 450.0, 500.0, 550.0, 600.0, 650.0, 700.0]
     assert d["packaging"] == "on" and d["parameters"]["blood_fraction"] == 0.05
-    for got, want in zip(d["layers"], expect["layers"]):
+    for got, want in zip(d["layers"], expect["layers"], strict=True):
         assert got["name"] == want["name"] and got["thickness_mm"] == want["thickness_mm"]
         for key in ("mu_a", "mu_s", "g", "n"):
             assert np.allclose(got[key], want[key], rtol=1e-12)
@@ -45,8 +62,9 @@ def test_csv_long_format(capsys):
     assert len(rows) == 5 * 2
     assert {r["packaging"] for r in rows} == {"off"}
     r = rows[0]
-    assert float(r["mu_s_reduced_per_mm"]) == pytest.approx(float(r["mu_s_per_mm"]) * (1 - float(r["g"])),
-                                                            rel=1e-6)
+    assert float(r["mu_s_reduced_per_mm"]) == pytest.approx(
+        float(r["mu_s_per_mm"]) * (1 - float(r["g"])), rel=1e-6
+    )
 
 
 def test_every_parameter_is_an_option(capsys):
@@ -63,18 +81,21 @@ def test_every_parameter_is_an_option(capsys):
     assert json.loads(capsys.readouterr().out)["parameters"] == values
 
 
-@pytest.mark.parametrize("argv, needle", [
-    (["--blood-fraction", "nan"], "blood_fraction"),
-    (["--melanin-fraction", "inf"], "melanin_fraction"),
-    (["--blood-fraction", "-0.01"], "[0, 0.2]"),
-    (["--oxygen-saturation", "1.5"], "oxygen_saturation"),
-    (["--melanin-fraction", "0.45", "--epidermis-water-fraction", "0.6"], "sum to"),
-    (["--preset", "nose"], "unknown preset 'nose'"),
-    (["--wavelengths", "600,500"], "not strictly increasing"),
-    (["--wavelengths", ""], "band spec is empty"),
-    (["--wavelengths", "400:700:10:20"], "cannot read band spec"),
-    (["--wavelengths", "1500"], "covers"),
-])
+@pytest.mark.parametrize(
+    "argv, needle",
+    [
+        (["--blood-fraction", "nan"], "blood_fraction"),
+        (["--melanin-fraction", "inf"], "melanin_fraction"),
+        (["--blood-fraction", "-0.01"], "[0, 0.2]"),
+        (["--oxygen-saturation", "1.5"], "oxygen_saturation"),
+        (["--melanin-fraction", "0.45", "--epidermis-water-fraction", "0.6"], "sum to"),
+        (["--preset", "nose"], "unknown preset 'nose'"),
+        (["--wavelengths", "600,500"], "not strictly increasing"),
+        (["--wavelengths", ""], "band spec is empty"),
+        (["--wavelengths", "400:700:10:20"], "cannot read band spec"),
+        (["--wavelengths", "1500"], "covers"),
+    ],
+)
 def test_bad_input_exit_2_one_message_nothing_written(tmp_path, capsys, argv, needle):
     png = tmp_path / "never.png"
     assert main(["optics", *argv, "--plot", str(png)]) == 2

@@ -1,4 +1,5 @@
-"""The layered skin optics model: layout, transport hand-off, composition, pigment independence of scattering."""
+"""The layered skin optics model: layout, transport hand-off, composition, pigment independence of
+scattering."""
 
 import dataclasses
 
@@ -20,8 +21,11 @@ BANDS = default_bands()
 def test_layout_and_stack_handoff():
     o = skin_optics(preset("cheek"), BANDS)
     L, B = len(LAYER_NAMES), len(BANDS)
-    assert o.layer_names == LAYER_NAMES == ("stratum_corneum", "epidermis", "papillary_dermis",
-                                            "reticular_dermis", "hypodermis")
+    assert (
+        o.layer_names
+        == LAYER_NAMES
+        == ("stratum_corneum", "epidermis", "papillary_dermis", "reticular_dermis", "hypodermis")
+    )
     for arr in (o.n, o.mu_a, o.mu_s, o.g):
         assert arr.shape == (L, B) and np.all(np.isfinite(arr))
     assert o.thickness_mm.shape == (L,) and o.n_above == 1.0 and o.n_below > 1.0
@@ -47,7 +51,9 @@ def test_to_dict_layout():
 @pytest.mark.parametrize("field", PIGMENT_FIELDS)
 def test_scattering_does_not_depend_on_pigments(field):
     """Agreed interface: mu_s, g, n and thickness depend on layer identity and thickness fields only."""
-    base = SkinParameters(dermis_water_fraction=0.5, epidermis_water_fraction=0.5, hypodermis_lipid_fraction=0.6)
+    base = SkinParameters(
+        dermis_water_fraction=0.5, epidermis_water_fraction=0.5, hypodermis_lipid_fraction=0.6
+    )
     spec = FIELD_SPECS[field]
     other = base.replace(**{field: spec.low + 0.37 * (spec.high - spec.low) * 0.5})
     a, b = skin_optics(base, BANDS), skin_optics(other, BANDS)
@@ -56,7 +62,9 @@ def test_scattering_does_not_depend_on_pigments(field):
 
 
 def test_batch_equals_one_by_one():
-    sets = [preset(n) for n in ("cheek", "palm")] + [SkinParameters(melanin_fraction=0.3, eumelanin_share=0.2)]
+    sets = [preset(n) for n in ("cheek", "palm")] + [
+        SkinParameters(melanin_fraction=0.3, eumelanin_share=0.2)
+    ]
     batch = absorption_batch(sets, BANDS, packaging="on")
     assert batch.shape == (3, 5, len(BANDS))
     for k, p in enumerate(sets):
@@ -68,14 +76,23 @@ def test_batch_equals_one_by_one():
 def test_composition_without_packaging_matches_literal_sum():
     """With packaging off, each layer's mu_a is the plain volume-weighted chromophore sum (module docstring,
     after Jacques 2013's generic tissue equation), recomputed here from the chromophore functions."""
-    p = SkinParameters(melanin_fraction=0.1, eumelanin_share=0.6, blood_fraction=0.05, oxygen_saturation=0.6,
-                       carotene_umol_per_l=2.0, bilirubin_umol_per_l=50.0, dermis_lipid_fraction=0.05)
+    p = SkinParameters(
+        melanin_fraction=0.1,
+        eumelanin_share=0.6,
+        blood_fraction=0.05,
+        oxygen_saturation=0.6,
+        carotene_umol_per_l=2.0,
+        bilirubin_umol_per_l=50.0,
+        dermis_lipid_fraction=0.05,
+    )
     bands = BandSet.regular(400, 900, 50)
     got = skin_optics(p, bands, packaging="off").mu_a
     water, lipid, base = ch.mu_a_water(bands), ch.mu_a_lipid(bands), ch.mu_a_baseline(bands)
     mel = 0.6 * ch.mu_a_eumelanin(bands) + 0.4 * ch.mu_a_pheomelanin(bands)
     car = ch.mu_a_from_molar(ch.extinction_carotene(bands), 2.0)
-    blood = ch.mu_a_blood(bands, 0.6) + PLASMA_FRACTION * ch.mu_a_from_molar(ch.extinction_bilirubin(bands), 50.0)
+    blood = ch.mu_a_blood(bands, 0.6) + PLASMA_FRACTION * ch.mu_a_from_molar(
+        ch.extinction_bilirubin(bands), 50.0
+    )
     sc = 0.2 * water + car + 0.8 * base
     epi = 0.1 * mel + 0.6 * water + car + 0.3 * base
     derm = 0.05 * blood + 0.65 * water + 0.05 * lipid + 0.25 * base
@@ -96,7 +113,8 @@ def test_packaging_lowers_absorption_where_pigment_is_strong():
 
 
 def test_pigment_trends():
-    """More melanin darkens the epidermis; deoxygenated blood absorbs more at 760 nm (Hb band), less at 900 nm."""
+    """More melanin darkens the epidermis; deoxygenated blood absorbs more at 760 nm (Hb band), less at
+    900 nm."""
     bands = BandSet.parse("420,760,900")
     lo = skin_optics(SkinParameters(melanin_fraction=0.02), bands).mu_a
     hi = skin_optics(SkinParameters(melanin_fraction=0.2), bands).mu_a

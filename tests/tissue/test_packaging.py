@@ -9,7 +9,8 @@ from matgen.tissue import packaging as pk
 
 
 def _sphere_absorption_by_quadrature(tau):
-    """Fraction of light absorbed by a sphere of optical diameter tau, integrating 1 - exp(-mu * chord) over the
+    """Fraction of light absorbed by a sphere of optical diameter tau, integrating 1 - exp(-mu * chord)
+    over the
     cross-section (chord 2 sqrt(R^2 - b^2); ray optics, no refraction; van de Hulst 1957 Sec. 7)."""
     radius = 0.5
     mu = tau  # diameter 1
@@ -45,7 +46,8 @@ def test_duysens_limits():
 
 
 def test_vessel_factor():
-    """van Veen et al. 2002: C = (1 - exp(-2 mu R)) / (2 mu R); C(0) = 1, C -> 1/(2 mu R) for opaque vessels."""
+    """van Veen et al. 2002: C = (1 - exp(-2 mu R)) / (2 mu R); C(0) = 1, C -> 1/(2 mu R) for opaque
+    vessels."""
     assert pk.vessel_factor(0.0, 0.01) == 1.0
     assert pk.vessel_factor(10.0, 0.05) == pytest.approx((1 - np.exp(-1.0)) / 1.0)
     assert pk.vessel_factor(1e4, 0.05) == pytest.approx(1 / 1e3, rel=1e-6)

@@ -58,7 +58,9 @@ def test_replace_unknown_field_and_roundtrip():
 
 def test_thickness_scale_multiplies_every_layer():
     p = SkinParameters()
-    assert p.replace(thickness_scale=2.0).thicknesses_mm() == pytest.approx([2 * t for t in p.thicknesses_mm()])
+    assert p.replace(thickness_scale=2.0).thicknesses_mm() == pytest.approx(
+        [2 * t for t in p.thicknesses_mm()]
+    )
 
 
 def test_presets():
