@@ -34,11 +34,14 @@ class TexelLookup:
         The lookup table (``axes``, ``quantities``).
     request : dict
         Quantity name -> channel indices to keep (int array) or None for all channels.
+    derived : dict, optional
+        Extra name -> grid array (``grid_shape + (C,)``) interpolated alongside, for quantities that are
+        linear in the table's values (pass responses, band averages) and so can be formed on the grid once.
     backend : {"numba", "python"}
         The compiled kernel or its pure-Python twin (parity tests).
     """
 
-    def __init__(self, table, request: dict, backend: str = "numba"):
+    def __init__(self, table, request: dict, backend: str = "numba", derived: dict | None = None):
         self.axis_names = tuple(a.name for a in table.axes)
         self.axis_min = np.array([float(np.min(a.values)) for a in table.axes])
         self.axis_max = np.array([float(np.max(a.values)) for a in table.axes])
@@ -53,6 +56,13 @@ class TexelLookup:
             if channels is not None:
                 q = q[..., np.asarray(channels, dtype=np.int64)]
             blocks.append(q.astype(np.float32, copy=False))
+            self.slices[name] = slice(start, start + q.shape[-1])
+            start += q.shape[-1]
+        for name, grid in (derived or {}).items():
+            q = np.asarray(grid, dtype=np.float32)
+            if q.shape[:-1] != tuple(a.values.size for a in table.axes):
+                raise TableError(f"derived grid '{name}' has shape {q.shape}; expected the table's grid + channels")
+            blocks.append(q)
             self.slices[name] = slice(start, start + q.shape[-1])
             start += q.shape[-1]
         values = np.concatenate(blocks, axis=-1)

@@ -118,6 +118,7 @@ class BakePlan:
     pass_weights: dict  # pass name -> (B,) weights over the table's bands
     visible_index: np.ndarray
     request: dict = field(default_factory=dict)
+    derived: dict = field(default_factory=dict)  # name -> grid array (grid_shape + (C,)) made from the table
     single_tile: int | None = None  # the one UDIM tile of a farm bake (``--tile``), else None
 
     @property
@@ -252,7 +253,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
     spectral_index, spectral_bands = _spectral_subset(bands, config.outputs.spectral_bands)
     vis = np.nonzero((bands.centre_nm >= VISIBLE_RANGE_NM[0]) & (bands.centre_nm <= VISIBLE_RANGE_NM[1]))[0]
     passes = _resolve_passes(config, bands, allow_outside)
-    outputs, request, full = [], {}, set()
+    outputs, request, derived = [], {}, {}
     names = tuple(spectral_channel_name(c) for c in spectral_bands.centre_nm)
     for q in config.outputs.spectral:
         request[q] = spectral_index
@@ -274,15 +275,17 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
                        "1", "OpenPBR subsurface_radius_scale: per-channel mean free path / subsurface_radius"),
         ]
         if "anisotropy" in table.quantities and vis.size:
-            request.setdefault("anisotropy", None)
-            full.add("anisotropy")
+            # the blend is linear in the grid values: averaging on the grid equals averaging the lookups
+            g = np.asarray(table.quantities["anisotropy"], dtype=np.float64)[..., vis]
+            derived["openpbr_anisotropy"] = g.mean(axis=-1, keepdims=True)
             outputs.append(OutputSpec("openpbr/subsurface_scatter_anisotropy", "target",
                                       "subsurface_scatter_anisotropy", ("Y",), "1",
                                       f"OpenPBR subsurface_scatter_anisotropy: mean g over {VISIBLE_RANGE_NM[0]:g}-"
                                       f"{VISIBLE_RANGE_NM[1]:g} nm bands"))
     for name in passes:
-        request.setdefault("albedo_multiple", None)
-        full.add("albedo_multiple")
+        # w @ A is linear in the grid values, so it is formed on the grid once and interpolated like A
+        a = np.asarray(table.quantities["albedo_multiple"], dtype=np.float64)
+        derived[f"pass_{name}"] = (a @ passes[name])[..., None]
         outputs.append(OutputSpec(f"passes/{name}", "pass", name, ("Y",), "1",
                                   f"camera pass '{name}': response-weighted multiple-scattering albedo"))
     if config.outputs.qa:
@@ -293,10 +296,8 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         outputs.append(OutputSpec("qa/qa", "qa", "qa", tuple(chans), "1",
                                   "QA: 1 where a parameter was clamped to the table / encoding range; "
                                   "largest RGB fit residual"))
-    for q in full:  # passes and the scalar anisotropy need every band of the table
-        request[q] = None
     return BakePlan(config, table, sources, tile_inputs, outputs, spectral_index, spectral_bands, passes, vis,
-                    request, single_tile=tile)
+                    request, derived, single_tile=tile)
 
 
 @dataclass
@@ -367,8 +368,6 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
     for spec in plan.outputs:
         if spec.kind == "spectral":
             v = vals[spec.quantity]
-            if plan.request[spec.quantity] is None:
-                v = v[:, plan.spectral_index]
         elif spec.kind == "rgb":
             v = vals[spec.quantity]
         elif spec.kind == "target":
@@ -382,9 +381,9 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
                 else:
                     v = np.divide(mfp, radius, out=np.ones_like(mfp), where=radius > 0)
             else:  # subsurface_scatter_anisotropy
-                v = vals["anisotropy"][:, plan.visible_index].mean(axis=1, keepdims=True)
+                v = vals["openpbr_anisotropy"]
         elif spec.kind == "pass":
-            v = (vals["albedo_multiple"].astype(np.float64) @ plan.pass_weights[spec.quantity])[:, None]
+            v = vals[f"pass_{spec.quantity}"]
         else:  # qa
             cols = [clamped.astype(np.float32), enc_flag.astype(np.float32)]
             if "fit_residual" in spec.channels:
@@ -415,7 +414,7 @@ def iter_strips(plan: BakePlan, tile: int | None, *, lookup: TexelLookup | None 
     Strip
     """
     ti = plan.tile_inputs(tile)
-    lookup = lookup or TexelLookup(plan.table, plan.request)
+    lookup = lookup or TexelLookup(plan.table, plan.request, derived=plan.derived)
     n_out = sum(len(s.channels) for s in plan.outputs) + lookup.channels + len(plan.axis_sources)
     step = rows or rows_per_strip(ti.width, ti.height, n_out, memory_budget_bytes)
     readers = _readers(plan, ti)

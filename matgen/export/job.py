@@ -195,7 +195,7 @@ def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, ti
 def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, report) -> BakeResult:
     cfg = plan.config
     opts = cfg.outputs
-    lookup = TexelLookup(table, plan.request)
+    lookup = TexelLookup(table, plan.request, derived=plan.derived)
     total = plan.texels
     done = 0
     entries, written = [], []

@@ -60,6 +60,11 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
     mfp_cm = ref["rgb_mean_free_path_mm"].astype(np.float64) / 10.0
     np.testing.assert_allclose(radius[ys, xs, 0:1] * scale[ys, xs], mfp_cm, rtol=1e-6)
     np.testing.assert_allclose(scale[ys, xs].max(axis=1), 1.0, rtol=1e-7)
+    # OpenPBR anisotropy: mean of the table's g over the 400-700 nm bands (formed on the grid, then blended)
+    aniso, _, _ = read_exr(out / "openpbr" / "subsurface_scatter_anisotropy.exr")
+    vis = (table.bands.centre_nm >= 400) & (table.bands.centre_nm <= 700)
+    np.testing.assert_allclose(aniso[ys, xs, 0], ref["anisotropy"][:, vis].astype(np.float64).mean(axis=1),
+                               rtol=1e-6)
     assert res.table_clamped == 0 and res.texels == 40 * 24
 
 
