@@ -88,6 +88,7 @@ def _read(path: Path):
 def fit_document(results, bands, *, anisotropy, ior, inversion, metres_per_scene_unit, working_space, illuminant):
     """All fits for a list of per-band results: a JSON-ready dict (also the Python API of ``matgen fit``)."""
     from matgen.fit.fitting import fit_dipole_Jensen2001, fit_gaussians_dEon2007
+    from matgen.fit.inversion import albedo_single_OpenPBR2024
     from matgen.fit.summary import resolve_inversion, summarize
     from matgen.fit.targets import TARGETS, EffectiveMedium
 
@@ -143,6 +144,10 @@ def fit_document(results, bands, *, anisotropy, ior, inversion, metres_per_scene
         }
         if labelled:
             entry["wavelength_nm"] = float(bands.centre_nm[b])
+        if method != "OpenPBR2024":
+            closed = albedo_single_OpenPBR2024(entry["albedo_multiple"], entry["anisotropy"])
+            entry["albedo_single_OpenPBR2024"] = float(closed)
+            entry["albedo_single_difference"] = entry["albedo_single"] - float(closed)
         per_band.append(entry)
     clamps = []
     targets = {}

@@ -146,7 +146,8 @@ def golden_log_search(cost, grid, n):
     return 0.5 * (left + right), at_edge
 
 
-def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, *, conserve_albedo=True):
+def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, *, conserve_albedo=True,
+                   backend="numba"):
     """Fit the normalised-diffusion profile to N ring profiles at once.
 
     Parameters
@@ -162,6 +163,9 @@ def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple
     conserve_albedo : bool
         True (default): A is held at the measured value and only d is fitted. False: A is fitted too
         (for each trial d the best A is the weighted linear least-squares amplitude).
+    backend : {"numba", "numpy"}
+        ``"numba"`` (default): the parallel kernel of :mod:`matgen.fit.kernels`; ``"numpy"``: its pure-Python
+        twin (same steps, vectorised over profiles).
 
     Returns
     -------
@@ -199,8 +203,21 @@ def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple
             amp = np.where(den > 0, num / np.where(den > 0, den, 1.0), 0.0)
         return _weighted_misfit(amp[:, None] * unit, y, w), amp
 
-    log_d, at_edge = golden_log_search(lambda x: misfit(x)[0], grid, n)
-    cost, amp = misfit(log_d)
+    if backend == "numba":
+        from matgen.fit.kernels import fit_burley_kernel
+
+        log_d = np.empty(n)
+        amp = np.empty(n)
+        cost = np.empty(n)
+        at_edge = np.empty(n, dtype=np.bool_)
+        a_in = a if a is not None else np.ones(n)
+        fit_burley_kernel(e, np.ascontiguousarray(y), np.ascontiguousarray(w), np.ascontiguousarray(a_in),
+                          bool(conserve_albedo), grid, _GOLDEN_ITERATIONS, log_d, amp, cost, at_edge)
+    elif backend == "numpy":
+        log_d, at_edge = golden_log_search(lambda x: misfit(x)[0], grid, n)
+        cost, amp = misfit(log_d)
+    else:
+        raise FitError(f"unknown backend {backend!r}; use 'numba' or 'numpy'")
     d = np.exp(log_d)
     norm = np.sum((y * w) ** 2, axis=-1)
     residual = np.sqrt(cost / norm)

@@ -17,7 +17,8 @@ Methods (``method=`` of :func:`albedo_single` and :func:`albedo_multiple`):
   with its provenance record), inverted numerically.
 
 The mean free path of the effective medium follows from the fitted shape distance d: l = s d with the
-scaling factor s of Christensen & Burley's mean-free-path fit (closed-form methods) or of the table.
+scaling factor s of Christensen & Burley's searchlight mean-free-path fit s = 1.85 - A + 7 |A - 0.8|^3
+(closed-form methods) or of the table.
 """
 
 from __future__ import annotations
@@ -467,5 +468,5 @@ def effective_medium(albedo_multiple_value, shape_distance_mm, g=0.0, n=1.0, *, 
         alpha, s = tab.invert(a, gv, n)
     else:
         alpha = albedo_single(a, gv, n, method=method)
-        s = shape_scaling_Christensen2015(a, "mfp")
+        s = shape_scaling_Christensen2015(a, "searchlight_mfp")
     return {"albedo_single": alpha, "mean_free_path_mm": s * d, "shape_scaling": np.broadcast_to(s, np.shape(a)).copy()}

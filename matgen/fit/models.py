@@ -113,25 +113,33 @@ def burley2015_rings(ring_edges_mm, albedo_multiple, shape_distance_mm):
 
 
 #: Names of the published scaling-factor fits s(A) = l / d of Christensen & Burley 2015.
-SHAPE_SCALING_METHODS = ("Christensen2015_searchlight_dmfp", "Christensen2015_diffuse_dmfp", "Christensen2015_mfp")
+SHAPE_SCALING_METHODS = (
+    "Christensen2015_searchlight_mfp",
+    "Christensen2015_diffuse_mfp",
+    "Christensen2015_searchlight_dmfp",
+)
 
 
-def shape_scaling_Christensen2015(albedo_multiple, configuration="mfp"):
+def shape_scaling_Christensen2015(albedo_multiple, configuration="searchlight_mfp"):
     """Scaling factor s(A) = l / d of the normalised-diffusion profile (dimensionless).
 
     Three empirical fits to Monte Carlo profiles, one per configuration:
 
-    - ``"searchlight_dmfp"``: s = 1.85 - A + 7 |A - 0.8|^3, with l the diffuse mean free path (searchlight
-      illumination);
-    - ``"diffuse_dmfp"``: s = 1.9 - A + 3.5 (A - 0.8)^2, with l the diffuse mean free path (diffuse surface
-      transmission);
-    - ``"mfp"``: s = 3.5 + 100 (A - 0.33)^4, with l the mean free path 1 / sigma_t (searchlight).
+    - ``"searchlight_mfp"``: s = 1.85 - A + 7 |A - 0.8|^3, l the mean free path 1 / sigma_t, normal
+      (searchlight) illumination;
+    - ``"diffuse_mfp"``: s = 1.9 - A + 3.5 (A - 0.8)^2, l the mean free path, diffuse surface transmission;
+    - ``"searchlight_dmfp"``: s = 3.5 + 100 (A - 0.33)^4, l the diffuse mean free path
+      1 / sigma_tr = 1 / sqrt(3 sigma_a sigma_t'), searchlight illumination.
+
+    Which length each fit refers to was settled with matgen's own transport (``tests/fit/test_mc_fit.py``):
+    on an index-matched isotropic half-space the fitted l / d follows the first form with l = 1 / sigma_t
+    and the third with l = 1 / sigma_tr (both within about 5 % for 0.28 < A < 0.55).
 
     Parameters
     ----------
     albedo_multiple : float or ndarray
         Total diffuse reflectance A (0..1).
-    configuration : {"searchlight_dmfp", "diffuse_dmfp", "mfp"}
+    configuration : {"searchlight_mfp", "diffuse_mfp", "searchlight_dmfp"}
         Which published fit.
 
     Returns
@@ -141,23 +149,23 @@ def shape_scaling_Christensen2015(albedo_multiple, configuration="mfp"):
 
     References
     ----------
-    ``Christensen2015``, Sec. 5 (the three fits, Eqs. 5, 6 and 8 from memory: coefficients as quoted in the
-    project's design notes; the memo was not re-read when this was written).
+    ``Christensen2015``, Sec. 5 (coefficients from memory, as quoted in the project's design notes; the
+    assignment of each fit to a length scale is the one matgen's transport confirms, see above).
     """
     a = np.asarray(albedo_multiple, dtype=np.float64)
-    if configuration == "searchlight_dmfp":
+    if configuration == "searchlight_mfp":
         return 1.85 - a + 7.0 * np.abs(a - 0.8) ** 3
-    if configuration == "diffuse_dmfp":
+    if configuration == "diffuse_mfp":
         return 1.9 - a + 3.5 * (a - 0.8) ** 2
-    if configuration == "mfp":
+    if configuration == "searchlight_dmfp":
         return 3.5 + 100.0 * (a - 0.33) ** 4
     raise ParameterError(
         f"unknown normalised-diffusion configuration {configuration!r}; use one of "
-        "'searchlight_dmfp', 'diffuse_dmfp', 'mfp'"
+        "'searchlight_mfp', 'diffuse_mfp', 'searchlight_dmfp'"
     )
 
 
-def shape_scaling(albedo_multiple, method="Christensen2015_mfp"):
+def shape_scaling(albedo_multiple, method="Christensen2015_searchlight_mfp"):
     """Dispatch to a published scaling factor s(A) = l / d by ``method`` (see :data:`SHAPE_SCALING_METHODS`).
 
     Parameters

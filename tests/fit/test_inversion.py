@@ -73,8 +73,8 @@ def test_dispatcher_errors_and_mean_free_path():
         albedo_single(1.5, method="OpenPBR2024")
     with pytest.raises(ParameterError, match=r"\(-1, 1\)"):
         albedo_single(0.5, g=1.0, method="OpenPBR2024")
-    med = effective_medium(np.array([0.33]), np.array([0.2]), 0.0, 1.0, method="ChiangKutzBurley2016")
-    # Christensen & Burley's mean-free-path fit: s(0.33) = 3.5, so l = 3.5 d
-    assert med["mean_free_path_mm"][0] == pytest.approx(0.7)
+    med = effective_medium(np.array([0.8]), np.array([0.2]), 0.0, 1.0, method="ChiangKutzBurley2016")
+    # Christensen & Burley's searchlight mean-free-path fit: s(0.8) = 1.05, so l = 1.05 d
+    assert med["mean_free_path_mm"][0] == pytest.approx(0.21)
     back = albedo_multiple(med["albedo_single"], 0.0, method="ChiangKutzBurley2016")
-    assert back[0] == pytest.approx(0.33, abs=1e-5)
+    assert back[0] == pytest.approx(0.8, abs=1e-5)

@@ -1,0 +1,90 @@
+"""Monte Carlo checks of the fits and inversions against matgen's transport engine.
+
+Each run: a homogeneous half-space (slab of 500 mean free paths, sigma_t = 1/mm) at normal incidence.
+Tolerances come from the runs' standard errors (3 sigma) plus stated allowances.
+"""
+
+import numpy as np
+import pytest
+
+from matgen.fit.diffusion import fit_burley2015_result
+from matgen.fit.inversion import albedo_single_ChiangKutzBurley2016, default_inversion_table, has_default_table
+from matgen.fit.models import shape_scaling_Christensen2015
+from matgen.transport.simulate import simulate
+from matgen.transport.stack import Stack
+
+PHOTONS = 100_000
+
+
+def _half_space(alpha, g=0.0, n=1.0, photons=PHOTONS, seed=7):
+    thickness = max(500.0, 30.0 / np.sqrt(3.0 * (1.0 - alpha) * (1.0 - alpha * g)))
+    stack = Stack([thickness], [n], [1.0 - alpha], [alpha], [g], n_above=1.0, n_below=n)
+    return simulate(stack, photons, seed=seed)
+
+
+@pytest.fixture(scope="module")
+def isotropic_runs():
+    return {a: _half_space(a) for a in (0.8, 0.9, 0.95, 0.99)}
+
+
+@pytest.mark.parametrize("alpha, exact", [(0.8, 0.285255), (0.9, 0.414947), (0.99, 0.752721)])
+def test_albedo_matches_exact_isotropic_half_space(isotropic_runs, alpha, exact):
+    """A(alpha) from matgen's transport vs R = 1 - H(1) sqrt(1 - alpha) (van de Hulst 1980; Chandrasekhar
+    1960 H-function; values as listed in REFERENCES.md and re-derived in test_inversion.py), within 3 SE."""
+    r = isotropic_runs[alpha].diffuse_reflectance
+    assert abs(r.value - exact) < 3.0 * r.stderr
+
+
+@pytest.mark.parametrize("alpha", [0.8, 0.9, 0.95])
+def test_fitted_shape_scaling_matches_christensen_burley(isotropic_runs, alpha):
+    """Fitted s = l / d on an index-matched isotropic half-space vs Christensen & Burley 2015's searchlight
+    fits: s = 1.85 - A + 7|A - 0.8|^3 with l = 1/sigma_t, and s = 3.5 + 100 (A - 0.33)^4 with l = the
+    diffuse mean free path 1/sqrt(3 sigma_a sigma_t').
+
+    The memo's own accuracy statement could not be re-read for this check (coefficients from memory); the
+    allowance is 10 %: the fitted d depends on how rings are weighted (ours: 1/stderr^2 on log-spaced rings;
+    the memo's weighting is not known here) and the profile model itself misfits the Monte Carlo profile by
+    a few percent (fit_residual 0.03-0.05 here). The statistical error of s is below 0.5 % at 1e5 photons."""
+    r = isotropic_runs[alpha]
+    fit = fit_burley2015_result(r)
+    a = r.diffuse_reflectance.value
+    s_mfp = 1.0 / fit["shape_distance_mm"]  # sigma_t = 1/mm
+    assert s_mfp == pytest.approx(float(shape_scaling_Christensen2015(a, "searchlight_mfp")), rel=0.10)
+    dmfp = 1.0 / np.sqrt(3.0 * (1.0 - alpha) * 1.0)
+    s_dmfp = dmfp / fit["shape_distance_mm"]
+    assert s_dmfp == pytest.approx(float(shape_scaling_Christensen2015(a, "searchlight_dmfp")), rel=0.10)
+
+
+def test_ckb_closed_form_difference_is_recorded(isotropic_runs):
+    """Chiang, Kutz & Burley 2016 inverted on matgen's normal-incidence A underestimates alpha: the closed
+    form follows van de Hulst's formula, closer to the diffuse-incidence albedo. We assert the sign and an
+    upper bound of 0.08 on the difference (measured: about 0.06 at alpha 0.8, 0.04 at 0.9, 0.006 at 0.99)."""
+    for alpha, run in isotropic_runs.items():
+        diff = alpha - float(albedo_single_ChiangKutzBurley2016(run.diffuse_reflectance.value))
+        assert 0.0 < diff < 0.08
+
+
+needs_table = pytest.mark.skipif(not has_default_table(), reason="inversion table not built")
+
+
+@needs_table
+@pytest.mark.parametrize("alpha, g, n", [(0.95, 0.0, 1.0), (0.93, 0.8, 1.4), (0.985, 0.75, 1.44)])
+def test_boundary_table_reproduces_transport(alpha, g, n):
+    """The shipped boundary-aware table vs a fresh transport run (another seed) at on- and off-node points.
+
+    Tolerance: 3 x the combined standard error of the run and of the bracketing table nodes, plus the
+    table's own linear-interpolation allowance, estimated from its second differences along
+    u = sqrt(1 - alpha) (|delta^2 A| / 8, the bound for linear interpolation of a smooth curve) and
+    likewise along g and n."""
+    tab = default_inversion_table()
+    run = _half_space(alpha, g, n, photons=60_000, seed=99)
+    a_tab = float(tab.albedo_multiple_of(alpha, g, n)[0])
+    node_err = float(np.max(tab.albedo_multiple_stderr))
+    allowance = 0.0
+    for axis in range(3):
+        second = np.abs(np.diff(tab.albedo_multiple, n=2, axis=axis))
+        allowance += float(np.max(second)) / 8.0 if second.size else 0.0
+    tol = 3.0 * np.hypot(run.diffuse_reflectance.stderr, node_err) + allowance
+    assert abs(a_tab - run.diffuse_reflectance.value) < tol
+    alpha_back = float(tab.invert(np.array([run.diffuse_reflectance.value]), g, n)[0][0])
+    assert alpha_back == pytest.approx(alpha, abs=0.02)
