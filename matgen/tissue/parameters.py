@@ -37,7 +37,7 @@ FIELD_SPECS: dict[str, FieldSpec] = {
         0.5,
         "volume fraction",
         "melanosome volume fraction of the viable epidermis",
-        "Jacques1998: 1.3-6.3 % light, 11-16 % medium, 18-43 % dark skin",
+        "Jacques1998: 1.3-6.3 % light, 11-16 % medium, 18-43 % dark skin (from memory)",
     ),
     "eumelanin_share": FieldSpec(
         0.0,
@@ -51,7 +51,8 @@ FIELD_SPECS: dict[str, FieldSpec] = {
         0.2,
         "volume fraction",
         "blood volume fraction of papillary and reticular dermis",
-        "Jacques1998 (0.2-7 % typical, from memory); up to 20 % for flushed or vascular skin",
+        "Jacques1998 (average dermis 0.2 %, re-read); Meglinski2002 (a few % in vascular plexus layers, "
+        "from memory); up to 20 % for flushed or vascular skin",
     ),
     "oxygen_saturation": FieldSpec(
         0.0,
@@ -252,7 +253,7 @@ class SkinParameters:
 
     melanin_fraction: float = 0.03
     eumelanin_share: float = 0.7
-    blood_fraction: float = 0.02
+    blood_fraction: float = 0.005
     oxygen_saturation: float = 0.75
     stratum_corneum_water_fraction: float = 0.2
     epidermis_water_fraction: float = 0.6
