@@ -1,0 +1,261 @@
+"""Pure-Python twin of :mod:`matgen.transport.kernels` and :mod:`matgen.transport.rng` (for parity tests).
+
+A literal, unoptimised transcription of the same method in plain Python: 64-bit integers are Python ints
+masked to 64 bits, floats are Python floats, nothing is compiled. It draws random numbers in the same
+order as the numba kernel (hop, boundary draws, spin polar, spin azimuth, roulette) and returns the same
+integer tally vector and records, so a parity test can compare the two exactly. Slow: a few thousand
+scattering events per second. Units: mm, 1/mm.
+
+References: ``Wang1995mcml``, ``Alerstam2008white``, ``Blackman2018xoroshiro``, ``Steele2014splitmix``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from matgen.transport import kernels as K
+
+MASK64 = (1 << 64) - 1
+GOLDEN = 0x9E3779B97F4A7C15
+
+
+def mix64(z: int) -> int:
+    """SplitMix64 finaliser on Python ints. Source: Steele2014splitmix."""
+    z &= MASK64
+    z = ((z ^ (z >> 30)) * 0xBF58476D1CE4E5B9) & MASK64
+    z = ((z ^ (z >> 27)) * 0x94D049BB133111EB) & MASK64
+    return z ^ (z >> 31)
+
+
+def _rotl(x: int, k: int) -> int:
+    return ((x << k) | (x >> (64 - k))) & MASK64
+
+
+class PhotonStream:
+    """xoroshiro128++ stream of one photon (seed, global index). Source: Blackman2018xoroshiro."""
+
+    def __init__(self, seed: int, index: int):
+        key = mix64(seed + GOLDEN)
+        self.s0 = mix64(key + ((2 * index + 1) * GOLDEN))
+        self.s1 = mix64(key + ((2 * index + 2) * GOLDEN))
+        if self.s0 == 0 and self.s1 == 0:
+            self.s1 = 1
+
+    def next_u64(self) -> int:
+        s0, s1 = self.s0, self.s1
+        result = (_rotl((s0 + s1) & MASK64, 17) + s0) & MASK64
+        s1 ^= s0
+        self.s0 = _rotl(s0, 49) ^ s1 ^ ((s1 << 21) & MASK64)
+        self.s1 = _rotl(s1, 28)
+        return result
+
+    def uniform(self) -> float:
+        """Uniform in [0, 1)."""
+        return (self.next_u64() >> 11) * (1.0 / 9007199254740992.0)
+
+    def uniform_open0(self) -> float:
+        """Uniform in (0, 1]."""
+        return ((self.next_u64() >> 11) + 1.0) * (1.0 / 9007199254740992.0)
+
+
+def fresnel(n_i: float, n_t: float, cos_i: float):
+    """Unpolarised Fresnel reflectance and transmitted cosine. Source: BornWolf1999 sec. 1.5.2."""
+    if n_i == n_t:
+        return 0.0, cos_i
+    sin_t2 = (n_i / n_t) ** 2 * (1.0 - cos_i * cos_i)
+    if sin_t2 >= 1.0:
+        return 1.0, 0.0
+    cos_t = math.sqrt(1.0 - sin_t2)
+    rs = (n_i * cos_i - n_t * cos_t) / (n_i * cos_i + n_t * cos_t)
+    rp = (n_t * cos_i - n_i * cos_t) / (n_t * cos_i + n_i * cos_t)
+    return 0.5 * (rs * rs + rp * rp), cos_t
+
+
+def hg_sample(g: float, u: float) -> float:
+    """Henyey-Greenstein cosine by inversion. Source: Wang1995mcml eq. 3.28."""
+    if abs(g) < 1.0e-6:
+        return 2.0 * u - 1.0
+    t = (1.0 - g * g) / (1.0 - g + 2.0 * g * u)
+    return min(1.0, max(-1.0, (1.0 + g * g - t * t) / (2.0 * g)))
+
+
+def spin(d, mu: float, cos_phi: float, sin_phi: float):
+    """New direction after scattering by polar cosine mu and azimuth. Source: Wang1995mcml eqs. 3.30-3.31."""
+    ux, uy, uz = d
+    sin_t = math.sqrt(max(0.0, 1.0 - mu * mu))
+    if abs(uz) > 1.0 - 1.0e-12:
+        return [sin_t * cos_phi, sin_t * sin_phi, mu if uz > 0.0 else -mu]
+    tmp = math.sqrt(1.0 - uz * uz)
+    return [
+        sin_t * (ux * uz * cos_phi - uy * sin_phi) / tmp + ux * mu,
+        sin_t * (uy * uz * cos_phi + ux * sin_phi) / tmp + uy * mu,
+        -sin_t * cos_phi * tmp + uz * mu,
+    ]
+
+
+def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: float):
+    """Follow one packet; returns (side, weight, x, y, exit_cos, zmax, path, absorbed, wpath)."""
+    nl = len(layers)
+    path = [0.0] * nl
+    absorbed = [0.0] * nl
+    wpath = [0.0] * nl
+    j = 0
+    pos = [0.0, 0.0, 0.0]
+    d = [ux0, 0.0, uz0]
+    w = w0
+    zmax = 0.0
+    while True:
+        tau = -math.log(stream.uniform_open0())
+        while True:
+            lay = layers[j]
+            if d[2] > 0.0:
+                db = (lay["z_bot"] - pos[2]) / d[2]
+            elif d[2] < 0.0:
+                db = (lay["z_top"] - pos[2]) / d[2]
+            else:
+                db = math.inf
+            if tau < lay["mu_s"] * db:
+                s = tau / lay["mu_s"]
+                pos = [pos[0] + s * d[0], pos[1] + s * d[1], pos[2] + s * d[2]]
+                wn = w * math.exp(-lay["mu_a"] * s)
+                absorbed[j] += w - wn
+                path[j] += s
+                wpath[j] += w * s
+                w = wn
+                zmax = max(zmax, pos[2])
+                break
+            if db == math.inf:
+                return 0, 0.0, pos[0], pos[1], 0.0, zmax, path, absorbed, wpath
+            tau -= lay["mu_s"] * db
+            pos[0] += db * d[0]
+            pos[1] += db * d[1]
+            wn = w * math.exp(-lay["mu_a"] * db)
+            absorbed[j] += w - wn
+            path[j] += db
+            wpath[j] += w * db
+            w = wn
+            going_down = d[2] > 0.0
+            if going_down:
+                pos[2] = lay["z_bot"]
+                zmax = max(zmax, pos[2])
+                n_t = lay["n_down"]
+            else:
+                pos[2] = lay["z_top"]
+                n_t = lay["n_up"]
+            r, cos_t = fresnel(lay["n"], n_t, abs(d[2]))
+            if r >= 1.0:
+                reflect = True
+            elif r > 0.0:
+                reflect = stream.uniform() < r
+            else:
+                reflect = False
+            if reflect:
+                d[2] = -d[2]
+                continue
+            if going_down:
+                if j == nl - 1:
+                    return 2, w, pos[0], pos[1], cos_t, zmax, path, absorbed, wpath
+                j += 1
+            else:
+                if j == 0:
+                    return 1, w, pos[0], pos[1], cos_t, zmax, path, absorbed, wpath
+                j -= 1
+            if lay["n"] != n_t:
+                ratio = lay["n"] / n_t
+                d = [d[0] * ratio, d[1] * ratio, cos_t if d[2] > 0.0 else -cos_t]
+        mu = hg_sample(layers[j]["g"], stream.uniform())
+        u = stream.uniform()
+        cos_phi = math.cos(2.0 * math.pi * u)
+        sin_phi = math.sqrt(max(0.0, 1.0 - cos_phi * cos_phi))
+        if u >= 0.5:
+            sin_phi = -sin_phi
+        d = spin(d, mu, cos_phi, sin_phi)
+        if w < K.ROULETTE_WEIGHT:
+            if stream.uniform() < K.ROULETTE_CHANCE:
+                w = w / K.ROULETTE_CHANCE
+            else:
+                return 0, 0.0, pos[0], pos[1], 0.0, zmax, path, absorbed, wpath
+
+
+def _fixed(x: float) -> int:
+    return int(x * K.FIXED_SCALE + 0.5)
+
+
+def _bin(edges, v: float) -> int:
+    m = len(edges) - 1
+    if v < edges[0] or v > edges[m]:
+        return -1
+    for k in range(m):
+        if edges[k] <= v < edges[k + 1]:
+            return k
+    return m - 1
+
+
+def run_tallies(lay: np.ndarray, w0, ux0, uz0, seed, first_photon, n_photons, ring_edges, cos_edges,
+                inv_depth_mm, records: bool = False):
+    """Twin of :func:`matgen.transport.kernels.run_tallies` (and, with records, of ``run_tallies_records``).
+
+    Returns the int64 tally vector, and with ``records`` a dict of per-photon record arrays.
+    """
+    layers = [
+        {"z_top": float(r[K.Z_TOP]), "z_bot": float(r[K.Z_BOT]), "n": float(r[K.N_LAYER]),
+         "n_up": float(r[K.N_UP]), "n_down": float(r[K.N_DOWN]), "mu_a": float(r[K.MU_A]),
+         "mu_s": float(r[K.MU_S]), "g": float(r[K.G])}
+        for r in np.asarray(lay)
+    ]
+    nl = len(layers)
+    ring_edges = [float(v) for v in ring_edges]
+    cos_edges = [float(v) for v in cos_edges]
+    nr, nc = len(ring_edges) - 1, len(cos_edges) - 1
+    layout = K.tally_layout(nl, nr, nc)
+    tally = [0] * layout["size"]
+    recs = {"path_mm": [], "weighted_path_mm": [], "exit_radius_mm": [], "exit_cos": [], "max_depth_mm": [],
+            "weight": [], "side": []}
+    for i in range(n_photons):
+        stream = PhotonStream(int(seed), int(first_photon) + i)
+        side, w, x, y, cexit, zmax, path, absorbed, wpath = trace(stream, layers, w0, ux0, uz0)
+        for j in range(nl):
+            if absorbed[j] > 0.0:
+                tally[layout["absorbed"] + j] += _fixed(absorbed[j])
+                tally[layout["absorbed"] + nl + j] += _fixed(absorbed[j] ** 2)
+        if side == 1:
+            tally[K.T_RD] += _fixed(w)
+            tally[K.T_RD2] += _fixed(w * w)
+            tally[K.T_N_TOP] += 1
+            k = _bin(ring_edges, math.sqrt(x * x + y * y))
+            if k >= 0:
+                tally[layout["ring"] + k] += _fixed(w)
+                tally[layout["ring"] + nr + k] += _fixed(w * w)
+            k = _bin(cos_edges, cexit)
+            if k >= 0:
+                tally[layout["cos"] + k] += _fixed(w)
+                tally[layout["cos"] + nc + k] += _fixed(w * w)
+            a = w * min(1.0, zmax * inv_depth_mm)
+            tally[K.T_DA] += _fixed(a)
+            tally[K.T_DA2] += _fixed(a * a)
+            tally[K.T_DAW] += _fixed(a * w)
+        elif side == 2:
+            tally[K.T_TT] += _fixed(w)
+            tally[K.T_TT2] += _fixed(w * w)
+            tally[K.T_N_BOTTOM] += 1
+        else:
+            tally[K.T_N_ENDED] += 1
+        if records:
+            recs["path_mm"].append(path)
+            recs["weighted_path_mm"].append(
+                [absorbed[j] / (layers[j]["mu_a"] * w0) if layers[j]["mu_a"] > 0.0 else wpath[j] / w0
+                 for j in range(nl)])
+            recs["exit_radius_mm"].append(math.sqrt(x * x + y * y))
+            recs["exit_cos"].append(cexit)
+            recs["max_depth_mm"].append(zmax)
+            recs["weight"].append(w)
+            recs["side"].append(side)
+    tally = np.array(tally, dtype=np.int64)
+    if not records:
+        return tally
+    out = {k: np.asarray(v, dtype=np.uint8 if k == "side" else np.float32) for k, v in recs.items()}
+    out["path_mm"] = out["path_mm"].reshape(n_photons, nl)
+    out["weighted_path_mm"] = out["weighted_path_mm"].reshape(n_photons, nl)
+    return tally, out
