@@ -23,6 +23,7 @@ from matgen.bake.maps import MapReader, discover_tiles, map_info, scan_map, tile
 from matgen.bake.tiles import rows_per_strip
 from matgen.color import pass_weights
 from matgen.errors import BandError, ClampWarning, ConfigError, ImageError
+from matgen.fit.inversion import albedo_multiple_vanDeHulst1980
 from matgen.fsutil import resolve_inside
 from matgen.limits import check_udim_tiles
 from matgen.spectra.bands import BandSet
@@ -39,8 +40,6 @@ QUANTITY_UNITS = {
     "fit_residual": "1",
 }
 
-#: Visible range (nm) over which the scalar OpenPBR anisotropy averages the table's per-band anisotropy.
-VISIBLE_RANGE_NM = (400.0, 700.0)
 
 
 def spectral_channel_name(wavelength_nm: float, prefix: str = "T") -> str:
@@ -116,7 +115,6 @@ class BakePlan:
     spectral_index: np.ndarray  # table band indices of the spectral stacks
     spectral_bands: BandSet
     pass_weights: dict  # pass name -> (B,) weights over the table's bands
-    visible_index: np.ndarray
     request: dict = field(default_factory=dict)
     derived: dict = field(default_factory=dict)  # name -> grid array (grid_shape + (C,)) made from the table
     single_tile: int | None = None  # the one UDIM tile of a farm bake (``--tile``), else None
@@ -251,7 +249,6 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
     # bands and outputs
     bands = table.bands
     spectral_index, spectral_bands = _spectral_subset(bands, config.outputs.spectral_bands)
-    vis = np.nonzero((bands.centre_nm >= VISIBLE_RANGE_NM[0]) & (bands.centre_nm <= VISIBLE_RANGE_NM[1]))[0]
     passes = _resolve_passes(config, bands, allow_outside)
     outputs, request, derived = [], {}, {}
     names = tuple(spectral_channel_name(c) for c in spectral_bands.centre_nm)
@@ -264,24 +261,28 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         outputs.append(OutputSpec(f"rgb/{q}", "rgb", f"rgb_{q}", ("R", "G", "B"), QUANTITY_UNITS[q],
                                   f"{q} per channel of {table.working_space} ({QUANTITY_UNITS[q]})"))
     if "openpbr" in config.outputs.targets:
-        request["rgb_albedo_multiple"] = None
+        request["rgb_albedo_single"] = None
         request["rgb_mean_free_path_mm"] = None
         outputs += [
             OutputSpec("openpbr/subsurface_color", "target", "subsurface_color", ("R", "G", "B"), "1",
-                       f"OpenPBR subsurface_color: multiple-scattering albedo in {table.working_space}"),
+                       f"OpenPBR subsurface_color in {table.working_space}: van de Hulst's A of the effective "
+                       "single-scattering albedo, so that OpenPBR's inversion returns it"),
             OutputSpec("openpbr/subsurface_radius", "target", "subsurface_radius", ("Y",), "scene_unit",
                        "OpenPBR subsurface_radius: largest channel mean free path, scene units"),
             OutputSpec("openpbr/subsurface_radius_scale", "target", "subsurface_radius_scale", ("R", "G", "B"),
                        "1", "OpenPBR subsurface_radius_scale: per-channel mean free path / subsurface_radius"),
         ]
-        if "anisotropy" in table.quantities and vis.size:
-            # the blend is linear in the grid values: averaging on the grid equals averaging the lookups
-            g = np.asarray(table.quantities["anisotropy"], dtype=np.float64)[..., vis]
-            derived["openpbr_anisotropy"] = g.mean(axis=-1, keepdims=True)
-            outputs.append(OutputSpec("openpbr/subsurface_scatter_anisotropy", "target",
-                                      "subsurface_scatter_anisotropy", ("Y",), "1",
-                                      f"OpenPBR subsurface_scatter_anisotropy: mean g over {VISIBLE_RANGE_NM[0]:g}-"
-                                      f"{VISIBLE_RANGE_NM[1]:g} nm bands"))
+        # one scalar g per texel, the A-weighted mean over the table's bands as in
+        # matgen.fit.targets.EffectiveMedium.from_summary; numerator and denominator are linear in the grid
+        # values, so they are formed on the grid once and blended like any quantity
+        a = np.asarray(table.quantities["albedo_multiple"], dtype=np.float64)
+        g = np.asarray(table.quantities["anisotropy"], dtype=np.float64)
+        derived["openpbr_g_num"] = np.sum(a * g, axis=-1, keepdims=True)
+        derived["openpbr_g_den"] = np.sum(a, axis=-1, keepdims=True)
+        outputs.append(OutputSpec("openpbr/subsurface_scatter_anisotropy", "target",
+                                  "subsurface_scatter_anisotropy", ("Y",), "1",
+                                  "OpenPBR subsurface_scatter_anisotropy: albedo-weighted mean g over the table's "
+                                  "bands"))
     for name in passes:
         # w @ A is linear in the grid values, so it is formed on the grid once and interpolated like A
         a = np.asarray(table.quantities["albedo_multiple"], dtype=np.float64)
@@ -296,7 +297,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         outputs.append(OutputSpec("qa/qa", "qa", "qa", tuple(chans), "1",
                                   "QA: 1 where a parameter was clamped to the table / encoding range; "
                                   "largest RGB fit residual"))
-    return BakePlan(config, table, sources, tile_inputs, outputs, spectral_index, spectral_bands, passes, vis,
+    return BakePlan(config, table, sources, tile_inputs, outputs, spectral_index, spectral_bands, passes,
                     request, derived, single_tile=tile)
 
 
@@ -360,6 +361,13 @@ class Strip:
     encoding_clamped: int
 
 
+def _openpbr_g(vals: dict) -> np.ndarray:
+    """Per-texel scalar g (N, 1): sum_b A_b g_b / sum_b A_b from the blended numerator and denominator."""
+    num = vals["openpbr_g_num"].astype(np.float64)
+    den = vals["openpbr_g_den"].astype(np.float64)
+    return np.clip(np.divide(num, den, out=np.zeros_like(num), where=den > 0), -1.0, 1.0)
+
+
 def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: np.ndarray, shape) -> tuple:
     vals, clamped = lookup(params)
     h, w = shape
@@ -372,7 +380,8 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
             v = vals[spec.quantity]
         elif spec.kind == "target":
             if spec.quantity == "subsurface_color":
-                v = vals["rgb_albedo_multiple"]
+                g = _openpbr_g(vals)
+                v = np.clip(albedo_multiple_vanDeHulst1980(vals["rgb_albedo_single"], g), 0.0, 1.0)
             elif spec.quantity in ("subsurface_radius", "subsurface_radius_scale"):
                 mfp = vals["rgb_mean_free_path_mm"].astype(np.float64) / mpsu_mm
                 radius = mfp.max(axis=1, keepdims=True)
@@ -381,7 +390,7 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
                 else:
                     v = np.divide(mfp, radius, out=np.ones_like(mfp), where=radius > 0)
             else:  # subsurface_scatter_anisotropy
-                v = vals["openpbr_anisotropy"]
+                v = _openpbr_g(vals)
         elif spec.kind == "pass":
             v = vals[f"pass_{spec.quantity}"]
         else:  # qa

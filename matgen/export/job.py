@@ -241,7 +241,9 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
     ior = float(np.mean(table.quantities["ior"])) if "ior" in table.quantities else None
     targets = {}
     if "openpbr" in opts.targets:
-        targets["openpbr"] = {"shading_model": "OpenPBR Surface 1.1 (MaterialX open_pbr_surface)",
+        targets["openpbr"] = {"shading_model": "OpenPBR Surface (MaterialX 1.39 open_pbr_surface)",
+                              "albedo_convention": "spec_remap: subsurface_color is van de Hulst's A of the "
+                                                   "effective single-scattering albedo (matgen.fit.targets)",
                               "inputs": _openpbr_inputs(plan, ior)}
     documents = {}
     if "material.mtlx" in planned_files(plan, cfg.name):

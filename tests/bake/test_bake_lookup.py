@@ -14,6 +14,7 @@ from matgen.bake.maps import MapReader, map_info
 from matgen.bake.run import plan_bake
 from matgen.export.exr import read_exr
 from matgen.export.job import bake
+from matgen.fit.targets import EffectiveMedium, get_target
 from matgen.tables.store import Table
 
 
@@ -43,7 +44,7 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
     rng = np.random.default_rng(3)
     ys, xs = rng.integers(0, 24, 40), rng.integers(0, 40, 40)
     ref, _ = table.lookup(pts[ys, xs], ["albedo_multiple", "mean_free_path_mm", "rgb_albedo_multiple",
-                                        "rgb_mean_free_path_mm", "anisotropy"])
+                                        "rgb_mean_free_path_mm", "rgb_albedo_single", "anisotropy", "ior"])
     band_idx = [table.bands.index_of(c) for c in (400, 450, 500, 550, 600, 650, 700)]
     pix, chans, attrs = read_exr(out / "spectral" / "albedo_multiple.exr")
     order = [chans.index(f"T.{c},000000nm") for c in (400, 450, 500, 550, 600, 650, 700)]
@@ -54,17 +55,22 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
     pix, chans, _ = read_exr(out / "rgb" / "albedo_multiple.exr")
     assert chans == ("R", "G", "B")
     np.testing.assert_array_equal(pix[ys, xs], ref["rgb_albedo_multiple"])
-    # OpenPBR: radius (scene units, 1 cm) x radius scale = mean free path per channel
-    radius, _, _ = read_exr(out / "openpbr" / "subsurface_radius.exr")
-    scale, _, _ = read_exr(out / "openpbr" / "subsurface_radius_scale.exr")
-    mfp_cm = ref["rgb_mean_free_path_mm"].astype(np.float64) / 10.0
-    np.testing.assert_allclose(radius[ys, xs, 0:1] * scale[ys, xs], mfp_cm, rtol=1e-6)
-    np.testing.assert_allclose(scale[ys, xs].max(axis=1), 1.0, rtol=1e-7)
-    # OpenPBR anisotropy: mean of the table's g over the 400-700 nm bands (formed on the grid, then blended)
-    aniso, _, _ = read_exr(out / "openpbr" / "subsurface_scatter_anisotropy.exr")
-    vis = (table.bands.centre_nm >= 400) & (table.bands.centre_nm <= 700)
-    np.testing.assert_allclose(aniso[ys, xs, 0], ref["anisotropy"][:, vis].astype(np.float64).mean(axis=1),
-                               rtol=1e-6)
+    # OpenPBR maps equal matgen.fit.targets' OpenPBR convention applied to the looked-up effective medium
+    target = get_target("openpbr")
+    maps = {k: read_exr(out / "openpbr" / f"{k}.exr")[0][ys, xs] for k in
+            ("subsurface_color", "subsurface_radius", "subsurface_radius_scale", "subsurface_scatter_anisotropy")}
+    for i in range(len(ys)):
+        a = ref["albedo_multiple"][i].astype(np.float64)
+        g = float(np.sum(a * ref["anisotropy"][i]) / np.sum(a))  # A-weighted mean g, as from_summary
+        medium = EffectiveMedium(ref["rgb_albedo_single"][i], ref["rgb_mean_free_path_mm"][i], np.full(3, g),
+                                 ior=float(ref["ior"][i, 0]))
+        inputs = target.to_inputs(medium, metres_per_scene_unit=0.01)
+        np.testing.assert_allclose(maps["subsurface_color"][i], inputs["subsurface_color"], rtol=1e-6)
+        np.testing.assert_allclose(maps["subsurface_radius"][i, 0], inputs["subsurface_radius"], rtol=1e-6)
+        np.testing.assert_allclose(maps["subsurface_radius_scale"][i], inputs["subsurface_radius_scale"], rtol=1e-6)
+        # the test table's g does not vary with pigment, so blending A g and A separately is exact here
+        np.testing.assert_allclose(maps["subsurface_scatter_anisotropy"][i, 0],
+                                   inputs["subsurface_scatter_anisotropy"], rtol=1e-6)
     assert res.table_clamped == 0 and res.texels == 40 * 24
 
 
