@@ -7,11 +7,12 @@ standard error, and the effective anisotropy. The fit summary (:func:`matgen.fit
 these into every table quantity, spectral and RGB (the RGB shape distance needs all bands' profiles, hence
 here and not in the tasks).
 
-Effective anisotropy of the layered skin (per grid point and band): the mean of the layers' g over scattering
-events, ``g_eff = sum_i g_i mu_s,i l_i / sum_i mu_s,i l_i``, where ``l_i = absorbed_i / mu_a,i`` is the
-weight-averaged path length of light in layer i (the absorbed fraction of a layer is ``mu_a,i`` times the path
-length it integrates; ``Alerstam2008white``). Layers with ``mu_a = 0`` use their thickness as the path length.
-The boundary index is that of the top layer, averaged over the bands (the fit summary takes one index).
+Effective anisotropy of the layered skin (per grid point and band): the mean of the layers' g over the
+scattering events of the reflected light, ``g_eff = sum_i g_i mu_s,i l_i / sum_i mu_s,i l_i``, where ``l_i``
+is the weight-averaged path length of the diffusely reflected light in layer i (from the reweighted photon
+records, ``Alerstam2008white``; the expected number of scattering events in a layer is ``mu_s,i`` times the
+path length there). The boundary index is that of the top layer, averaged over the bands (the fit summary
+takes one index).
 """
 
 from __future__ import annotations
@@ -67,28 +68,25 @@ def _ranges(indices) -> str:
     return ", ".join(out)
 
 
-def effective_anisotropy(g, mu_s_per_mm, mu_a_per_mm, absorbed, thickness_mm):
-    """Mean Henyey-Greenstein g over scattering events in a layered stack.
+def effective_anisotropy(g, mu_s_per_mm, reflected_path_mm):
+    """Mean Henyey-Greenstein g over the scattering events of reflected light in a layered stack.
 
     Parameters
     ----------
-    g, mu_s_per_mm, thickness_mm : ndarray, shape (L,)
-        Layer anisotropy, scattering coefficient (1/mm) and thickness (mm).
-    mu_a_per_mm, absorbed : ndarray, shape (K, L)
-        Absorption coefficients (1/mm) and absorbed fractions of launched weight per layer, for K grid points.
+    g, mu_s_per_mm : ndarray, shape (L,)
+        Layer anisotropy and scattering coefficient (1/mm).
+    reflected_path_mm : ndarray, shape (K, L)
+        Weight-averaged path length (mm) of the diffusely reflected light in each layer, for K grid points.
 
     Returns
     -------
     ndarray, shape (K,)
-        ``sum g mu_s l / sum mu_s l`` with path lengths ``l = absorbed / mu_a`` (mm), thickness where mu_a = 0.
-        Source: ``Alerstam2008white`` (absorbed weight = mu_a x path length).
+        ``sum g mu_s l / sum mu_s l``; the plain mean of g where no light was reflected.
+        Source: ``Alerstam2008white`` (path lengths from photon records).
     """
-    mu_a = np.asarray(mu_a_per_mm, np.float64)
-    ab = np.asarray(absorbed, np.float64)
-    path = np.where(mu_a > 0, ab / np.where(mu_a > 0, mu_a, 1.0), np.asarray(thickness_mm)[None, :])
-    w = path * np.asarray(mu_s_per_mm)[None, :]
+    w = np.asarray(reflected_path_mm, np.float64) * np.asarray(mu_s_per_mm, np.float64)[None, :]
     total = w.sum(axis=1)
-    g_eff = (w * np.asarray(g)[None, :]).sum(axis=1) / np.where(total > 0, total, 1.0)
+    g_eff = (w * np.asarray(g, np.float64)[None, :]).sum(axis=1) / np.where(total > 0, total, 1.0)
     return np.where(total > 0, g_eff, float(np.mean(g)))
 
 
@@ -124,8 +122,7 @@ def assemble(job: JobFolder) -> dict:
         a_err[flat, task.band] = out["diffuse_reflectance_stderr"]
         radial[flat, task.band] = out["radial_reflectance_per_mm2"]
         radial_err[flat, task.band] = out["radial_stderr_per_mm2"]
-        g_eff[flat, task.band] = effective_anisotropy(out["g"], out["mu_s_per_mm"], out["mu_a_per_mm"],
-                                                      out["absorbed"], out["thickness_mm"])
+        g_eff[flat, task.band] = effective_anisotropy(out["g"], out["mu_s_per_mm"], out["reflected_path_mm"])
         n_top[flat, task.band] = out["n"][0]
     if np.isnan(a).any():
         p, b = np.argwhere(np.isnan(a))[0]
@@ -190,7 +187,7 @@ def merge(job: JobFolder) -> Table:
         quantities[name] = v.reshape(shape + (v.shape[-1],)).astype(np.float32)
     if "albedo_multiple_stderr" not in quantities:
         quantities["albedo_multiple_stderr"] = data["albedo_multiple_stderr"].reshape(shape + (-1,)).astype(np.float32)
-    total_photons = len(plan.tasks) * spec.photons_per_band
+    total_photons = sum(int(load_task_output(job, t.index)["photons"][0]) for t in plan.tasks)
     manifest = {
         "spec": spec.to_dict(),
         "provenance": {

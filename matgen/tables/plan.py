@@ -286,6 +286,8 @@ def make_plan(spec: TableSpec) -> Plan:
                     "region": spec.region,
                     "packaging": spec.packaging,
                     "photons": spec.photons_per_band,
+                    "target_relative_stderr": spec.target_relative_stderr,
+                    "max_photons": spec.max_photons_per_band,
                     "ring_edges_mm": ring,
                     "band_nm": [float(x) for x in edges],
                     "node": node,

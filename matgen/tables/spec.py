@@ -21,6 +21,8 @@ A spec file looks like this (every key shown; ``axes`` keep the order in which t
     [transport]
     ring_edges_mm = [0.0, 0.01, ...] # optional; default matgen.transport.simulate.default_ring_edges_mm()
     reference_split = ["melanin_fraction"]   # optional: axes whose values each get their own reference run
+    target_relative_stderr = 0.01    # optional: add photons until stderr(A)/A <= this at every grid point
+    max_photons_per_band = 2000000   # optional: ceiling of that (default 20 x photons_per_band)
 
     [axes.melanin_fraction]          # a SkinParameters field
     spacing = "log"                  # "linear" or "log"
@@ -55,7 +57,7 @@ _TOP_KEYS = {
 }
 _REQUIRED_TOP = ("photons_per_band", "seed", "bands", "axes")
 _BAND_KEYS = {"start_nm", "stop_nm", "step_nm", "width_nm", "centres_nm"}
-_TRANSPORT_KEYS = {"ring_edges_mm", "reference_split"}
+_TRANSPORT_KEYS = {"ring_edges_mm", "reference_split", "target_relative_stderr", "max_photons_per_band"}
 _AXIS_KEYS = {"spacing", "start", "stop", "count", "values"}
 
 
@@ -111,6 +113,12 @@ class TableSpec:
         Radial ring edges in mm (None = the transport default).
     reference_split : tuple of str
         Axes whose values each get their own reference simulation.
+    target_relative_stderr : float or None
+        Each task adds photons (in further runs of the same photon stream) until the relative standard error
+        of A is at most this at every grid point of the task, or ``max_photons_per_band`` is reached. None: a
+        fixed ``photons_per_band``.
+    max_photons_per_band : int
+        Photon ceiling of one task when ``target_relative_stderr`` is set.
     source : str
         Where the spec came from (a file name), for messages only; not part of the spec's identity.
     """
@@ -128,6 +136,8 @@ class TableSpec:
     description: str = ""
     ring_edges_mm: np.ndarray | None = None
     reference_split: tuple = ()
+    target_relative_stderr: float | None = None
+    max_photons_per_band: int = 0
     source: str = field(default="<spec>", compare=False)
 
     @property
@@ -157,6 +167,8 @@ class TableSpec:
             "transport": {
                 "ring_edges_mm": None if self.ring_edges_mm is None else np.asarray(self.ring_edges_mm).tolist(),
                 "reference_split": list(self.reference_split),
+                "target_relative_stderr": self.target_relative_stderr,
+                "max_photons_per_band": int(self.max_photons_per_band),
             },
             "axes": [a.to_dict() for a in self.axes],
         }
@@ -180,6 +192,8 @@ class TableSpec:
                 description=d["description"],
                 ring_edges_mm=None if t["ring_edges_mm"] is None else np.asarray(t["ring_edges_mm"], float),
                 reference_split=tuple(t["reference_split"]),
+                target_relative_stderr=t["target_relative_stderr"],
+                max_photons_per_band=int(t["max_photons_per_band"]),
                 source=source,
             )
         except (KeyError, TypeError) as exc:
@@ -316,6 +330,19 @@ def parse_spec(doc: dict, source: str = "<spec>") -> TableSpec:
             raise ConfigError(
                 f"{source}: [transport] reference_split names '{s}', which is not an axis{_nearest(str(s), axes_doc)}"
             )
+    target = transport.get("target_relative_stderr")
+    if target is not None:
+        target = float(_number(target, "[transport] target_relative_stderr", source))
+        if not 0 < target < 1:
+            raise ConfigError(f"{source}: [transport] target_relative_stderr is {target}; must lie in (0, 1)")
+    max_photons = transport.get("max_photons_per_band", 20 * int(photons) if target is not None else int(photons))
+    max_photons = _number(max_photons, "[transport] max_photons_per_band", source, integer=True)
+    if max_photons < photons:
+        raise ConfigError(f"{source}: [transport] max_photons_per_band {max_photons} is below photons_per_band {photons}")
+    try:
+        limits.check_photons(max_photons)
+    except MatgenError as exc:
+        raise ConfigError(f"{source}: [transport] max_photons_per_band: {exc}") from exc
     n_points = int(np.prod([a.values.size for a in axes]))
     limits.check_table_entries(n_points * len(bands), f"the grid of {source}")
     return TableSpec(
@@ -326,6 +353,8 @@ def parse_spec(doc: dict, source: str = "<spec>") -> TableSpec:
         targets=tuple(targets),
         ring_edges_mm=ring,
         reference_split=tuple(split),
+        target_relative_stderr=target,
+        max_photons_per_band=int(max_photons),
         source=source,
         **strings,
     )

@@ -319,6 +319,64 @@ class Table:
             start += c
         return result, int(out_mask.sum())
 
+    def interpolation_error(self, points, name: str) -> np.ndarray:
+        """Estimate of the multilinear interpolation error of quantity ``name`` at ``points`` (same unit).
+
+        Along each axis the error of linear interpolation inside a cell of width h (in the axis coordinate:
+        log for log axes) at fraction t is ``t (1 - t) h^2 |f''| / 2`` (the remainder of linear interpolation,
+        e.g. Burden & Faires, Numerical Analysis, Thm. 3.3; ``BurdenFaires2011``); ``f''`` is estimated by the
+        second divided difference of the grid values at the cell's two end nodes (the larger of the two), and
+        the per-axis estimates add. Axes with only two nodes carry no curvature information and contribute 0.
+        This is an estimate from the table itself, not a bound; it is 0 at grid nodes.
+
+        Parameters
+        ----------
+        points : array_like, shape (N, D)
+            Points in axis order, natural units (clamped into the grid).
+        name : str
+            Table quantity.
+
+        Returns
+        -------
+        ndarray of float64, shape (N, C)
+        """
+        self._check_names([name])
+        pts = np.asarray(points, dtype=np.float64).reshape(-1, len(self.axes))
+        f = self.quantities[name].astype(np.float64)
+        total = np.zeros((pts.shape[0], f.shape[-1]))
+        coords = [a.coords for a in self.axes]
+        for i, ax in enumerate(self.axes):
+            c = coords[i]
+            if c.size < 3:
+                continue
+            x = ax.transform(np.clip(pts[:, i], ax.values[0], ax.values[-1]))
+            fm = np.moveaxis(f, i, 0)
+            slope = np.diff(fm, axis=0) / np.diff(c).reshape((-1,) + (1,) * (fm.ndim - 1))
+            d2 = 2.0 * np.diff(slope, axis=0) / (c[2:] - c[:-2]).reshape((-1,) + (1,) * (fm.ndim - 1))
+            d2 = np.abs(d2)
+            curv = np.concatenate([d2[:1], d2, d2[-1:]], axis=0)  # |f''| at every node (ends: nearest interior)
+            cell_curv = np.maximum(curv[:-1], curv[1:])  # per cell along axis i
+            h = np.diff(c).reshape((-1,) + (1,) * (fm.ndim - 1))
+            cell_err = cell_curv * h**2 / 8.0  # the maximum over the cell (t = 1/2)
+            cell = np.clip(np.searchsorted(c, x, side="right") - 1, 0, c.size - 2)
+            t = (x - c[cell]) / (c[cell + 1] - c[cell])
+            # cell_err along the other axes at the query's position: multilinear over them (nearest cell along i)
+            other = [coords[j] for j in range(len(self.axes)) if j != i]
+            q_other = np.stack([self.axes[j].transform(np.clip(pts[:, j], self.axes[j].values[0],
+                                                               self.axes[j].values[-1]))
+                                for j in range(len(self.axes)) if j != i], axis=1) if other else None
+            est = np.empty_like(total)
+            for ci in np.unique(cell):
+                sel = cell == ci
+                grid_vals = cell_err[ci]  # shape: other axes + (C,)
+                if other:
+                    vals, _ = interpolate.multilinear(other, grid_vals, q_other[sel])
+                    est[sel] = vals
+                else:
+                    est[sel] = grid_vals
+            total += 4.0 * (t * (1.0 - t))[:, None] * est
+        return total
+
     # ------------------------------------------------------------------ files
     def header(self) -> dict:
         """The JSON header stored inside the ``.npz``."""

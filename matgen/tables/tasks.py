@@ -31,15 +31,11 @@ from matgen.tables.store import _write_npz_deterministic, read_npz_checked
 #: Arrays of a task output and their meaning (K = grid points of the task, R = rings, L = layers).
 TASK_ARRAYS = {
     "grid_index": "(K, D) int64 grid indices of the task's points",
-    "diffuse_reflectance": "(K,) diffuse reflectance (fraction of launched weight)",
+    "diffuse_reflectance": "(K,) diffuse reflectance A (fraction of launched weight)",
     "diffuse_reflectance_stderr": "(K,) its standard error",
-    "transmittance": "(K,) transmittance",
-    "transmittance_stderr": "(K,) its standard error",
     "radial_reflectance_per_mm2": "(K, R) radial reflectance, mm^-2",
     "radial_stderr_per_mm2": "(K, R) its standard error, mm^-2",
-    "mean_penetration_depth_mm": "(K,) mean maximum depth of reflected light, mm",
-    "absorbed": "(K, L) fraction of launched weight absorbed in each layer",
-    "absorbed_stderr": "(K, L) its standard error",
+    "reflected_path_mm": "(K, L) weight-averaged path of reflected light in each layer, mm",
     "mu_a_per_mm": "(K, L) absorption coefficients of the grid points, 1/mm",
     "mu_a_reference_per_mm": "(L,) reference absorption of the scattering run, 1/mm",
     "mu_s_per_mm": "(L,) scattering coefficients, 1/mm",
@@ -49,23 +45,61 @@ TASK_ARRAYS = {
     "n_ambient": "(2,) refractive index above and below the stack",
     "specular_reflectance": "(1,) Fresnel reflection at entry",
     "ring_edges_mm": "(R+1,) ring edges, mm",
+    "photons": "(1,) photons launched in total (all runs of the task)",
     "task_id": "uint8 bytes of the task id (ASCII hex)",
 }
+
+#: Photon counts of the adaptive runs are rounded up to a multiple of this.
+PHOTON_QUANTUM = 1000
+#: Safety factor on the photon count predicted to reach the target error (stderr ~ photons^-1/2).
+PHOTON_MARGIN = 1.15
 
 
 def _deps():
     try:
         from matgen.tissue.optics import absorption_batch, skin_optics
-        from matgen.transport.reweight import reweight
+        from matgen.transport.records import PhotonRecords
         from matgen.transport.simulate import simulate
         from matgen.transport.stack import Stack
     except ImportError as exc:
         raise TableError(f"running table tasks needs the tissue model and the transport engine: {exc}") from exc
-    return absorption_batch, skin_optics, simulate, reweight, Stack
+    return absorption_batch, skin_optics, simulate, PhotonRecords, Stack
+
+
+def next_photon_count(n_done: int, worst_rel: float, target: float, n_min: int, n_max: int) -> int:
+    """Photons to add so that the worst relative stderr reaches ``target`` (stderr scales as photons^-1/2).
+
+    Parameters
+    ----------
+    n_done : int
+        Photons run so far.
+    worst_rel : float
+        Worst relative standard error of A so far.
+    target : float
+        Target relative standard error.
+    n_min, n_max : int
+        Smallest step, and the ceiling of the total.
+
+    Returns
+    -------
+    int
+        Photons of the next run (0 if the target is met or the ceiling reached).
+    """
+    if not (worst_rel > target) or n_done >= n_max:
+        return 0
+    need = n_done * (worst_rel / target) ** 2 * PHOTON_MARGIN if np.isfinite(worst_rel) else 4 * n_done
+    add = max(int(np.ceil(need)) - n_done, n_min)
+    add = -(-add // PHOTON_QUANTUM) * PHOTON_QUANTUM
+    return int(min(add, n_max - n_done))
 
 
 def compute_task(plan: Plan, task: Task, threads: int | None = None) -> dict:
     """Compute the output arrays of one task (see :data:`TASK_ARRAYS`).
+
+    The reference run launches ``photons_per_band`` photons; with a ``target_relative_stderr`` further runs
+    continue the same photon stream (``first_photon`` = photons so far) until the worst relative standard
+    error of A over the task's grid points meets the target or ``max_photons_per_band`` is reached. The
+    stopping rule depends only on the results, so the photon count is as deterministic as the results.
 
     Parameters
     ----------
@@ -78,11 +112,16 @@ def compute_task(plan: Plan, task: Task, threads: int | None = None) -> dict:
     -------
     dict of str to ndarray
     """
-    absorption_batch, skin_optics, simulate, reweight, Stack = _deps()
+    import numba
+
+    from matgen.tables.factored import factored_reweight
+
+    absorption_batch, skin_optics, simulate, PhotonRecords, Stack = _deps()
     spec = plan.spec
     bands = spec.bands.subset(np.array([task.band]))
     base = base_parameters(spec)
     idx, values = plan.task_grid_points(task)
+    sub_shape = tuple(int(np.unique(idx[:, d]).size) for d in range(idx.shape[1]))  # 1 along fixed axes
     params = [parameters_at(base, v, spec.source) for v in values]
     mu_a = np.asarray(absorption_batch(params, bands, packaging=spec.packaging), dtype=np.float64)[:, :, 0]
     optics = skin_optics(params[0], bands, packaging=spec.packaging)
@@ -91,20 +130,33 @@ def compute_task(plan: Plan, task: Task, threads: int | None = None) -> dict:
     # exp(-(mu_a - mu_a_ref) L) is <= 1
     mu_ref = mu_a.min(axis=0)
     stack = Stack(**{**layer, "mu_a": mu_ref})
-    result, records = simulate(stack, spec.photons_per_band, seed=task.seed, threads=threads,
-                               ring_edges_mm=plan.ring_edges_mm, records=True)
-    rw = reweight(records, mu_a, ring_edges_mm=plan.ring_edges_mm, threads=threads)
+    target = spec.target_relative_stderr
+    n_max = spec.max_photons_per_band if target is not None else spec.photons_per_band
+    parts, n_done, chunk = [], 0, spec.photons_per_band
+    old_threads = numba.get_num_threads()
+    if threads is not None:
+        numba.set_num_threads(max(1, min(int(threads), numba.config.NUMBA_NUM_THREADS)))
+    try:
+        while chunk > 0:
+            _, rec = simulate(stack, chunk, seed=task.seed, threads=threads, first_photon=n_done,
+                              ring_edges_mm=plan.ring_edges_mm, records=True)
+            parts.append(rec)
+            n_done += chunk
+            records = parts[0] if len(parts) == 1 else PhotonRecords.concatenate(parts)
+            rw = factored_reweight(records, mu_a, sub_shape, plan.ring_edges_mm)
+            a, e = rw["diffuse_reflectance"], rw["diffuse_reflectance_stderr"]
+            worst = float(np.max(np.where(a > 0, e / np.where(a > 0, a, 1.0), np.inf)))
+            chunk = 0 if target is None else next_photon_count(n_done, worst, target, spec.photons_per_band // 4 or 1,
+                                                                n_max)
+    finally:
+        numba.set_num_threads(old_threads)
     return {
         "grid_index": idx,
-        "diffuse_reflectance": np.asarray(rw.diffuse_reflectance, np.float64),
-        "diffuse_reflectance_stderr": np.asarray(rw.diffuse_reflectance_stderr, np.float64),
-        "transmittance": np.asarray(rw.transmittance, np.float64),
-        "transmittance_stderr": np.asarray(rw.transmittance_stderr, np.float64),
-        "radial_reflectance_per_mm2": np.asarray(rw.radial_reflectance_per_mm2, np.float64),
-        "radial_stderr_per_mm2": np.asarray(rw.radial_stderr_per_mm2, np.float64),
-        "mean_penetration_depth_mm": np.asarray(rw.mean_penetration_depth_mm, np.float64),
-        "absorbed": np.asarray(rw.absorbed, np.float64),
-        "absorbed_stderr": np.asarray(rw.absorbed_stderr, np.float64),
+        "diffuse_reflectance": np.asarray(a, np.float64),
+        "diffuse_reflectance_stderr": np.asarray(e, np.float64),
+        "radial_reflectance_per_mm2": np.asarray(rw["radial_reflectance_per_mm2"], np.float64),
+        "radial_stderr_per_mm2": np.asarray(rw["radial_stderr_per_mm2"], np.float64),
+        "reflected_path_mm": np.asarray(rw["reflected_path_mm"], np.float64),
         "mu_a_per_mm": mu_a,
         "mu_a_reference_per_mm": mu_ref,
         "mu_s_per_mm": np.asarray(stack.mu_s, np.float64),
@@ -112,8 +164,9 @@ def compute_task(plan: Plan, task: Task, threads: int | None = None) -> dict:
         "n": np.asarray(stack.n, np.float64),
         "thickness_mm": np.asarray(stack.thickness_mm, np.float64),
         "n_ambient": np.array([stack.n_above, stack.n_below], np.float64),
-        "specular_reflectance": np.array([float(rw.specular_reflectance)], np.float64),
-        "ring_edges_mm": np.asarray(rw.ring_edges_mm, np.float64),
+        "specular_reflectance": np.array([float(records.meta["specular_reflectance"])], np.float64),
+        "ring_edges_mm": np.asarray(plan.ring_edges_mm, np.float64),
+        "photons": np.array([n_done], np.int64),
         "task_id": np.frombuffer(task.task_id.encode("ascii"), dtype=np.uint8),
     }
 
@@ -201,7 +254,7 @@ def run_task(job: JobFolder, index: int, *, threads: int | None = None, wait_s: 
             "bytes": out.stat().st_size,
             "wall_s": wall,
             "cpu_s": time.process_time() - c0,
-            "photons": job.plan.spec.photons_per_band,
+            "photons": int(arrays["photons"][0]),
             "grid_points": int(arrays["diffuse_reflectance"].size),
             "host": socket.gethostname(),
             "pid": os.getpid(),
