@@ -103,22 +103,49 @@ def skin_runs(label: str, params, bands: BandSet, photons: int, seed: int = 0) -
     return SkinRuns(label, params, bands, stacks, results)
 
 
+def effective_anisotropy(stack: Stack, absorbed) -> float:
+    """Mean HG g over the scattering events in a layered stack, weighted by each layer's mean path length.
+
+    ``g_eff = sum_i g_i mu_s,i l_i / sum_i mu_s,i l_i`` with the weight-averaged path length of light in layer
+    i, ``l_i = absorbed_i / mu_a,i`` (the absorbed fraction of a layer is mu_a,i times the path length it
+    integrates, [Alerstam2008white]); a layer with mu_a = 0 uses its thickness. The table build weights the
+    same sum by the path lengths of reflected light only, where photon records are at hand; for the effective
+    medium's g the two differ little, and the collapse comparison prints the g it used.
+
+    Parameters
+    ----------
+    stack : Stack
+        Layers (1/mm, mm).
+    absorbed : ndarray (L,)
+        Fraction of launched weight absorbed per layer (matgen's transport).
+
+    Returns
+    -------
+    float
+        Effective anisotropy.
+    """
+    mu_a = np.asarray(stack.mu_a, np.float64)
+    ab = np.asarray(absorbed, np.float64)
+    path = np.where(mu_a > 0, ab / np.where(mu_a > 0, mu_a, 1.0), np.asarray(stack.thickness_mm, np.float64))
+    w = path * np.asarray(stack.mu_s, np.float64)
+    total = float(w.sum())
+    return float((w * np.asarray(stack.g)).sum() / total) if total > 0 else float(np.mean(stack.g))
+
+
 def skin_summary(runs: SkinRuns) -> dict:
     """Table quantities of a skin parameter set, assembled as the table merge assembles them.
 
     Per band: A and its standard error, the radial profile, the effective anisotropy
-    (``matgen.tables.merge.effective_anisotropy``, the mean g over scattering events) and the top layer's index
-    as the boundary index; then ``matgen.fit.summary.summarize``.
+    (:func:`effective_anisotropy`) and the top layer's index as the boundary index (averaged over the
+    bands); then ``matgen.fit.summary.summarize``.
 
     Returns
     -------
     dict of ndarray
         The table quantities, leading axis of length 1.
-
     """
     try:
         from matgen.fit.summary import summarize
-        from matgen.tables.merge import effective_anisotropy
     except ImportError as exc:
         raise DependencyError(f"the fit summary is not available in this build ({exc})") from exc
     res, stacks = runs.results, runs.stacks
@@ -126,10 +153,7 @@ def skin_summary(runs: SkinRuns) -> dict:
     albedo_se = np.array([[r.diffuse_reflectance.stderr for r in res]])
     radial = np.array([[r.radial_reflectance_per_mm2 for r in res]])
     radial_se = np.array([[r.radial_stderr_per_mm2 for r in res]])
-    g_eff = np.array([[
-        float(effective_anisotropy(st.g, st.mu_s, st.mu_a[None, :], r.absorbed[None, :], st.thickness_mm)[0])
-        for st, r in zip(stacks, res)
-    ]])
+    g_eff = np.array([[effective_anisotropy(st, r.absorbed) for st, r in zip(stacks, res, strict=True)]])
     n_top = float(np.mean([st.n[0] for st in stacks]))
     return dict(summarize(runs.bands, res[0].ring_edges_mm, albedo, albedo_se, radial, radial_se, g_eff, n_top))
 
