@@ -260,7 +260,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         request[f"rgb_{q}"] = None
         outputs.append(OutputSpec(f"rgb/{q}", "rgb", f"rgb_{q}", ("R", "G", "B"), QUANTITY_UNITS[q],
                                   f"{q} per channel of {table.working_space} ({QUANTITY_UNITS[q]})"))
-    if "openpbr" in config.outputs.targets:
+    if {"openpbr", "standard_surface"} & set(config.outputs.targets):  # both read the same maps
         request["rgb_albedo_single"] = None
         request["rgb_mean_free_path_mm"] = None
         outputs += [

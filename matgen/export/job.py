@@ -132,6 +132,22 @@ def _openpbr_inputs(plan: BakePlan, spec_ior: float) -> dict:
     return inputs
 
 
+def _standard_surface_inputs(plan: BakePlan, spec_ior: float) -> dict:
+    """Standard Surface reads the OpenPBR maps: its RGB radius is OpenPBR's radius scale, its scale the radius."""
+    udim = plan.tile_numbers[0] is not None
+    rename = {"subsurface_color": "subsurface_color", "subsurface_radius_scale": "subsurface_radius",
+              "subsurface_radius": "subsurface_scale", "subsurface_scatter_anisotropy": "subsurface_anisotropy"}
+    inputs = {"subsurface": {"value": 1.0, "type": "float"}}
+    for spec in plan.outputs:
+        if spec.kind == "target" and spec.quantity in rename:
+            path = f"{spec.key}.<UDIM>.exr" if udim else f"{spec.key}.exr"
+            inputs[rename[spec.quantity]] = {"texture": path, "unit": spec.unit,
+                                             "type": "color3" if len(spec.channels) == 3 else "float"}
+    if spec_ior is not None:
+        inputs["specular_IOR"] = {"value": spec_ior, "type": "float", "unit": "1"}
+    return inputs
+
+
 def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, tile: int | None = None,
          dry_run: bool = False, allow_outside: bool = False, progress=None,
          memory_budget_bytes: int = 256 << 20, rows: int | None = None) -> BakeResult:
@@ -245,6 +261,9 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
                               "albedo_convention": "spec_remap: subsurface_color is van de Hulst's A of the "
                                                    "effective single-scattering albedo (matgen.fit.targets)",
                               "inputs": _openpbr_inputs(plan, ior)}
+    if "standard_surface" in opts.targets:
+        targets["standard_surface"] = {"shading_model": "Autodesk Standard Surface (MaterialX standard_surface)",
+                                       "inputs": _standard_surface_inputs(plan, ior)}
     documents = {}
     if "material.mtlx" in planned_files(plan, cfg.name):
         from matgen.export.materialx import document_text, openpbr_document

@@ -189,3 +189,32 @@ def test_srgb_tagged_png_warns_and_is_read_as_data(tmp_path, kit):
     kit.write_map(tmp_path / "m8.png", vals, oiio.UINT8)
     with pytest.warns(ColourSpaceWarning), MapReader(map_info(tmp_path / "m8.png"), 0) as r8:
         np.testing.assert_allclose(r8.read_rows(0, 4), np.round(vals * 255) / 255, atol=1e-7)
+
+
+def test_standard_surface_target_shares_the_openpbr_maps(tmp_path, kit):
+    cfg = kit.make_project(tmp_path / "p", 8, 8)
+    cfg.write_text(cfg.read_text().replace("passes = []", 'passes = []\ntargets = ["standard_surface"]'))
+    res = bake(load_config(cfg), tmp_path / "out")
+    doc = json.loads(res.descriptor.read_text())
+    assert set(doc["targets"]) == {"standard_surface"}
+    inputs = doc["targets"]["standard_surface"]["inputs"]
+    assert inputs["subsurface_radius"]["texture"] == "openpbr/subsurface_radius_scale.exr"
+    assert inputs["subsurface_scale"]["texture"] == "openpbr/subsurface_radius.exr"
+    for entry in inputs.values():
+        if "texture" in entry:
+            assert (tmp_path / "out" / entry["texture"]).is_file()
+
+
+def test_tiff_maps_read_as_data_without_colour_tag(tmp_path, kit):
+    """16-bit TIFF values come back as integer / 65535; OpenImageIO reports no colour space for TIFFs."""
+    import warnings
+
+    from matgen.bake.maps import MapReader, map_info
+
+    vals = np.linspace(0, 1, 20, dtype=np.float32).reshape(4, 5)
+    kit.write_map(tmp_path / "m.tif", vals, oiio.UINT16)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        with MapReader(map_info(tmp_path / "m.tif"), 0) as r:
+            got = r.read_rows(0, 4)
+    np.testing.assert_allclose(got, np.round(vals * 65535) / 65535, atol=1e-7)
