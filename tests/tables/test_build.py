@@ -210,3 +210,25 @@ def test_interpolation_matches_fresh_transport_between_nodes(reference):
         tol = 3 * np.hypot(e, looked["albedo_multiple_stderr"][p]) + interp_err[p]
         diff = np.abs(looked["albedo_multiple"][p] - a)
         assert np.all(diff <= tol), (pt, diff, tol)
+
+
+def test_info_and_plot_commands(reference, tmp_path, capsys):
+    root, table = reference
+    path = root / "t.npz"
+    assert main(["table", "info", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "QA worst relative stderr of A" in out and "melanin_fraction" in out
+    assert main(["table", "info", str(path), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    a = table.quantities["albedo_multiple"].astype(float)
+    e = table.quantities["albedo_multiple_stderr"].astype(float)
+    worst = doc["qa"]["worst_relative_stderr_albedo_multiple"]
+    assert worst["value"] == pytest.approx(float((e / a).max()))
+    # the QA threshold decides the exit status
+    assert main(["table", "info", str(path), "--max-rel-stderr", str(worst["value"] * 1.01)]) == 0
+    assert main(["table", "info", str(path), "--max-rel-stderr", str(worst["value"] * 0.5)]) == 1
+    png = tmp_path / "s.png"
+    assert main(["table", "plot", str(path), "--out", str(png), "--quantity", "albedo_multiple",
+                 "--band-nm", "550", "--at", "oxygen_saturation=0.75"]) == 0
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert main(["table", "plot", str(path), "--out", str(png), "--x", "melanin"]) == 2
