@@ -8,6 +8,7 @@ from matgen.cli import add_command
 
 
 def register(sub):
+    """Add the ``validate`` subcommand."""
     p = add_command(
         sub,
         "validate",
@@ -25,6 +26,7 @@ def register(sub):
 
 
 def run(args) -> int:
+    """Run ``matgen validate``; exit 1 when a comparison fails or could not run."""
     from matgen.fsutil import atomic_path
     from matgen.preview.validate import run_validation
 
