@@ -24,12 +24,13 @@ scaling factor s of Christensen & Burley's searchlight mean-free-path fit s = 1.
 from __future__ import annotations
 
 import json
+import warnings
 from functools import lru_cache
 from importlib import resources
 
 import numpy as np
 
-from matgen.errors import DataError, FitError, ParameterError
+from matgen.errors import ClampWarning, DataError, FitError, ParameterError
 from matgen.fit.models import shape_scaling_Christensen2015
 
 #: Names accepted by ``method=``.
@@ -256,6 +257,9 @@ class InversionTable:
             raise DataError(f"inversion table {path_npz} lacks arrays ({exc})") from exc
 
     # -- lookup ----------------------------------------------------------------------------------------
+    #: What to do with g or n outside the table: "error" (ParameterError) or "clamp" (ClampWarning).
+    out_of_range = "error"
+
     def _corner_weights(self, g, n):
         """Bilinear weights over the (g, n) grid: index arrays (4, K) into g and n, weights (4, K)."""
         g = np.asarray(g, dtype=np.float64).reshape(-1)
@@ -264,10 +268,14 @@ class InversionTable:
             out = (v < nodes[0] - 1e-12) | (v > nodes[-1] + 1e-12)
             if out.any():
                 i = int(np.argmax(out))
-                raise ParameterError(
-                    f"{name} = {v[i]!r} lies outside the boundary-aware inversion table "
-                    f"[{nodes[0]:g}, {nodes[-1]:g}]; use a closed-form method or extend the table"
-                )
+                msg = (f"{name} = {v[i]!r} lies outside the boundary-aware inversion table "
+                       f"[{nodes[0]:g}, {nodes[-1]:g}]")
+                if self.out_of_range != "clamp":
+                    raise ParameterError(msg + "; use a closed-form method or extend the table")
+                warnings.warn(f"boundary-aware inversion table: {msg}; clamped to the table's range "
+                              f"({int(out.sum())} values)", ClampWarning, stacklevel=4)
+        g = np.clip(g, self.g[0], self.g[-1])
+        n = np.clip(n, self.n[0], self.n[-1])
 
         def axis(v, nodes):
             if nodes.size == 1:

@@ -72,7 +72,8 @@ def summarize(bands, ring_edges_mm, albedo_multiple, albedo_multiple_stderr, rad
     inversion : str, optional
         Inversion method (see :func:`resolve_inversion`).
     table : InversionTable, optional
-        Table for ``"boundary_table"`` (default: the shipped one).
+        Table for ``"boundary_table"`` (default: the shipped one). g or n outside its nodes are clamped to
+        its range with a :class:`~matgen.errors.ClampWarning`.
 
     Returns
     -------
@@ -91,6 +92,14 @@ def summarize(bands, ring_edges_mm, albedo_multiple, albedo_multiple_stderr, rad
     ``CIE2004``, ``Moroney2002`` (RGB weights).
     """
     method = resolve_inversion(inversion)
+    if method == "boundary_table":
+        # g or n outside the table's nodes: clamp with a ClampWarning rather than fail a table build
+        import copy
+
+        from matgen.fit.inversion import default_inversion_table
+
+        table = copy.copy(table if table is not None else default_inversion_table())
+        table.out_of_range = "clamp"
     a = np.asarray(albedo_multiple, dtype=np.float64)
     if a.ndim != 2 or a.shape[1] != len(bands):
         raise FitError(f"albedo_multiple has shape {a.shape}; expected (N, {len(bands)}) for N parameter sets")

@@ -48,3 +48,13 @@ def test_out_of_range_and_bad_tables():
     a[5, 0, 0] = a[4, 0, 0]
     with pytest.raises(DataError, match="increasing"):
         InversionTable(ALPHA, G, N, a, a * 0, tab.shape_scaling, a * 0)
+
+
+def test_clamp_mode_warns_and_uses_edge():
+    from matgen.errors import ClampWarning
+
+    tab = _table()
+    tab.out_of_range = "clamp"
+    with pytest.warns(ClampWarning, match="inversion table"):
+        alpha, _ = tab.invert(np.array([0.3]), 0.95, 1.2)
+    np.testing.assert_allclose(alpha, tab.invert(np.array([0.3]), 0.9, 1.2)[0])
