@@ -132,17 +132,23 @@ class BandSet:
         text = str(text).strip()
         if not text:
             raise BandError("the band spec is empty; use e.g. '300:1000:10' or '365,550,850'")
+        usage = "use start:stop:step[:width] or a comma list of centres in nm"
         try:
             if ":" in text:
                 parts = [float(p) for p in text.split(":")]
                 if len(parts) not in (3, 4):
                     raise ValueError
-                return cls.regular(*parts)
-            centres = np.array([float(p) for p in text.split(",")])
+            else:
+                centres = np.array([float(p) for p in text.split(",")])
         except ValueError as exc:
-            raise BandError(
-                f"cannot read band spec {text!r}; use start:stop:step[:width] or a comma list of centres in nm"
-            ) from exc
+            raise BandError(f"cannot read band spec {text!r}; {usage}") from exc
+        if ":" in text:
+            # numbers read; what remains wrong (width wider than the step, stop below start, ...) is named by
+            # the constructor's own BandError, with the spec in front
+            try:
+                return cls.regular(*parts)
+            except BandError as exc:
+                raise BandError(f"band spec {text!r}: {exc}") from exc
         if centres.size > 1 and np.any(np.diff(centres) <= 0):
             raise BandError(f"band centres {centres.tolist()} are not strictly increasing")
         half = np.full(centres.size, 5.0)

@@ -92,7 +92,8 @@ def test_every_parameter_is_an_option(capsys):
         (["--preset", "nose"], "unknown preset 'nose'"),
         (["--wavelengths", "600,500"], "not strictly increasing"),
         (["--wavelengths", ""], "band spec is empty"),
-        (["--wavelengths", "400:700:10:20"], "cannot read band spec"),
+        (["--wavelengths", "400:700:10:20"], "band width 20.0 nm must be in (0, step=10.0]"),
+        (["--wavelengths", "400:x:10"], "cannot read band spec"),
         (["--wavelengths", "1500"], "covers"),
     ],
 )
