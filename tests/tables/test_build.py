@@ -232,3 +232,27 @@ def test_info_and_plot_commands(reference, tmp_path, capsys):
                  "--band-nm", "550", "--at", "oxygen_saturation=0.75"]) == 0
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert main(["table", "plot", str(path), "--out", str(png), "--x", "melanin"]) == 2
+
+
+def test_run_task_twice_at_once_and_busy_status(reference, tmp_path):
+    from matgen.fsutil import FolderLock
+
+    root, _ = reference
+    jobdir = tmp_path / "twice.job"
+    shutil.copytree(root / "t.job", jobdir)
+    for f in (jobdir / "tasks").glob("task-00002.*"):
+        f.unlink()
+    # two processes on the same task at the same time: both succeed, one computes, the other waits and finds
+    # it done; the output equals the reference's
+    cmd = [sys.executable, "-m", "matgen", "table", "run-task", str(jobdir), "2", "--threads", "1"]
+    procs = [subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for _ in range(2)]
+    outs = [p.communicate(timeout=300) for p in procs]
+    assert [p.returncode for p in procs] == [0, 0], outs
+    said = sorted(o[0].strip() for o in outs)
+    assert said == ["task 2: computed", "task 2: done"], said
+    assert (jobdir / "tasks" / "task-00002.npz").read_bytes() == (root / "t.job" / "tasks" / "task-00002.npz").read_bytes()
+    # a live holder of the lock: --no-wait exits 75 (retry later)
+    (jobdir / "tasks" / "task-00002.json").unlink()
+    with FolderLock(jobdir / "locks", "task-00002.lock"):
+        assert main(["table", "run-task", str(jobdir), "2", "--no-wait"]) == 75
+    assert main(["table", "run-task", str(jobdir), "7"]) == 2  # no such task
