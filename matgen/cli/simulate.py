@@ -1,0 +1,147 @@
+"""``matgen simulate STACK.json``: run the layered Monte Carlo on a stack file and print its tallies.
+
+STACK.json (units: mm, 1/mm)::
+
+    {"n_above": 1.0, "n_below": 1.0,
+     "layers": [{"thickness_mm": 0.1, "n": 1.4, "mu_a": 0.5, "mu_s": 30.0, "g": 0.8, "name": "epidermis"}, ...]}
+
+With ``"wavelength_nm": [w1, w2, ...]`` at the top level, ``n``, ``mu_a``, ``mu_s`` and ``g`` of each layer
+may be lists with one value per wavelength (a single number applies to every band); one run per band.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+from matgen.cli import add_command
+from matgen.errors import ConfigError, StackError
+from matgen.limits import read_text_limited
+
+_TOP_KEYS = {"n_above", "n_below", "layers", "wavelength_nm"}
+_LAYER_KEYS = {"thickness_mm", "n", "mu_a", "mu_s", "g", "name"}
+_PER_BAND = ("n", "mu_a", "mu_s", "g")
+
+
+def register(sub):
+    p = add_command(
+        sub,
+        "simulate",
+        "Run the layered Monte Carlo on a stack file (JSON, mm and 1/mm) and print reflectance, "
+        "transmittance and absorption with standard errors",
+        "matgen simulate stack.json --photons 100000 --seed 1 --json --profile",
+    )
+    p.add_argument("stack", metavar="STACK.json", help="layer stack file (see matgen.cli.simulate for the layout)")
+    p.add_argument("--photons", type=int, default=100_000, help="photon packets per band")
+    p.add_argument("--seed", type=int, default=0, help="run seed (same seed, same tallies on any machine)")
+    p.add_argument("--threads", type=int, default=None, help="threads (default: all cores)")
+    p.add_argument("--incidence-deg", type=float, default=0.0,
+                   help="angle of the collimated beam to the surface normal, degrees in [0, 90)")
+    p.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    p.add_argument("--profile", action="store_true",
+                   help="include the radial profile (mm^-2) and exit-angle distribution (sr^-1) in the JSON")
+    p.set_defaults(func=run)
+
+
+def load_stacks(path):
+    """Read STACK.json into a list of (wavelength_nm or None, Stack); errors name the file, band, layer and field."""
+    from matgen.transport.stack import Stack
+
+    text = read_text_limited(path, "stack file")
+    try:
+        doc = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise ConfigError(f"stack file '{path}' is not valid JSON: {exc}") from None
+    if not isinstance(doc, dict):
+        raise ConfigError(f"stack file '{path}' must hold a JSON object with a 'layers' list")
+    unknown = set(doc) - _TOP_KEYS
+    if unknown:
+        raise ConfigError(f"stack file '{path}': unknown keys {sorted(unknown)}; allowed {sorted(_TOP_KEYS)}")
+    layers = doc.get("layers")
+    if not isinstance(layers, list) or not layers:
+        raise StackError(f"stack file '{path}': 'layers' must be a non-empty list of layer objects")
+    waves = doc.get("wavelength_nm")
+    if waves is not None:
+        if not isinstance(waves, list) or not waves or not all(
+                isinstance(w, (int, float)) and not isinstance(w, bool) and math.isfinite(w) and w > 0
+                for w in waves):
+            raise ConfigError(f"stack file '{path}': 'wavelength_nm' must be a non-empty list of positive numbers")
+    n_bands = 1 if waves is None else len(waves)
+    columns = {k: [] for k in ("thickness_mm", *_PER_BAND)}
+    names = []
+    for i, layer in enumerate(layers):
+        if not isinstance(layer, dict):
+            raise StackError(f"stack file '{path}': layer {i} is not a JSON object")
+        unknown = set(layer) - _LAYER_KEYS
+        if unknown:
+            raise ConfigError(f"stack file '{path}': layer {i} has unknown keys {sorted(unknown)}; "
+                              f"allowed {sorted(_LAYER_KEYS)}")
+        for key in ("thickness_mm", *_PER_BAND):
+            if key not in layer:
+                raise StackError(f"stack file '{path}': layer {i} lacks '{key}'")
+            v = layer[key]
+            if isinstance(v, list):
+                if key == "thickness_mm" or waves is None or len(v) != n_bands:
+                    want = "a number" if key == "thickness_mm" or waves is None else f"{n_bands} values"
+                    raise StackError(f"stack file '{path}': layer {i} field '{key}' must be {want}")
+                vals = v
+            else:
+                vals = [v] * n_bands
+            for val in vals:
+                if isinstance(val, bool) or not isinstance(val, (int, float)):
+                    raise StackError(f"stack file '{path}': layer {i} field '{key}' holds {val!r}, not a number")
+            columns[key].append(vals)
+        names.append(str(layer.get("name", f"layer {i}")))
+    out = []
+    for b in range(n_bands):
+        where = f"stack file '{path}'" + ("" if waves is None else f", band {b} ({waves[b]} nm)")
+        try:
+            stack = Stack(
+                [c[b] for c in columns["thickness_mm"]], [c[b] for c in columns["n"]],
+                [c[b] for c in columns["mu_a"]], [c[b] for c in columns["mu_s"]], [c[b] for c in columns["g"]],
+                doc.get("n_above", 1.0), doc.get("n_below", 1.0), tuple(names),
+            )
+        except StackError as exc:
+            raise StackError(f"{where}: {exc}") from None
+        out.append((None if waves is None else float(waves[b]), stack))
+    return out
+
+
+def run(args) -> int:
+    from matgen.errors import ParameterError
+    from matgen.transport.simulate import simulate
+
+    if not (0.0 <= args.incidence_deg < 90.0) or not math.isfinite(args.incidence_deg):
+        raise ParameterError(f"--incidence-deg is {args.incidence_deg}; allowed range [0, 90)")
+    cos_i = math.cos(math.radians(args.incidence_deg))
+    stacks = load_stacks(args.stack)
+    results = []
+    for wave, stack in stacks:
+        r = simulate(stack, args.photons, args.seed, threads=args.threads, incidence_cos=cos_i)
+        d = r.to_dict(profile=args.profile)
+        d.pop("tally_fixed_point", None)
+        d["layers"] = list(stack.names)
+        if wave is not None:
+            d = {"wavelength_nm": wave, **d}
+        results.append(d)
+    if args.json:
+        doc = results[0] if stacks[0][0] is None else {"bands": results}
+        print(json.dumps(doc, indent=2, default=_jsonable))
+        return 0
+    for d in results:
+        head = f"{d['wavelength_nm']:g} nm: " if "wavelength_nm" in d else ""
+        print(f"{head}{d['photons']} photons, {d['photons_per_second']:.0f} photons/s")
+        for key in ("specular_reflectance", "diffuse_reflectance", "transmittance"):
+            print(f"  {key:<22s} {d[key]['value']:.6f} +- {d[key]['stderr']:.6f}")
+        for name, a in zip(d["layers"], d["absorbed"]):
+            print(f"  absorbed in {name:<10s} {a['value']:.6f} +- {a['stderr']:.6f}")
+        m = d["mean_penetration_depth_mm"]
+        print(f"  mean penetration depth {m['value']:.4f} +- {m['stderr']:.4f} mm")
+    return 0
+
+
+def _jsonable(obj):
+    try:
+        return obj.tolist()
+    except AttributeError:
+        return str(obj)
