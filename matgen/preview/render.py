@@ -100,8 +100,10 @@ def disc_kernel(medium: PatchMedium, field_mm: float, pixels: int) -> np.ndarray
     """Per band, the reflectance each pixel receives from a unit point source at the centre (B, P, P).
 
     Pixel (i, j) holds R(r_ij) times the pixel area; the centre pixel, where R has its 1/r singularity,
-    holds A F(r_eq) with the exact cumulative fraction F of the profile over the disc of equal area.
-    [Christensen2015]
+    holds A F(r_eq) with the exact cumulative fraction F of the profile over the disc of equal area. Where d
+    is not much larger than a pixel, sampling R at pixel centres misstates the energy near the centre; the
+    other pixels are therefore rescaled so that the kernel's total is A F(r_grid), the exact fraction inside
+    the disc of the grid's area. [Christensen2015]
     """
     from matgen.fit.models import burley2015_cdf, burley2015_profile
 
@@ -112,10 +114,16 @@ def disc_kernel(medium: PatchMedium, field_mm: float, pixels: int) -> np.ndarray
     d = np.maximum(medium.shape_distance_mm, 1e-6)[:, None, None]
     with np.errstate(divide="ignore", invalid="ignore"):
         k = burley2015_profile(np.maximum(r, 1e-12), a, d) * px * px
+    k = np.nan_to_num(k)
     if pixels % 2 == 1:
         r_eq = px / math.sqrt(math.pi)
-        k[:, pixels // 2, pixels // 2] = medium.albedo_multiple * burley2015_cdf(r_eq, d[:, 0, 0])
-    return np.nan_to_num(k)
+        centre = medium.albedo_multiple * burley2015_cdf(r_eq, d[:, 0, 0])
+        k[:, pixels // 2, pixels // 2] = 0.0
+        target = medium.albedo_multiple * burley2015_cdf(field_mm / math.sqrt(math.pi), d[:, 0, 0]) - centre
+        rest = k.sum(axis=(1, 2))
+        k *= np.where(rest > 0, target / np.where(rest > 0, rest, 1.0), 0.0)[:, None, None]
+        k[:, pixels // 2, pixels // 2] = centre
+    return k
 
 
 def light_irradiance(radius_mm, light_height_mm: float = LIGHT_HEIGHT_MM):
@@ -285,6 +293,17 @@ def patch_preview(path, medium: PatchMedium, *, method: str = "auto", passes=DEF
 
     if method not in ("auto", "tracer", "builtin"):
         raise ParameterError(f"preview method {method!r}; use 'auto', 'tracer' or 'builtin'")
+    from matgen.color import pass_weights
+    from matgen.errors import DataError
+
+    covered, left_out = [], []
+    for name in passes:
+        try:
+            pass_weights(name, medium.bands)
+            covered.append(name)
+        except DataError:
+            left_out.append(name)
+    passes = tuple(covered)
     use = method
     if method == "auto":
         use = "tracer" if tracer_available() else "builtin"
@@ -300,6 +319,7 @@ def patch_preview(path, medium: PatchMedium, *, method: str = "auto", passes=DEF
     height = kwargs.get("light_height_mm", LIGHT_HEIGHT_MM)
     field_mm = kwargs.get("field_mm", FIELD_MM)
     title = (f"{medium.label + ': ' if medium.label else ''}flat patch, small light {height:g} mm above, "
-             f"{field_mm:g} mm field, +{EXPOSURE_STOPS:g} stops\n{label}")
+             f"{field_mm:g} mm field, +{EXPOSURE_STOPS:g} stops\n{label}"
+             + (f"\n(passes {', '.join(left_out)} left out: not covered by the bands)" if left_out else ""))
     out = plot_contact_sheet(path, panels, title=title, columns=len(panels), panel_px=280)
     return out, use

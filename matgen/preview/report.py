@@ -316,20 +316,9 @@ def _patch_section(descriptor_path, doc, bands, curves, tmp: Path) -> str:
         note = "shape distance d = mean free path / s(A) (Christensen-Burley mean-free-path scaling)"
     nan = np.full(len(bands), np.nan)
     medium = PatchMedium(bands, np.asarray(a, np.float64), d, nan, nan, nan, 1.4, label)
-    passes = []
-    from matgen.color import pass_weights
-
-    for name in ("uv365", "nir850"):
-        try:
-            pass_weights(name, bands)
-            passes.append(name)
-        except MatgenError:
-            pass
     try:
-        path, used = patch_preview(tmp / "patch.png", medium, method="builtin", passes=passes, working_space=doc.get("working_space", "ACEScg"),
+        path, used = patch_preview(tmp / "patch.png", medium, method="builtin", working_space=doc.get("working_space", "ACEScg"),
                                    illuminant=doc.get("illuminant", "D65"))
     except (MatgenError, ImageError) as exc:
         return f"<p class='note'>Patch preview failed: {_esc(exc)}</p>"
-    missing = [p for p in ("uv365", "nir850") if p not in passes]
-    extra = f" Passes {', '.join(missing)} left out: the spectral stack's bands do not cover them." if missing else ""
-    return _figure(path, f"flat patch under a small light, median texel, {used} method ({note}).{extra}")
+    return _figure(path, f"flat patch under a small light, median texel, {used} method ({note}).")
