@@ -289,6 +289,11 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         derived[f"pass_{name}"] = (a @ passes[name])[..., None]
         outputs.append(OutputSpec(f"passes/{name}", "pass", name, ("Y",), "1",
                                   f"camera pass '{name}': response-weighted multiple-scattering albedo"))
+    if config.outputs.mitsuba_scene:
+        need = {"albedo_single", "mean_free_path_mm"} - set(config.outputs.spectral)
+        if need or not {"openpbr", "standard_surface"} & set(config.outputs.targets):
+            raise ConfigError("outputs.mitsuba_scene needs spectral stacks albedo_single and mean_free_path_mm "
+                              f"(missing: {sorted(need)}) and a target (openpbr) for the anisotropy")
     if config.outputs.qa:
         chans = ["table_clamped", "encoding_clamped"]
         if "rgb_fit_residual" in table.quantities:

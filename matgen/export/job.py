@@ -24,7 +24,7 @@ from matgen import __version__
 from matgen.bake.config import BakeConfig
 from matgen.bake.lookup import TexelLookup, set_threads
 from matgen.bake.run import BakePlan, check_inputs, iter_strips, plan_bake
-from matgen.errors import PathError
+from matgen.errors import DataError, PathError
 from matgen.export.descriptor import DESCRIPTOR_FORMAT, DESCRIPTOR_VERSION, descriptor_json, texture_entry
 from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture
 from matgen.fsutil import FolderLock
@@ -111,6 +111,8 @@ def planned_files(plan: BakePlan, name: str) -> list:
     files = [spec.file_name(t) for t in plan.tile_numbers for spec in plan.outputs]
     if plan.config.outputs.materialx and plan.single_tile is None:
         files.append("material.mtlx")
+    if plan.config.outputs.mitsuba_scene and plan.single_tile is None:
+        files.append("scene_mitsuba.xml")
     files.append(_descriptor_name(plan))
     return files
 
@@ -215,6 +217,7 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
     total = plan.texels
     done = 0
     entries, written = [], []
+    sums = {spec.key: np.zeros(len(spec.channels)) for spec in plan.outputs}  # for the preview scene
     n_table, n_enc = 0, report.total_clamped
     base_attrs = {"matgen:version": __version__}
     for ti in plan.tiles:
@@ -236,6 +239,7 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
             for strip in iter_strips(plan, ti.tile, lookup=lookup, memory_budget_bytes=budget, rows=rows):
                 for key, w in writers.items():
                     w.write_rows(strip.y0, strip.values[key])
+                    sums[key] += strip.values[key].sum(axis=(0, 1), dtype=np.float64)
                 n_table += strip.table_clamped
                 done += (strip.y1 - strip.y0) * ti.width
                 if progress is not None:
@@ -274,6 +278,20 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
         (staging / "material.mtlx").write_text(document_text(doc))
         documents["materialx"] = {"path": "material.mtlx", "sha256": sha256_file(staging / "material.mtlx")}
         written.append("material.mtlx")
+    if "scene_mitsuba.xml" in planned_files(plan, cfg.name):
+        from matgen.export.scene import mitsuba_scene_xml
+
+        if ior is None:
+            raise DataError("the preview scene needs the table's boundary refractive index (quantity 'ior')")
+        mean = {k: v / max(total, 1) for k, v in sums.items()}
+        xml = mitsuba_scene_xml(plan.spectral_bands.centre_nm, mean["spectral/albedo_single"],
+                                mean["spectral/mean_free_path_mm"],
+                                float(mean["openpbr/subsurface_scatter_anisotropy"][0]), ior,
+                                cfg.metres_per_scene_unit, name=cfg.name)
+        (staging / "scene_mitsuba.xml").write_text(xml)
+        documents["mitsuba_scene"] = {"path": "scene_mitsuba.xml",
+                                      "sha256": sha256_file(staging / "scene_mitsuba.xml")}
+        written.append("scene_mitsuba.xml")
     table_name, table_hash = _table_identity(cfg, table)
     source = {k: v for k, v in cfg.source.items()}
     desc = {

@@ -164,7 +164,7 @@ def test_failure_part_way_leaves_no_output(tmp_path, kit, monkeypatch):
 
 
 def test_killed_bake_leaves_no_partial_output_and_rerun_completes(tmp_path, kit):
-    cfg = kit.make_project(tmp_path / "p", 512, 512)
+    cfg = kit.make_project(tmp_path / "p", 256, 256)
     out = tmp_path / "out"
     proc = subprocess.Popen([sys.executable, "-m", "matgen", "bake", str(cfg), "--out", str(out), "--quiet",
                              "--memory-mb", "1"], stderr=subprocess.PIPE, text=True)

@@ -79,3 +79,15 @@ def test_example_scene_config_is_valid():
 
     cfg = load_config(Path(__file__).parents[2] / "scenes" / "low_tide_lantern" / "material.toml")
     assert cfg.is_udim is False and {p.name for p in cfg.map_parameters} >= {"melanin_fraction", "blood_fraction"}
+
+
+def test_readme_config_example_is_valid(tmp_path):
+    """The TOML example of docs/readme/bake.md validates against the config schema."""
+    import tomllib
+    from pathlib import Path
+
+    text = (Path(__file__).parents[2] / "docs" / "readme" / "bake.md").read_text()
+    block = text.split("```toml\n", 1)[1].split("```", 1)[0]
+    cfg = config_from_dict(tomllib.loads(block), tmp_path)
+    assert cfg.parameter("melanin_fraction").is_udim and cfg.parameter("blood_fraction").value == 0.02
+    assert cfg.outputs.targets == ("openpbr",) and cfg.outputs.spectral_bands == "400:700:10"
