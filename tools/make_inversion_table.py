@@ -57,7 +57,9 @@ def run_node(alpha, g, n, photons, seed):
         np.array([p.diffuse_reflectance.value for p in [full, *parts]]),
     )
     s_all = 1.0 / fits["shape_distance_mm"]
-    s_err = 0.5 * abs(s_all[1] - s_all[2])  # half the difference of two independent halves ~ stderr of the mean
+    s_err = 0.5 * abs(
+        s_all[1] - s_all[2]
+    )  # half the difference of two independent halves ~ stderr of the mean
     return a.value, a.stderr, s_all[0], s_err, full.transmittance.value
 
 
@@ -82,8 +84,11 @@ def main():
                 a, ae, s, se, t = run_node(alpha, g, n, args.photons, seed)
                 a_tab[i, j, k], a_err[i, j, k], s_tab[i, j, k], s_err[i, j, k] = a, ae, s, se
                 worst_t = max(worst_t, t)
-                print(f"alpha={alpha:.6f} g={g:.2f} n={n:.2f}: A={a:.5f}+-{ae:.5f} l/d={s:.4f}+-{se:.4f} "
-                      f"T={t:.1e} ({time.time() - t0:.0f} s)", flush=True)
+                print(
+                    f"alpha={alpha:.6f} g={g:.2f} n={n:.2f}: A={a:.5f}+-{ae:.5f} l/d={s:.4f}+-{se:.4f} "
+                    f"T={t:.1e} ({time.time() - t0:.0f} s)",
+                    flush=True,
+                )
     if worst_t > 1e-4:
         raise SystemExit(f"transmittance {worst_t:g} through the half-space slab: make it thicker")
     provenance = {

@@ -34,7 +34,9 @@ def silicon_slope(wl):
 CURVES = {
     "uv365": {
         "range_nm": (320.0, 420.0),
-        "make": lambda wl: gaussian(wl, 365.0, 10.0) * logistic(wl, 340.0, 3.0) * (1 - logistic(wl, 395.0, 3.0)),
+        "make": lambda wl: (
+            gaussian(wl, 365.0, 10.0) * logistic(wl, 340.0, 3.0) * (1 - logistic(wl, 395.0, 3.0))
+        ),
         "description": "365 nm inspection lamp line (Gaussian, FWHM 10 nm) through a UV band-pass filter "
         "(logistic edges at 340 and 395 nm, 3 nm scale) on a UV-sensitive sensor with flat response",
     },
@@ -60,10 +62,11 @@ def main():
         wl = np.arange(lo, hi + 0.5, 1.0)
         w = spec["make"](wl)
         w = w / w.max()
-        lines = ["wavelength_nm,weight"] + [f"{x:.1f},{y:.8f}" for x, y in zip(wl, w)]
+        lines = ["wavelength_nm,weight"] + [f"{x:.1f},{y:.8f}" for x, y in zip(wl, w, strict=True)]
         (OUT / f"{name}.csv").write_text("\n".join(lines) + "\n")
         record = {
-            "source": "illustrative generic response defined by matgen (not a measured product): " + spec["description"],
+            "source": "illustrative generic response defined by matgen (not a measured product): "
+            + spec["description"],
             "units": "wavelength_nm in nm; weight relative (peak 1), normalised by matgen over the band set",
             "license": "BSD-3-Clause (part of matgen)",
             "wavelength_range_nm": [lo, hi],

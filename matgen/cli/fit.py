@@ -35,15 +35,30 @@ def register(sub):
         ),
     )
     p.add_argument("result", help="transport result JSON (from matgen simulate --profile --json)")
-    p.add_argument("--json", action="store_true", help="write JSON to standard output instead of a text table")
-    p.add_argument("--anisotropy", type=float, default=0.0, help="Henyey-Greenstein g of the effective medium")
-    p.add_argument("--ior", type=float, default=None,
-                   help="refractive index of the effective medium (default: the stack's first layer, else 1.0)")
-    p.add_argument("--inversion", default=None,
-                   help="albedo inversion: boundary_table, OpenPBR2024 or ChiangKutzBurley2016 "
-                   "(default: boundary_table when the table is installed)")
-    p.add_argument("--metres-per-scene-unit", type=float, default=0.01,
-                   help="scene scale of the target inputs (0.01 = centimetre scene)")
+    p.add_argument(
+        "--json", action="store_true", help="write JSON to standard output instead of a text table"
+    )
+    p.add_argument(
+        "--anisotropy", type=float, default=0.0, help="Henyey-Greenstein g of the effective medium"
+    )
+    p.add_argument(
+        "--ior",
+        type=float,
+        default=None,
+        help="refractive index of the effective medium (default: the stack's first layer, else 1.0)",
+    )
+    p.add_argument(
+        "--inversion",
+        default=None,
+        help="albedo inversion: boundary_table, OpenPBR2024 or ChiangKutzBurley2016 "
+        "(default: boundary_table when the table is installed)",
+    )
+    p.add_argument(
+        "--metres-per-scene-unit",
+        type=float,
+        default=0.01,
+        help="scene scale of the target inputs (0.01 = centimetre scene)",
+    )
     p.add_argument("--working-space", default="ACEScg", help="RGB working space for the RGB targets")
     p.add_argument("--illuminant", default="D65", help="illuminant for the RGB targets")
     p.set_defaults(func=run)
@@ -76,7 +91,9 @@ def _read(path: Path):
         raise ConfigError(f"{path.name}: {len(bands)} bands but {len(results)} results")
     for i, r in enumerate(results):
         if np.asarray(r.ring_edges_mm).size == 0:
-            raise FitError(f"{path.name}: result {i} has no radial profile; run matgen simulate with --profile")
+            raise FitError(
+                f"{path.name}: result {i} has no radial profile; run matgen simulate with --profile"
+            )
     edges = np.asarray(results[0].ring_edges_mm)
     for i, r in enumerate(results[1:], start=1):
         if not np.array_equal(np.asarray(r.ring_edges_mm), edges):
@@ -85,7 +102,9 @@ def _read(path: Path):
     return results, bands, stack
 
 
-def fit_document(results, bands, *, anisotropy, ior, inversion, metres_per_scene_unit, working_space, illuminant):
+def fit_document(
+    results, bands, *, anisotropy, ior, inversion, metres_per_scene_unit, working_space, illuminant
+):
     """All fits for a list of per-band results: a JSON-ready dict (also the Python API of ``matgen fit``)."""
     from matgen.fit.fitting import fit_dipole_Jensen2001, fit_gaussians_dEon2007
     from matgen.fit.inversion import albedo_single_OpenPBR2024
@@ -108,8 +127,9 @@ def fit_document(results, bands, *, anisotropy, ior, inversion, metres_per_scene
     rgb_ok = labelled and bool(np.any((bands.upper_nm > 360.0) & (bands.lower_nm < 830.0)))
     space = working_space if rgb_ok else "ACEScg"
     if rgb_ok:
-        q = summarize(bands, edges, a, a_err, y, s, g, ior, working_space=space, illuminant=illuminant,
-                      inversion=method)
+        q = summarize(
+            bands, edges, a, a_err, y, s, g, ior, working_space=space, illuminant=illuminant, inversion=method
+        )
     else:
         # no visible band: spectral quantities only (RGB needs colour-matching weight)
         from matgen.fit.diffusion import fit_burley2015
@@ -118,10 +138,13 @@ def fit_document(results, bands, *, anisotropy, ior, inversion, metres_per_scene
         fit = fit_burley2015(edges, y[0], s[0], a[0])
         med = effective_medium(a[0], fit["shape_distance_mm"], g, ior, method=method)
         q = {
-            "albedo_multiple": a, "albedo_multiple_stderr": a_err,
-            "shape_distance_mm": fit["shape_distance_mm"][None], "fit_residual": fit["fit_residual"][None],
+            "albedo_multiple": a,
+            "albedo_multiple_stderr": a_err,
+            "shape_distance_mm": fit["shape_distance_mm"][None],
+            "fit_residual": fit["fit_residual"][None],
             "albedo_single": np.asarray(med["albedo_single"])[None],
-            "mean_free_path_mm": np.asarray(med["mean_free_path_mm"])[None], "anisotropy": g[None],
+            "mean_free_path_mm": np.asarray(med["mean_free_path_mm"])[None],
+            "anisotropy": g[None],
             "ior": np.array([[ior]]),
         }
     gauss = fit_gaussians_dEon2007(edges, y[0], s[0], a[0])
@@ -136,11 +159,16 @@ def fit_document(results, bands, *, anisotropy, ior, inversion, metres_per_scene
             "albedo_single": float(q["albedo_single"][0, b]),
             "mean_free_path_mm": float(q["mean_free_path_mm"][0, b]),
             "anisotropy": float(q["anisotropy"][0, b]),
-            "gaussians": {"weights": gauss["weights"][b].tolist(), "variances_mm2": gauss["variances_mm2"].tolist(),
-                          "fit_residual": float(gauss["fit_residual"][b])},
-            "dipole": {"mu_a_per_mm": float(dip["mu_a_per_mm"][b]),
-                       "mu_s_reduced_per_mm": float(dip["mu_s_reduced_per_mm"][b]),
-                       "fit_residual": float(dip["fit_residual"][b])},
+            "gaussians": {
+                "weights": gauss["weights"][b].tolist(),
+                "variances_mm2": gauss["variances_mm2"].tolist(),
+                "fit_residual": float(gauss["fit_residual"][b]),
+            },
+            "dipole": {
+                "mu_a_per_mm": float(dip["mu_a_per_mm"][b]),
+                "mu_s_reduced_per_mm": float(dip["mu_s_reduced_per_mm"][b]),
+                "fit_residual": float(dip["fit_residual"][b]),
+            },
         }
         if labelled:
             entry["wavelength_nm"] = float(bands.centre_nm[b])
@@ -153,14 +181,26 @@ def fit_document(results, bands, *, anisotropy, ior, inversion, metres_per_scene
     targets = {}
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ClampWarning)
-        spectral = EffectiveMedium(q["albedo_single"][0], q["mean_free_path_mm"][0], q["anisotropy"][0], ior,
-                                   albedo_multiple=q["albedo_multiple"][0])
+        spectral = EffectiveMedium(
+            q["albedo_single"][0],
+            q["mean_free_path_mm"][0],
+            q["anisotropy"][0],
+            ior,
+            albedo_multiple=q["albedo_multiple"][0],
+        )
         for name in ("spectral_medium", "reflectance_mfp"):
             opts = {"inversion": method} if name == "reflectance_mfp" else {}
-            targets[name] = TARGETS[name].to_inputs(spectral, metres_per_scene_unit=metres_per_scene_unit, **opts)
+            targets[name] = TARGETS[name].to_inputs(
+                spectral, metres_per_scene_unit=metres_per_scene_unit, **opts
+            )
         if rgb_ok:
-            rgb = EffectiveMedium(q["rgb_albedo_single"][0], q["rgb_mean_free_path_mm"][0], float(anisotropy), ior,
-                                  albedo_multiple=q["rgb_albedo_multiple"][0])
+            rgb = EffectiveMedium(
+                q["rgb_albedo_single"][0],
+                q["rgb_mean_free_path_mm"][0],
+                float(anisotropy),
+                ior,
+                albedo_multiple=q["rgb_albedo_multiple"][0],
+            )
             for name in ("openpbr", "standard_surface"):
                 targets[name] = TARGETS[name].to_inputs(rgb, metres_per_scene_unit=metres_per_scene_unit)
             targets["openpbr"]["fit_residual"] = q["rgb_fit_residual"][0].tolist()
@@ -178,8 +218,16 @@ def fit_document(results, bands, *, anisotropy, ior, inversion, metres_per_scene
         doc["rgb"] = {
             "working_space": space,
             "illuminant": illuminant,
-            **{k: q[k][0].tolist() for k in ("rgb_albedo_multiple", "rgb_shape_distance_mm", "rgb_albedo_single",
-                                              "rgb_mean_free_path_mm", "rgb_fit_residual")},
+            **{
+                k: q[k][0].tolist()
+                for k in (
+                    "rgb_albedo_multiple",
+                    "rgb_shape_distance_mm",
+                    "rgb_albedo_single",
+                    "rgb_mean_free_path_mm",
+                    "rgb_fit_residual",
+                )
+            },
         }
     return doc
 
@@ -192,23 +240,36 @@ def run(args) -> int:
         ior = 1.0
         if isinstance(stack, dict) and stack.get("layers"):
             ior = float(stack["layers"][0].get("n", 1.0))
-    doc = fit_document(results, bands, anisotropy=args.anisotropy, ior=ior, inversion=args.inversion,
-                       metres_per_scene_unit=args.metres_per_scene_unit, working_space=args.working_space,
-                       illuminant=args.illuminant)
+    doc = fit_document(
+        results,
+        bands,
+        anisotropy=args.anisotropy,
+        ior=ior,
+        inversion=args.inversion,
+        metres_per_scene_unit=args.metres_per_scene_unit,
+        working_space=args.working_space,
+        illuminant=args.illuminant,
+    )
     if args.json:
         json.dump(doc, sys.stdout, indent=2)
         sys.stdout.write("\n")
         return 0
     out = sys.stdout
-    out.write(f"inversion: {doc['inversion']}   ior: {doc['ior']:g}   scene: {doc['metres_per_scene_unit']:g} m/unit\n")
-    out.write(f"{'band':>8} {'A':>8} {'+-':>8} {'d_mm':>9} {'resid':>7} {'alpha':>8} {'mfp_mm':>9} "
-              f"{'dip_mua':>8} {'dip_mus':>8}\n")
+    out.write(
+        f"inversion: {doc['inversion']}   ior: {doc['ior']:g}   scene: {doc['metres_per_scene_unit']:g} m/unit\n"
+    )
+    out.write(
+        f"{'band':>8} {'A':>8} {'+-':>8} {'d_mm':>9} {'resid':>7} {'alpha':>8} {'mfp_mm':>9} "
+        f"{'dip_mua':>8} {'dip_mus':>8}\n"
+    )
     for i, e in enumerate(doc["bands"]):
         label = f"{e['wavelength_nm']:.0f}nm" if "wavelength_nm" in e else str(i)
-        out.write(f"{label:>8} {e['albedo_multiple']:8.5f} {e['albedo_multiple_stderr']:8.5f} "
-                  f"{e['shape_distance_mm']:9.5f} {e['fit_residual']:7.4f} {e['albedo_single']:8.5f} "
-                  f"{e['mean_free_path_mm']:9.5f} {e['dipole']['mu_a_per_mm']:8.4f} "
-                  f"{e['dipole']['mu_s_reduced_per_mm']:8.4f}\n")
+        out.write(
+            f"{label:>8} {e['albedo_multiple']:8.5f} {e['albedo_multiple_stderr']:8.5f} "
+            f"{e['shape_distance_mm']:9.5f} {e['fit_residual']:7.4f} {e['albedo_single']:8.5f} "
+            f"{e['mean_free_path_mm']:9.5f} {e['dipole']['mu_a_per_mm']:8.4f} "
+            f"{e['dipole']['mu_s_reduced_per_mm']:8.4f}\n"
+        )
     for name, inputs in doc["targets"].items():
         out.write(f"target {name}:\n")
         for k, v in inputs.items():

@@ -5,7 +5,13 @@ Units: wavelength in nm; values dimensionless. See :mod:`matgen.color.colorimetr
 UV / IR passes.
 """
 
-from matgen.color.colorimetry import channel_weights, resolve_illuminant, resolve_space, spectral_to_rgb, xyz_weights
+from matgen.color.colorimetry import (
+    channel_weights,
+    resolve_illuminant,
+    resolve_space,
+    spectral_to_rgb,
+    xyz_weights,
+)
 from matgen.color.passes import BUILTIN_PASSES, load_response, pass_weights
 
 __all__ = [

@@ -53,7 +53,7 @@ def _colour():
 
 
 def resolve_space(space: str):
-    """The colour-science RGB colourspace for ``space`` (name or alias; linear encoding is always used).
+    """Return the colour-science RGB colourspace for ``space`` (name or alias; linear encoding is always used).
 
     Raises :class:`ParameterError` naming the space and a few known names.
     """
@@ -69,7 +69,7 @@ def resolve_space(space: str):
 
 
 def resolve_illuminant(illuminant: str):
-    """The colour-science spectral distribution of ``illuminant`` (e.g. "D65", "E", "A")."""
+    """Return the colour-science spectral distribution of ``illuminant`` (e.g. "D65", "E", "A")."""
     colour = _colour()
     try:
         return colour.SDS_ILLUMINANTS[str(illuminant)]
@@ -96,7 +96,7 @@ def _aligned(illuminant: str, observer: str):
 def _band_integrals(wl, f, lower_nm, upper_nm):
     """Integral of the piecewise-linear samples f (M, K) over each band, zero outside [wl0, wl-1]."""
     out = np.zeros((lower_nm.size, f.shape[1]))
-    for b, (lo, hi) in enumerate(zip(lower_nm, upper_nm)):
+    for b, (lo, hi) in enumerate(zip(lower_nm, upper_nm, strict=True)):
         lo_c, hi_c = max(lo, wl[0]), min(hi, wl[-1])
         if hi_c <= lo_c:
             continue
@@ -132,6 +132,7 @@ def xyz_weights(bands, illuminant="D65", observer=DEFAULT_OBSERVER):
     References
     ----------
     ``CIE2004`` (tristimulus integration), ``colour2024``.
+
     """
     wl, s, cmf = _aligned(str(illuminant), str(observer))
     w = _band_integrals(wl, s[:, None] * cmf, np.asarray(bands.lower_nm), np.asarray(bands.upper_nm)).T
@@ -167,6 +168,7 @@ def channel_weights(bands, space="ACEScg", illuminant="D65", observer=DEFAULT_OB
     ----------
     ``CIE2004``; ``Moroney2002`` (CAT02 adaptation from the band-set white to the space's white);
     ``ACES2014``; ``ITU2015``; ``colour2024``.
+
     """
     colour = _colour()
     cs = resolve_space(space)
@@ -197,8 +199,11 @@ def spectral_to_rgb(values, bands, space="ACEScg", illuminant="D65", observer=DE
     References
     ----------
     ``CIE2004``; ``colour2024``.
+
     """
     v = np.asarray(values, dtype=np.float64)
     if v.shape[-1] != len(bands):
-        raise ParameterError(f"spectral values have {v.shape[-1]} bands on the last axis; the band set has {len(bands)}")
+        raise ParameterError(
+            f"spectral values have {v.shape[-1]} bands on the last axis; the band set has {len(bands)}"
+        )
     return v @ channel_weights(bands, space, illuminant, observer).T

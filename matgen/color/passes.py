@@ -44,6 +44,7 @@ def read_response_csv(text: str, source: str):
     ------
     DataError
         Naming the file and line at fault.
+
     """
     reader = csv.reader(io.StringIO(text))
     rows = [r for r in reader if r and not r[0].lstrip().startswith("#")]
@@ -59,7 +60,9 @@ def read_response_csv(text: str, source: str):
         except (ValueError, IndexError):
             raise DataError(f"response curve {source}, line {i}: {row!r} is not two numbers") from None
         if not (np.isfinite(x) and np.isfinite(y)) or y < 0 or x <= 0:
-            raise DataError(f"response curve {source}, line {i}: need wavelength > 0 nm and finite weight >= 0")
+            raise DataError(
+                f"response curve {source}, line {i}: need wavelength > 0 nm and finite weight >= 0"
+            )
         wl.append(x)
         w.append(y)
     wl, w = np.array(wl), np.array(w)
@@ -121,11 +124,12 @@ def pass_weights(name_or_csv_path, bands):
     References
     ----------
     Built-in curves: illustrative shapes defined by matgen (``tools/make_pass_responses.py``).
+
     """
     wl, w, source = load_response(name_or_csv_path)
     lower, upper = np.asarray(bands.lower_nm), np.asarray(bands.upper_nm)
     out = np.zeros(lower.size)
-    for b, (lo, hi) in enumerate(zip(lower, upper)):
+    for b, (lo, hi) in enumerate(zip(lower, upper, strict=True)):
         lo_c, hi_c = max(lo, wl[0]), min(hi, wl[-1])
         if hi_c <= lo_c:
             continue

@@ -38,6 +38,7 @@ def channel_profiles(weights, radial_per_mm2, radial_stderr):
     References
     ----------
     ``CIE2004`` (linear weighting of spectra); matgen's own reduction.
+
     """
     w = np.asarray(weights, dtype=np.float64)
     y = np.asarray(radial_per_mm2, dtype=np.float64)
@@ -70,6 +71,7 @@ def channel_anisotropy(weights, albedo_multiple, g):
     References
     ----------
     matgen's own convention (documented in the module docstring).
+
     """
     a = np.asarray(albedo_multiple, dtype=np.float64)
     gg = np.broadcast_to(np.asarray(g, dtype=np.float64), a.shape)
@@ -105,6 +107,7 @@ def pass_value(name_or_csv_path, bands, values):
     References
     ----------
     Built-in responses: illustrative curves of ``tools/make_pass_responses.py``.
+
     """
     w = pass_weights(name_or_csv_path, bands)
     v = np.asarray(values, dtype=np.float64)

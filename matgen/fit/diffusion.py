@@ -49,6 +49,7 @@ def validate_profiles(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multi
     ------
     FitError
         Naming the input, the profile index and the ring at fault.
+
     """
     e = np.asarray(ring_edges_mm, dtype=np.float64)
     if e.ndim != 1 or e.size < 3:
@@ -82,7 +83,9 @@ def validate_profiles(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multi
         bad = ~np.isfinite(a) | (a <= 0) | (a >= 1)
         if bad.any():
             i = int(np.argmax(bad.reshape(-1)))
-            raise FitError(f"{what}: albedo_multiple[{i}] = {a.reshape(-1)[i]!r}; must lie strictly in (0, 1)")
+            raise FitError(
+                f"{what}: albedo_multiple[{i}] = {a.reshape(-1)[i]!r}; must lie strictly in (0, 1)"
+            )
     return e, y, s, a
 
 
@@ -99,7 +102,9 @@ def ring_weights(radial_per_mm2, radial_stderr):
     few = np.count_nonzero(s > 0, axis=-1) < 2
     if few.any():
         i = int(np.argmax(few.reshape(-1)))
-        raise FitError(f"profile {i} has fewer than 2 rings with a nonzero standard error; cannot fit a shape")
+        raise FitError(
+            f"profile {i} has fewer than 2 rings with a nonzero standard error; cannot fit a shape"
+        )
     return inv
 
 
@@ -118,6 +123,7 @@ def golden_log_search(cost, grid, n):
     tuple
         ``(x_min (n,), at_edge (n,) bool)``; ``at_edge`` marks minima found at the grid's ends (the true
         minimum may lie outside the searched range).
+
     """
     costs = np.empty((n, grid.size))
     for k, g in enumerate(grid):
@@ -146,8 +152,9 @@ def golden_log_search(cost, grid, n):
     return 0.5 * (left + right), at_edge
 
 
-def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, *, conserve_albedo=True,
-                   backend="numba"):
+def fit_burley2015(
+    ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, *, conserve_albedo=True, backend="numba"
+):
     """Fit the normalised-diffusion profile to N ring profiles at once.
 
     Parameters
@@ -182,8 +189,11 @@ def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple
     References
     ----------
     ``Christensen2015`` (the model); the weighted least-squares fit is matgen's own.
+
     """
-    e, y, s, a = validate_profiles(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, what="fit_burley2015")
+    e, y, s, a = validate_profiles(
+        ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, what="fit_burley2015"
+    )
     w = ring_weights(y, s)
     n = y.shape[0]
     # coarse grid of d across the radial range of the rings
@@ -211,8 +221,19 @@ def fit_burley2015(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple
         cost = np.empty(n)
         at_edge = np.empty(n, dtype=np.bool_)
         a_in = a if a is not None else np.ones(n)
-        fit_burley_kernel(e, np.ascontiguousarray(y), np.ascontiguousarray(w), np.ascontiguousarray(a_in),
-                          bool(conserve_albedo), grid, _GOLDEN_ITERATIONS, log_d, amp, cost, at_edge)
+        fit_burley_kernel(
+            e,
+            np.ascontiguousarray(y),
+            np.ascontiguousarray(w),
+            np.ascontiguousarray(a_in),
+            bool(conserve_albedo),
+            grid,
+            _GOLDEN_ITERATIONS,
+            log_d,
+            amp,
+            cost,
+            at_edge,
+        )
     elif backend == "numpy":
         log_d, at_edge = golden_log_search(lambda x: misfit(x)[0], grid, n)
         cost, amp = misfit(log_d)
@@ -251,6 +272,7 @@ def fit_burley2015_result(result, *, conserve_albedo=True):
     References
     ----------
     ``Christensen2015``.
+
     """
     if np.asarray(result.ring_edges_mm).size == 0:
         raise FitError("the transport result has no radial profile; run the simulation with a profile")

@@ -33,8 +33,15 @@ PROFILE_MODELS = ("Christensen2015", "dEon2007", "Jensen2001")
 _CONSERVE_ROW_WEIGHT = 1.0e3
 
 
-def fit_gaussians_dEon2007(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple=None, *,
-                           variances_mm2=GAUSSIAN_VARIANCES_DEON2007_MM2, conserve_albedo=True):
+def fit_gaussians_dEon2007(
+    ring_edges_mm,
+    radial_per_mm2,
+    radial_stderr,
+    albedo_multiple=None,
+    *,
+    variances_mm2=GAUSSIAN_VARIANCES_DEON2007_MM2,
+    conserve_albedo=True,
+):
     """Non-negative weights of a fixed-variance sum of Gaussians fitted to N ring profiles.
 
     Parameters
@@ -59,10 +66,13 @@ def fit_gaussians_dEon2007(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_
     References
     ----------
     ``dEon2007``, Sec. 14.4; ``LawsonHanson1974`` (NNLS).
+
     """
     if conserve_albedo and albedo_multiple is None:
         raise FitError("fit_gaussians_dEon2007: conserve_albedo needs the measured albedo_multiple")
-    e, y, s, a = validate_profiles(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, what="fit_gaussians")
+    e, y, s, a = validate_profiles(
+        ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, what="fit_gaussians"
+    )
     w = ring_weights(y, s)
     v = np.asarray(variances_mm2, dtype=np.float64)
     basis = gaussian_rings(e, v).T  # (R, G)
@@ -84,7 +94,7 @@ def fit_gaussians_dEon2007(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_
 
 
 def _reduced_albedo_for(total, n_relative):
-    """alpha' with dipole_total(alpha') = total (monotone; brentq on [0, 1])."""
+    """Solve dipole_total(alpha') = total for alpha' (monotone; brentq on [0, 1])."""
     top = float(dipole_total_Jensen2001(1.0, n_relative))
     if not 0.0 < total < top:
         raise FitError(
@@ -116,8 +126,11 @@ def fit_dipole_Jensen2001(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_m
     References
     ----------
     ``Farrell1992``, Eq. 12; ``Jensen2001``, Eqs. 4, 5 and 11.
+
     """
-    e, y, s, a = validate_profiles(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, what="fit_dipole")
+    e, y, s, a = validate_profiles(
+        ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multiple, what="fit_dipole"
+    )
     if not np.isfinite(n_relative) or n_relative < 1.0:
         raise ParameterError(f"n_relative = {n_relative!r}; must be >= 1")
     w = ring_weights(y, s)
@@ -162,6 +175,7 @@ def fit_profile(result, model="Christensen2015", **options):
     References
     ----------
     ``Christensen2015``; ``dEon2007``; ``Jensen2001``.
+
     """
     if model not in PROFILE_MODELS:
         raise ParameterError(f"unknown profile model {model!r}; use one of {', '.join(PROFILE_MODELS)}")

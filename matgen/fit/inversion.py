@@ -56,6 +56,7 @@ def specular_reflectance_normal(n_medium, n_outside=1.0):
     References
     ----------
     ``BornWolf1999``, Sec. 1.5 (Fresnel formulae at normal incidence).
+
     """
     n1 = np.asarray(n_medium, dtype=np.float64)
     return ((n1 - n_outside) / (n1 + n_outside)) ** 2
@@ -108,6 +109,7 @@ def albedo_multiple_vanDeHulst1980(albedo_single, g=0.0):
     References
     ----------
     ``vandeHulst1980`` as quoted in ``OpenPBR2024`` (Subsurface section, v0.4).
+
     """
     a = np.asarray(albedo_single, dtype=np.float64)
     gv = np.asarray(g, dtype=np.float64)
@@ -138,6 +140,7 @@ def albedo_single_ChiangKutzBurley2016(albedo_multiple):
     References
     ----------
     ``Chiang2016`` (coefficients as re-read in ``OpenPBR2024``, which gives the same expression).
+
     """
     s = _ckb_s(albedo_multiple)
     return 1.0 - s * s
@@ -163,6 +166,7 @@ def albedo_single_OpenPBR2024(albedo_multiple, g=0.0):
     References
     ----------
     ``OpenPBR2024``, Subsurface section (v0.4, 2024-04-30), inverse of ``vandeHulst1980``.
+
     """
     s2 = _ckb_s(albedo_multiple) ** 2
     gv = np.asarray(g, dtype=np.float64)
@@ -193,10 +197,20 @@ class InversionTable:
         end nodes, where no profile exists; interpolation there uses the neighbouring node).
     provenance : dict
         How the table was made.
+
     """
 
-    def __init__(self, albedo_single, g, n, albedo_multiple, albedo_multiple_stderr, shape_scaling,
-                 shape_scaling_stderr, provenance=None):
+    def __init__(
+        self,
+        albedo_single,
+        g,
+        n,
+        albedo_multiple,
+        albedo_multiple_stderr,
+        shape_scaling,
+        shape_scaling_stderr,
+        provenance=None,
+    ):
         self.albedo_single = np.asarray(albedo_single, dtype=np.float64)
         self.g = np.asarray(g, dtype=np.float64)
         self.n = np.asarray(n, dtype=np.float64)
@@ -208,9 +222,13 @@ class InversionTable:
         shape = (self.albedo_single.size, self.g.size, self.n.size)
         for name in ("albedo_multiple", "albedo_multiple_stderr", "shape_scaling", "shape_scaling_stderr"):
             if getattr(self, name).shape != shape:
-                raise DataError(f"inversion table: {name} has shape {getattr(self, name).shape}, expected {shape}")
+                raise DataError(
+                    f"inversion table: {name} has shape {getattr(self, name).shape}, expected {shape}"
+                )
         if np.any(np.diff(self.albedo_multiple, axis=0) <= 0):
-            raise DataError("inversion table: A(alpha) is not strictly increasing along alpha for some (g, n)")
+            raise DataError(
+                "inversion table: A(alpha) is not strictly increasing along alpha for some (g, n)"
+            )
         # fill the analytic end nodes' scaling from their neighbours for interpolation
         s = self.shape_scaling.copy()
         if np.isnan(s[0]).any():
@@ -268,12 +286,18 @@ class InversionTable:
             out = (v < nodes[0] - 1e-12) | (v > nodes[-1] + 1e-12)
             if out.any():
                 i = int(np.argmax(out))
-                msg = (f"{name} = {v[i]!r} lies outside the boundary-aware inversion table "
-                       f"[{nodes[0]:g}, {nodes[-1]:g}]")
+                msg = (
+                    f"{name} = {v[i]!r} lies outside the boundary-aware inversion table "
+                    f"[{nodes[0]:g}, {nodes[-1]:g}]"
+                )
                 if self.out_of_range != "clamp":
                     raise ParameterError(msg + "; use a closed-form method or extend the table")
-                warnings.warn(f"boundary-aware inversion table: {msg}; clamped to the table's range "
-                              f"({int(out.sum())} values)", ClampWarning, stacklevel=4)
+                warnings.warn(
+                    f"boundary-aware inversion table: {msg}; clamped to the table's range "
+                    f"({int(out.sum())} values)",
+                    ClampWarning,
+                    stacklevel=4,
+                )
         g = np.clip(g, self.g[0], self.g[-1])
         n = np.clip(n, self.n[0], self.n[-1])
 
@@ -307,7 +331,7 @@ class InversionTable:
         return np.array([np.interp(u[k], u_nodes, curves[k, ::-1]) for k in range(a.size)])
 
     def invert(self, albedo_multiple, g, n):
-        """alpha and the scaling l/d that reproduce A for each (g, n); arrays of A's shape.
+        """Return alpha and the scaling l/d that reproduce A for each (g, n); arrays of A's shape.
 
         Raises :class:`FitError` where A exceeds the largest diffuse reflectance the boundary allows,
         1 - R_specular(n).
@@ -340,7 +364,7 @@ class InversionTable:
 
 @lru_cache(maxsize=1)
 def default_inversion_table() -> InversionTable:
-    """The shipped boundary-aware inversion table (``matgen/fit/data/inversion_table.npz``)."""
+    """Load the shipped boundary-aware inversion table (``matgen/fit/data/inversion_table.npz``)."""
     root = resources.files("matgen.fit").joinpath("data")
     npz = root.joinpath(TABLE_FILE)
     prov = root.joinpath(TABLE_PROVENANCE)
@@ -364,7 +388,9 @@ def has_default_table() -> bool:
 
 def _check_method(method):
     if method not in INVERSION_METHODS:
-        raise ParameterError(f"unknown inversion method {method!r}; use one of {', '.join(INVERSION_METHODS)}")
+        raise ParameterError(
+            f"unknown inversion method {method!r}; use one of {', '.join(INVERSION_METHODS)}"
+        )
 
 
 def albedo_single(albedo_multiple, g=0.0, n=1.0, *, method="boundary_table", table=None):
@@ -392,6 +418,7 @@ def albedo_single(albedo_multiple, g=0.0, n=1.0, *, method="boundary_table", tab
     References
     ----------
     ``Chiang2016``; ``OpenPBR2024``; ``vandeHulst1980``; the table: matgen's own transport.
+
     """
     _check_method(method)
     a = _check_unit_interval("albedo_multiple", albedo_multiple)
@@ -427,6 +454,7 @@ def albedo_multiple(albedo_single_value, g=0.0, n=1.0, *, method="boundary_table
     References
     ----------
     ``vandeHulst1980``; ``OpenPBR2024``; the table: matgen's own transport.
+
     """
     _check_method(method)
     a = _check_unit_interval("albedo_single", albedo_single_value, open_low=False, open_high=False)
@@ -439,8 +467,9 @@ def albedo_multiple(albedo_single_value, g=0.0, n=1.0, *, method="boundary_table
     return tab.albedo_multiple_of(a, gv, n).reshape(np.shape(a))
 
 
-def effective_medium(albedo_multiple_value, shape_distance_mm, g=0.0, n=1.0, *, method="boundary_table",
-                     table=None):
+def effective_medium(
+    albedo_multiple_value, shape_distance_mm, g=0.0, n=1.0, *, method="boundary_table", table=None
+):
     """Single-scattering albedo and mean free path of the half-space matching A and the profile width d.
 
     Parameters
@@ -464,6 +493,7 @@ def effective_medium(albedo_multiple_value, shape_distance_mm, g=0.0, n=1.0, *, 
     References
     ----------
     ``Christensen2015`` (s(A) for mean free path, closed-form methods); ``Chiang2016``; ``OpenPBR2024``.
+
     """
     _check_method(method)
     a = _check_unit_interval("albedo_multiple", albedo_multiple_value)
@@ -477,4 +507,8 @@ def effective_medium(albedo_multiple_value, shape_distance_mm, g=0.0, n=1.0, *, 
     else:
         alpha = albedo_single(a, gv, n, method=method)
         s = shape_scaling_Christensen2015(a, "searchlight_mfp")
-    return {"albedo_single": alpha, "mean_free_path_mm": s * d, "shape_scaling": np.broadcast_to(s, np.shape(a)).copy()}
+    return {
+        "albedo_single": alpha,
+        "mean_free_path_mm": s * d,
+        "shape_scaling": np.broadcast_to(s, np.shape(a)).copy(),
+    }

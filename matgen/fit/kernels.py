@@ -1,5 +1,6 @@
-"""Numba kernel of the normalised-diffusion fit; its pure-Python twin is the NumPy path of
-:func:`matgen.fit.diffusion.fit_burley2015` (``backend="numpy"``), checked for parity in
+"""Numba kernel of the normalised-diffusion fit.
+
+Its pure-Python twin is the NumPy path of :func:`matgen.fit.diffusion.fit_burley2015` (``backend="numpy"``), checked for parity in
 ``tests/fit/test_kernel_parity.py``. Units: radii and d in mm, profiles in mm^-2.
 
 One profile per parallel iteration: coarse log-d grid, then golden-section search, each cost evaluated in
@@ -19,7 +20,10 @@ _INVPHI = (math.sqrt(5.0) - 1.0) / 2.0
 @numba.njit(cache=True)
 def ring_fraction(r0, dr, d):
     """Fraction of the normalised-diffusion reflectance (A = 1) leaving through [r0, r0 + dr) (``Christensen2015``)."""
-    return 0.25 * (math.exp(-r0 / d) * -math.expm1(-dr / d) + 3.0 * math.exp(-r0 / (3.0 * d)) * -math.expm1(-dr / (3.0 * d)))
+    return 0.25 * (
+        math.exp(-r0 / d) * -math.expm1(-dr / d)
+        + 3.0 * math.exp(-r0 / (3.0 * d)) * -math.expm1(-dr / (3.0 * d))
+    )
 
 
 @numba.njit(cache=True)

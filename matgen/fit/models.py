@@ -46,6 +46,7 @@ def burley2015_profile(radius_mm, albedo_multiple, shape_distance_mm):
     References
     ----------
     ``Christensen2015``, Eq. 3 (the profile) and its normalisation.
+
     """
     r = np.asarray(radius_mm, dtype=np.float64)
     d = np.asarray(shape_distance_mm, dtype=np.float64)
@@ -73,6 +74,7 @@ def burley2015_cdf(radius_mm, shape_distance_mm):
     References
     ----------
     ``Christensen2015`` (integral of Eq. 3; derived here in closed form).
+
     """
     r = np.asarray(radius_mm, dtype=np.float64)
     d = np.asarray(shape_distance_mm, dtype=np.float64)
@@ -99,6 +101,7 @@ def burley2015_rings(ring_edges_mm, albedo_multiple, shape_distance_mm):
     References
     ----------
     ``Christensen2015``, Eq. 3, integrated over each annulus.
+
     """
     e = np.asarray(ring_edges_mm, dtype=np.float64)
     d = np.asarray(shape_distance_mm, dtype=np.float64)[..., None]
@@ -151,6 +154,7 @@ def shape_scaling_Christensen2015(albedo_multiple, configuration="searchlight_mf
     ----------
     ``Christensen2015``, Sec. 5 (coefficients from memory, as quoted in the project's design notes; the
     assignment of each fit to a length scale is the one matgen's transport confirms, see above).
+
     """
     a = np.asarray(albedo_multiple, dtype=np.float64)
     if configuration == "searchlight_mfp":
@@ -183,9 +187,12 @@ def shape_scaling(albedo_multiple, method="Christensen2015_searchlight_mfp"):
     References
     ----------
     ``Christensen2015``.
+
     """
     if method not in SHAPE_SCALING_METHODS:
-        raise ParameterError(f"unknown shape-scaling method {method!r}; use one of {', '.join(SHAPE_SCALING_METHODS)}")
+        raise ParameterError(
+            f"unknown shape-scaling method {method!r}; use one of {', '.join(SHAPE_SCALING_METHODS)}"
+        )
     return shape_scaling_Christensen2015(albedo_multiple, method.split("_", 1)[1])
 
 
@@ -218,6 +225,7 @@ def gaussian_rings(ring_edges_mm, variances_mm2):
     References
     ----------
     ``dEon2007``, Eq. 14-3 (the 2-D Gaussian of variance v).
+
     """
     e = np.asarray(ring_edges_mm, dtype=np.float64)
     v = np.asarray(variances_mm2, dtype=np.float64)[:, None]
@@ -247,6 +255,7 @@ def gaussian_sum_profile(radius_mm, weights, variances_mm2=GAUSSIAN_VARIANCES_DE
     References
     ----------
     ``dEon2007``, Sec. 14.4.
+
     """
     r = np.asarray(radius_mm, dtype=np.float64)[..., None]
     v = np.asarray(variances_mm2, dtype=np.float64)
@@ -260,7 +269,7 @@ def gaussian_sum_profile(radius_mm, weights, variances_mm2=GAUSSIAN_VARIANCES_DE
 
 
 def internal_diffuse_reflectance_Groenhuis1983(n_relative):
-    """Internal diffuse Fresnel reflectance F_dr of a boundary of relative index eta (dimensionless).
+    """Compute the internal diffuse Fresnel reflectance F_dr of a boundary of relative index eta (dimensionless).
 
     F_dr = -1.440 / eta^2 + 0.710 / eta + 0.668 + 0.0636 eta (empirical fit).
 
@@ -277,6 +286,7 @@ def internal_diffuse_reflectance_Groenhuis1983(n_relative):
     References
     ----------
     ``Jensen2001``, Eq. 5 (citing Groenhuis et al. 1983; coefficients from memory).
+
     """
     eta = float(n_relative)
     return -1.440 / eta**2 + 0.710 / eta + 0.668 + 0.0636 * eta
@@ -319,6 +329,7 @@ def dipole_profile_Jensen2001(radius_mm, mu_a_per_mm, mu_s_reduced_per_mm, n_rel
     References
     ----------
     ``Farrell1992``, Eq. 12; ``Jensen2001``, Eq. 4 (same dipole, Jensen's notation).
+
     """
     r = np.asarray(radius_mm, dtype=np.float64)
     alpha, mu_tr, z_r, z_v, _ = _dipole_geometry(mu_a_per_mm, mu_s_reduced_per_mm, n_relative)
@@ -349,6 +360,7 @@ def dipole_total_Jensen2001(albedo_reduced, n_relative=1.0):
     References
     ----------
     ``Jensen2001``, Eq. 11 (the integral of Eq. 4 over the plane).
+
     """
     ap = np.asarray(albedo_reduced, dtype=np.float64)
     f_dr = internal_diffuse_reflectance_Groenhuis1983(n_relative)
@@ -382,6 +394,7 @@ def dipole_cdf_Jensen2001(radius_mm, mu_a_per_mm, mu_s_reduced_per_mm, n_relativ
     ----------
     ``Farrell1992``, Eq. 12 integrated over the disc (antiderivative of z (s + 1/d) e^{-s d} / d^2 r is
     -z e^{-s d} / d); ``Jensen2001``, Eq. 11 is its limit.
+
     """
     r = np.asarray(radius_mm, dtype=np.float64)
     alpha, mu_tr, z_r, z_v, _ = _dipole_geometry(mu_a_per_mm, mu_s_reduced_per_mm, n_relative)
@@ -412,6 +425,7 @@ def dipole_rings_Jensen2001(ring_edges_mm, mu_a_per_mm, mu_s_reduced_per_mm, n_r
     References
     ----------
     ``Farrell1992``; ``Jensen2001``.
+
     """
     e = np.asarray(ring_edges_mm, dtype=np.float64)
     mu_a = np.asarray(mu_a_per_mm, dtype=np.float64)[..., None]

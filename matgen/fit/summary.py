@@ -40,17 +40,35 @@ TABLE_QUANTITIES = {
 
 
 def resolve_inversion(inversion=None) -> str:
-    """The inversion method :func:`summarize` uses: ``inversion`` if given, else ``"boundary_table"`` when the
-    shipped table is present, else ``"OpenPBR2024"``. Record this name beside stored results."""
+    """Return the inversion method :func:`summarize` uses.
+
+    ``inversion`` if given, else ``"boundary_table"`` when the shipped table is present, else
+    ``"OpenPBR2024"``. Record this name beside stored results.
+    """
     if inversion is None:
         return "boundary_table" if has_default_table() else "OpenPBR2024"
     if inversion not in INVERSION_METHODS:
-        raise ParameterError(f"unknown inversion method {inversion!r}; use one of {', '.join(INVERSION_METHODS)}")
+        raise ParameterError(
+            f"unknown inversion method {inversion!r}; use one of {', '.join(INVERSION_METHODS)}"
+        )
     return inversion
 
 
-def summarize(bands, ring_edges_mm, albedo_multiple, albedo_multiple_stderr, radial_per_mm2, radial_stderr, g, n,
-              *, working_space="ACEScg", illuminant="D65", inversion=None, table=None):
+def summarize(
+    bands,
+    ring_edges_mm,
+    albedo_multiple,
+    albedo_multiple_stderr,
+    radial_per_mm2,
+    radial_stderr,
+    g,
+    n,
+    *,
+    working_space="ACEScg",
+    illuminant="D65",
+    inversion=None,
+    table=None,
+):
     """Fit, invert and reduce the band tallies of N parameter sets to the table quantities.
 
     Parameters
@@ -90,6 +108,7 @@ def summarize(bands, ring_edges_mm, albedo_multiple, albedo_multiple_stderr, rad
     ----------
     ``Christensen2015`` (profile fit); ``Chiang2016``, ``OpenPBR2024`` (closed-form inversion);
     ``CIE2004``, ``Moroney2002`` (RGB weights).
+
     """
     method = resolve_inversion(inversion)
     if method == "boundary_table":
@@ -102,7 +121,9 @@ def summarize(bands, ring_edges_mm, albedo_multiple, albedo_multiple_stderr, rad
         table.out_of_range = "clamp"
     a = np.asarray(albedo_multiple, dtype=np.float64)
     if a.ndim != 2 or a.shape[1] != len(bands):
-        raise FitError(f"albedo_multiple has shape {a.shape}; expected (N, {len(bands)}) for N parameter sets")
+        raise FitError(
+            f"albedo_multiple has shape {a.shape}; expected (N, {len(bands)}) for N parameter sets"
+        )
     nset, nb = a.shape
     a_err = np.asarray(albedo_multiple_stderr, dtype=np.float64)
     if a_err.shape != a.shape:

@@ -62,6 +62,7 @@ class EffectiveMedium:
         Refractive index of the medium (air outside).
     albedo_multiple : ndarray, shape (C,), optional
         The layered result's A the medium was fitted to (needed by the ``"observed"`` colour convention).
+
     """
 
     albedo_single: np.ndarray
@@ -89,7 +90,9 @@ class EffectiveMedium:
         object.__setattr__(self, "anisotropy", g)
         object.__setattr__(self, "ior", float(self.ior))
         if self.albedo_multiple is not None:
-            object.__setattr__(self, "albedo_multiple", np.atleast_1d(np.asarray(self.albedo_multiple, dtype=np.float64)))
+            object.__setattr__(
+                self, "albedo_multiple", np.atleast_1d(np.asarray(self.albedo_multiple, dtype=np.float64))
+            )
 
     @property
     def mu_t_per_mm(self) -> np.ndarray:
@@ -98,7 +101,7 @@ class EffectiveMedium:
 
     @classmethod
     def from_summary(cls, quantities: dict, index: int = 0, *, channels: str = "rgb") -> EffectiveMedium:
-        """The medium of parameter set ``index`` from :func:`matgen.fit.summary.summarize` output.
+        """Build the medium of parameter set ``index`` from :func:`matgen.fit.summary.summarize` output.
 
         ``channels="rgb"`` takes the RGB quantities, ``"bands"`` the spectral ones.
         """
@@ -123,7 +126,9 @@ def _check_scale(metres_per_scene_unit):
     try:
         m = float(metres_per_scene_unit)
     except (TypeError, ValueError):
-        raise ParameterError(f"metres_per_scene_unit must be a number, not {metres_per_scene_unit!r}") from None
+        raise ParameterError(
+            f"metres_per_scene_unit must be a number, not {metres_per_scene_unit!r}"
+        ) from None
     if not np.isfinite(m) or m <= 0:
         raise ParameterError(f"metres_per_scene_unit = {m!r}; must be > 0 (0.01 for a centimetre scene)")
     return m
@@ -159,7 +164,7 @@ class Target:
         raise NotImplementedError
 
     def from_inputs(self, inputs: dict, *, metres_per_scene_unit: float) -> EffectiveMedium:
-        """The medium the consumer builds from ``inputs`` by its documented remap."""
+        """Return the medium the consumer builds from ``inputs`` by its documented remap."""
         raise NotImplementedError
 
 
@@ -169,17 +174,24 @@ class OpenPBRTarget(Target):
     name = "openpbr"
     consumer = "OpenPBR Surface"
 
-    def to_inputs(self, medium, *, metres_per_scene_unit, albedo_convention="spec_remap", min_radius_scene=None):
-        """Inputs ``subsurface_color``, ``subsurface_radius``, ``subsurface_radius_scale``,
+    def to_inputs(
+        self, medium, *, metres_per_scene_unit, albedo_convention="spec_remap", min_radius_scene=None
+    ):
+        """Map the medium to OpenPBR inputs.
+
+        ``subsurface_color``, ``subsurface_radius``, ``subsurface_radius_scale``,
         ``subsurface_scatter_anisotropy``, ``specular_ior`` (+ ``albedo_convention``).
 
         References
         ----------
         ``OpenPBR2024``; ``vandeHulst1980``.
+
         """
         m = _check_scale(metres_per_scene_unit)
         if medium.albedo_single.size != 3:
-            raise ParameterError(f"{self.consumer} takes 3 RGB channels; the medium has {medium.albedo_single.size}")
+            raise ParameterError(
+                f"{self.consumer} takes 3 RGB channels; the medium has {medium.albedo_single.size}"
+            )
         g_all = medium.anisotropy
         g = float(np.mean(g_all))
         if np.ptp(g_all) > 1e-3:
@@ -197,7 +209,9 @@ class OpenPBRTarget(Target):
                 raise FitError("albedo_convention='observed' needs the medium's albedo_multiple")
             color = medium.albedo_multiple / (1.0 - specular_reflectance_normal(medium.ior))
         else:
-            raise ParameterError(f"albedo_convention must be 'spec_remap' or 'observed', not {albedo_convention!r}")
+            raise ParameterError(
+                f"albedo_convention must be 'spec_remap' or 'observed', not {albedo_convention!r}"
+            )
         color = _clamp(color, 0.0, 1.0, self.consumer, "subsurface_color")
         mfp_scene = mm_to_scene_units(medium.mean_free_path_mm, m)
         radius = float(np.max(mfp_scene))
@@ -219,20 +233,33 @@ class OpenPBRTarget(Target):
         }
 
     def from_inputs(self, inputs, *, metres_per_scene_unit):
-        """mfp = radius * radius_scale, mu_t = 1 / mfp; alpha from C by the specification's inversion
+        """Apply OpenPBR's remap.
+
+        mfp = radius * radius_scale, mu_t = 1 / mfp; alpha from C by the specification's inversion
         (or matgen's boundary-aware table for ``albedo_convention="observed"``).
 
         References
         ----------
         ``OpenPBR2024``.
+
         """
-        _require(inputs, ("subsurface_color", "subsurface_radius", "subsurface_radius_scale",
-                          "subsurface_scatter_anisotropy"), self.name)
+        _require(
+            inputs,
+            (
+                "subsurface_color",
+                "subsurface_radius",
+                "subsurface_radius_scale",
+                "subsurface_scatter_anisotropy",
+            ),
+            self.name,
+        )
         m = _check_scale(metres_per_scene_unit)
         c = np.asarray(inputs["subsurface_color"], dtype=np.float64)
         g = float(inputs["subsurface_scatter_anisotropy"])
         n = float(inputs.get("specular_ior", 1.0))
-        mfp_mm = scene_units_to_mm(float(inputs["subsurface_radius"]) * np.asarray(inputs["subsurface_radius_scale"]), m)
+        mfp_mm = scene_units_to_mm(
+            float(inputs["subsurface_radius"]) * np.asarray(inputs["subsurface_radius_scale"]), m
+        )
         if inputs.get("albedo_convention", "spec_remap") == "observed":
             a_ms = c * (1.0 - specular_reflectance_normal(n))
             alpha = albedo_single(a_ms, g, n, method="boundary_table")
@@ -247,16 +274,21 @@ class StandardSurfaceTarget(Target):
     consumer = "MaterialX standard_surface"
 
     def to_inputs(self, medium, *, metres_per_scene_unit):
-        """Inputs ``subsurface_color``, ``subsurface_radius`` (RGB, max 1), ``subsurface_scale`` (scene units),
+        """Map the medium to standard_surface inputs.
+
+        ``subsurface_color``, ``subsurface_radius`` (RGB, max 1), ``subsurface_scale`` (scene units),
         ``subsurface_anisotropy``.
 
         References
         ----------
         ``Georgiev2019``; colour remap as ``OpenPBR2024`` (van de Hulst).
+
         """
         m = _check_scale(metres_per_scene_unit)
         if medium.albedo_single.size != 3:
-            raise ParameterError(f"{self.consumer} takes 3 RGB channels; the medium has {medium.albedo_single.size}")
+            raise ParameterError(
+                f"{self.consumer} takes 3 RGB channels; the medium has {medium.albedo_single.size}"
+            )
         g = float(np.mean(medium.anisotropy))
         if np.ptp(medium.anisotropy) > 1e-3:
             warnings.warn(
@@ -265,8 +297,13 @@ class StandardSurfaceTarget(Target):
                 stacklevel=2,
             )
         g = float(_clamp(g, -1.0, 1.0, self.consumer, "subsurface_anisotropy"))
-        color = _clamp(albedo_multiple_vanDeHulst1980(medium.albedo_single, g), 0.0, 1.0, self.consumer,
-                       "subsurface_color")
+        color = _clamp(
+            albedo_multiple_vanDeHulst1980(medium.albedo_single, g),
+            0.0,
+            1.0,
+            self.consumer,
+            "subsurface_color",
+        )
         mfp_scene = mm_to_scene_units(medium.mean_free_path_mm, m)
         scale = float(np.max(mfp_scene))
         return {
@@ -278,12 +315,17 @@ class StandardSurfaceTarget(Target):
         }
 
     def from_inputs(self, inputs, *, metres_per_scene_unit):
-        """mfp = subsurface_radius * subsurface_scale (MaterialX graph), alpha by the van de Hulst inversion."""
-        _require(inputs, ("subsurface_color", "subsurface_radius", "subsurface_scale", "subsurface_anisotropy"),
-                 self.name)
+        """Apply the remap: mfp = subsurface_radius * subsurface_scale (MaterialX graph); van de Hulst alpha."""
+        _require(
+            inputs,
+            ("subsurface_color", "subsurface_radius", "subsurface_scale", "subsurface_anisotropy"),
+            self.name,
+        )
         m = _check_scale(metres_per_scene_unit)
         g = float(inputs["subsurface_anisotropy"])
-        mfp_mm = scene_units_to_mm(np.asarray(inputs["subsurface_radius"], dtype=np.float64) * float(inputs["subsurface_scale"]), m)
+        mfp_mm = scene_units_to_mm(
+            np.asarray(inputs["subsurface_radius"], dtype=np.float64) * float(inputs["subsurface_scale"]), m
+        )
         alpha = albedo_single_OpenPBR2024(np.asarray(inputs["subsurface_color"], dtype=np.float64), g)
         return EffectiveMedium(alpha, mfp_mm, g, float(inputs.get("specular_IOR", 1.0)))
 
@@ -301,6 +343,7 @@ class SpectralMediumTarget(Target):
         References
         ----------
         Radiative-transfer definitions (``vandeHulst1980``): albedo = sigma_s / sigma_t.
+
         """
         m = _check_scale(metres_per_scene_unit)
         mm_per_unit = scene_units_to_mm(1.0, m)
@@ -316,13 +359,15 @@ class SpectralMediumTarget(Target):
         }
 
     def from_inputs(self, inputs, *, metres_per_scene_unit):
-        """alpha = sigma_s / (sigma_a + sigma_s), mfp = 1 / (sigma_a + sigma_s)."""
+        """Apply the remap: alpha = sigma_s / (sigma_a + sigma_s), mfp = 1 / (sigma_a + sigma_s)."""
         _require(inputs, ("sigma_a", "sigma_s", "g"), self.name)
         m = _check_scale(metres_per_scene_unit)
         sa = np.asarray(inputs["sigma_a"], dtype=np.float64)
         ss = np.asarray(inputs["sigma_s"], dtype=np.float64)
         st = sa + ss
-        return EffectiveMedium(ss / st, scene_units_to_mm(1.0 / st, m), np.asarray(inputs["g"]), float(inputs.get("eta", 1.0)))
+        return EffectiveMedium(
+            ss / st, scene_units_to_mm(1.0 / st, m), np.asarray(inputs["g"]), float(inputs.get("eta", 1.0))
+        )
 
 
 class ReflectanceMfpTarget(Target):
@@ -342,7 +387,9 @@ class ReflectanceMfpTarget(Target):
 
         m = _check_scale(metres_per_scene_unit)
         if inversion not in INVERSION_METHODS:
-            raise ParameterError(f"unknown inversion {inversion!r}; use one of {', '.join(INVERSION_METHODS)}")
+            raise ParameterError(
+                f"unknown inversion {inversion!r}; use one of {', '.join(INVERSION_METHODS)}"
+            )
         refl = albedo_multiple(medium.albedo_single, medium.anisotropy, medium.ior, method=inversion)
         return {
             "reflectance": np.asarray(refl).tolist(),
@@ -353,23 +400,31 @@ class ReflectanceMfpTarget(Target):
         }
 
     def from_inputs(self, inputs, *, metres_per_scene_unit):
-        """alpha from reflectance by the named inversion; mfp converted to mm."""
+        """Apply the remap: alpha from reflectance by the named inversion; mfp converted to mm."""
         _require(inputs, ("reflectance", "mean_free_path", "g"), self.name)
         m = _check_scale(metres_per_scene_unit)
         g = np.asarray(inputs["g"], dtype=np.float64)
         n = float(inputs.get("eta", 1.0))
         refl = np.asarray(inputs["reflectance"], dtype=np.float64)
         alpha = albedo_single(refl, g, n, method=inputs.get("inversion", "boundary_table"))
-        return EffectiveMedium(alpha, scene_units_to_mm(np.asarray(inputs["mean_free_path"], dtype=np.float64), m), g, n,
-                               albedo_multiple=refl)
+        return EffectiveMedium(
+            alpha,
+            scene_units_to_mm(np.asarray(inputs["mean_free_path"], dtype=np.float64), m),
+            g,
+            n,
+            albedo_multiple=refl,
+        )
 
 
 #: Registry of targets by name.
-TARGETS = {t.name: t for t in (OpenPBRTarget(), StandardSurfaceTarget(), SpectralMediumTarget(), ReflectanceMfpTarget())}
+TARGETS = {
+    t.name: t
+    for t in (OpenPBRTarget(), StandardSurfaceTarget(), SpectralMediumTarget(), ReflectanceMfpTarget())
+}
 
 
 def get_target(name: str) -> Target:
-    """The target called ``name``; :class:`ParameterError` listing the known names otherwise."""
+    """Return the target called ``name``; :class:`ParameterError` listing the known names otherwise."""
     try:
         return TARGETS[name]
     except KeyError:

@@ -13,7 +13,7 @@ CMFS = "CIE 1931 2 Degree Standard Observer"
 
 def _colour_direct_xyz(values_nm, wl_nm, illuminant):
     cmfs = colour.MSDS_CMFS[CMFS]
-    sd = colour.SpectralDistribution(dict(zip(wl_nm, values_nm)))
+    sd = colour.SpectralDistribution(dict(zip(wl_nm, values_nm, strict=True)))
     ill = colour.SDS_ILLUMINANTS[illuminant]
     return colour.sd_to_XYZ(sd, cmfs, ill, method="Integration") / 100.0
 
@@ -35,11 +35,18 @@ def test_perfect_reflector_acescg_d65_with_cat02():
     wl = np.arange(360, 831)
     xyz = _colour_direct_xyz(np.ones(wl.size), wl, "D65")
     d65 = colour.CCS_ILLUMINANTS[CMFS]["D65"]
-    rgb_colour = colour.XYZ_to_RGB(xyz, colour.RGB_COLOURSPACES["ACEScg"], illuminant=d65,
-                                   chromatic_adaptation_transform="CAT02", apply_cctf_encoding=False)
+    rgb_colour = colour.XYZ_to_RGB(
+        xyz,
+        colour.RGB_COLOURSPACES["ACEScg"],
+        illuminant=d65,
+        chromatic_adaptation_transform="CAT02",
+        apply_cctf_encoding=False,
+    )
     np.testing.assert_allclose(rgb_colour, 1.0, atol=1e-3)
     for ill in ("D65", "E", "A"):
-        np.testing.assert_allclose(channel_weights(default_bands(), "ACEScg", ill).sum(axis=1), 1.0, atol=1e-12)
+        np.testing.assert_allclose(
+            channel_weights(default_bands(), "ACEScg", ill).sum(axis=1), 1.0, atol=1e-12
+        )
 
 
 @pytest.mark.parametrize("space", ["ACEScg", "ITU-R BT.709"])
@@ -55,8 +62,9 @@ def test_spectrum_matches_colour_science_directly(space, illuminant):
     xyz = _colour_direct_xyz(refl, wl, illuminant)
     white = _colour_direct_xyz(np.ones(wl.size), wl, illuminant)
     cs = colour.RGB_COLOURSPACES[space]
-    adapted = colour.chromatic_adaptation(xyz, white, colour.xy_to_XYZ(cs.whitepoint), method="Von Kries",
-                                          transform="CAT02")
+    adapted = colour.chromatic_adaptation(
+        xyz, white, colour.xy_to_XYZ(cs.whitepoint), method="Von Kries", transform="CAT02"
+    )
     ref = cs.matrix_XYZ_to_RGB @ (adapted / white[1])
     np.testing.assert_allclose(rgb, ref, atol=1e-4)
 

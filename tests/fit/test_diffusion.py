@@ -86,10 +86,18 @@ def test_single_ring_and_bad_edges():
 def test_wrapper_on_transport_result():
     a, d, y, s = _synthetic(n=1, seed=9)
     res = TransportResult(
-        photons=1, specular_reflectance=Estimate(0.0, 0.0), diffuse_reflectance=Estimate(float(a[0]), 1e-4),
-        transmittance=Estimate(0.0, 0.0), absorbed=np.zeros(1), absorbed_stderr=np.zeros(1), ring_edges_mm=EDGES,
-        radial_reflectance_per_mm2=y[0], radial_stderr_per_mm2=s[0], exit_cos_edges=np.zeros(0),
-        exit_angle_per_sr=np.zeros(0), exit_angle_stderr_per_sr=np.zeros(0),
+        photons=1,
+        specular_reflectance=Estimate(0.0, 0.0),
+        diffuse_reflectance=Estimate(float(a[0]), 1e-4),
+        transmittance=Estimate(0.0, 0.0),
+        absorbed=np.zeros(1),
+        absorbed_stderr=np.zeros(1),
+        ring_edges_mm=EDGES,
+        radial_reflectance_per_mm2=y[0],
+        radial_stderr_per_mm2=s[0],
+        exit_cos_edges=np.zeros(0),
+        exit_angle_per_sr=np.zeros(0),
+        exit_angle_stderr_per_sr=np.zeros(0),
         mean_penetration_depth_mm=Estimate(0.0, 0.0),
     )
     out = fit_burley2015_result(res)

@@ -8,7 +8,11 @@ import numpy as np
 import pytest
 
 from matgen.fit.diffusion import fit_burley2015_result
-from matgen.fit.inversion import albedo_single_ChiangKutzBurley2016, default_inversion_table, has_default_table
+from matgen.fit.inversion import (
+    albedo_single_ChiangKutzBurley2016,
+    default_inversion_table,
+    has_default_table,
+)
 from matgen.fit.models import shape_scaling_Christensen2015
 from matgen.transport.simulate import simulate
 from matgen.transport.stack import Stack
@@ -57,7 +61,9 @@ def test_fitted_shape_scaling_matches_christensen_burley_mfp(isotropic_runs, alp
 @pytest.mark.parametrize(
     "alpha",
     [
-        pytest.param(0.8, marks=pytest.mark.xfail(strict=True, reason="measured 11 % below the dmfp fit at A = 0.28")),
+        pytest.param(
+            0.8, marks=pytest.mark.xfail(strict=True, reason="measured 11 % below the dmfp fit at A = 0.28")
+        ),
         0.9,
         0.95,
     ],

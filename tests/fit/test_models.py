@@ -4,6 +4,7 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
+from matgen.errors import ParameterError
 from matgen.fit.models import (
     GAUSSIAN_VARIANCES_DEON2007_MM2,
     burley2015_cdf,
@@ -16,7 +17,6 @@ from matgen.fit.models import (
     gaussian_sum_profile,
     shape_scaling,
 )
-from matgen.errors import ParameterError
 
 
 @pytest.mark.parametrize("d", [0.05, 0.7, 3.0])
@@ -42,7 +42,12 @@ def test_dipole_cdf_matches_quadrature_and_total():
     limit vs Jensen 2001 Eq. 11 (total diffuse reflectance)."""
     for mua, mus, n in ((0.01, 1.5, 1.0), (0.1, 2.0, 1.4), (1.0, 3.0, 1.33)):
         for r in (0.05, 1.0, 8.0):
-            num, _ = quad(lambda x: 2 * np.pi * x * dipole_profile_Jensen2001(x, mua, mus, n), 0, r, limit=400)
+            num, _ = quad(
+                lambda x, mua=mua, mus=mus, n=n: 2 * np.pi * x * dipole_profile_Jensen2001(x, mua, mus, n),
+                0,
+                r,
+                limit=400,
+            )
             assert num == pytest.approx(float(dipole_cdf_Jensen2001(r, mua, mus, n)), rel=1e-7)
         big = float(dipole_cdf_Jensen2001(1e6, mua, mus, n))
         assert big == pytest.approx(float(dipole_total_Jensen2001(mus / (mua + mus), n)), rel=1e-9)

@@ -6,12 +6,12 @@ import numpy as np
 import pytest
 
 from matgen.cli import main
+from matgen.color import channel_weights
 from matgen.errors import FitError, ParameterError
 from matgen.fit.channels import channel_profiles
 from matgen.fit.diffusion import fit_burley2015
 from matgen.fit.models import burley2015_rings
 from matgen.fit.summary import TABLE_QUANTITIES, summarize
-from matgen.color import channel_weights
 from matgen.spectra.bands import BandSet
 from matgen.transport.results import Estimate, TransportResult
 
@@ -73,20 +73,33 @@ def test_bad_inputs():
 
 def _result_dict(a, y, s):
     return TransportResult(
-        photons=100000, specular_reflectance=Estimate(0.028, 0.0), diffuse_reflectance=Estimate(float(a), 1e-3),
-        transmittance=Estimate(0.0, 0.0), absorbed=np.zeros(1), absorbed_stderr=np.zeros(1), ring_edges_mm=EDGES,
-        radial_reflectance_per_mm2=y, radial_stderr_per_mm2=s, exit_cos_edges=np.linspace(0, 1, 3),
-        exit_angle_per_sr=np.zeros(2), exit_angle_stderr_per_sr=np.zeros(2),
+        photons=100000,
+        specular_reflectance=Estimate(0.028, 0.0),
+        diffuse_reflectance=Estimate(float(a), 1e-3),
+        transmittance=Estimate(0.0, 0.0),
+        absorbed=np.zeros(1),
+        absorbed_stderr=np.zeros(1),
+        ring_edges_mm=EDGES,
+        radial_reflectance_per_mm2=y,
+        radial_stderr_per_mm2=s,
+        exit_cos_edges=np.linspace(0, 1, 3),
+        exit_angle_per_sr=np.zeros(2),
+        exit_angle_stderr_per_sr=np.zeros(2),
         mean_penetration_depth_mm=Estimate(0.0, 0.0),
     ).to_dict()
 
 
 def test_cli_fit_per_band_json(tmp_path, capsys):
     a, _, y, s, d = _inputs(n=1, seed=2)
-    doc = {"bands": BANDS.to_dict(), "results": [_result_dict(a[0, b], y[0, b], s[0, b]) for b in range(len(BANDS))]}
+    doc = {
+        "bands": BANDS.to_dict(),
+        "results": [_result_dict(a[0, b], y[0, b], s[0, b]) for b in range(len(BANDS))],
+    }
     path = tmp_path / "result.json"
     path.write_text(json.dumps(doc))
-    rc = main(["fit", str(path), "--json", "--inversion", "OpenPBR2024", "--anisotropy", "0.8", "--ior", "1.4"])
+    rc = main(
+        ["fit", str(path), "--json", "--inversion", "OpenPBR2024", "--anisotropy", "0.8", "--ior", "1.4"]
+    )
     assert rc == 0
     out = json.loads(capsys.readouterr().out)
     assert len(out["bands"]) == len(BANDS)

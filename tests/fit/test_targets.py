@@ -31,7 +31,9 @@ def _close(a, b):
 
 
 @pytest.mark.parametrize("scale", [0.01, 1.0, 0.001])
-@pytest.mark.parametrize("name, medium", [("openpbr", RGB), ("standard_surface", RGB), ("spectral_medium", BANDS)])
+@pytest.mark.parametrize(
+    "name, medium", [("openpbr", RGB), ("standard_surface", RGB), ("spectral_medium", BANDS)]
+)
 def test_round_trip(name, medium, scale):
     """OpenPBR v0.4 remap (mfp = radius * radius_scale, mu_t = 1/r, van de Hulst inversion); Standard Surface
     as carried by MaterialX 1.39 (radius * scale); raw spectral medium (albedo = sigma_s / sigma_t)."""
