@@ -33,6 +33,13 @@ LOSSLESS_COMPRESSIONS = ("zip", "zips", "piz", "rle", "none")
 _PIXEL_TYPES = {"half": oiio.HALF, "float": oiio.FLOAT}
 
 
+def set_io_threads(n: int | None) -> None:
+    """Let OpenImageIO (and OpenEXR's compression) use ``n`` threads; None leaves its default (all cores)."""
+    if n:
+        oiio.attribute("threads", int(n))
+        oiio.attribute("exr_threads", int(n))
+
+
 def _spec(width, height, channels, pixel_type, compression, attributes, tile_size=None):
     if pixel_type not in _PIXEL_TYPES:
         raise ImageError(f"EXR pixel type '{pixel_type}' is not one of {sorted(_PIXEL_TYPES)}")

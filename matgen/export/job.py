@@ -26,7 +26,7 @@ from matgen.bake.lookup import TexelLookup, set_threads
 from matgen.bake.run import BakePlan, check_inputs, iter_strips, plan_bake
 from matgen.errors import DataError, PathError
 from matgen.export.descriptor import DESCRIPTOR_FORMAT, DESCRIPTOR_VERSION, descriptor_json, texture_entry
-from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture
+from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture, set_io_threads
 from matgen.fsutil import FolderLock
 from matgen.provenance import hash_json, sha256_file
 from matgen.tables.store import Table, default_table_path, load_default_table
@@ -164,7 +164,7 @@ def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, ti
     table : matgen.tables.store.Table, optional
         Table to use instead of the one the config names.
     jobs : int, optional
-        Threads of the per-texel lookup (default: all cores).
+        Threads of the per-texel lookup and of OpenImageIO's EXR compression (default: all cores).
     tile : int, optional
         Bake only this UDIM tile (writes ``material.<tile>.json``); tiles are independent and deterministic.
     dry_run : bool
@@ -197,6 +197,7 @@ def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, ti
         _remove_stale_staging(out_dir)
         report = check_inputs(plan)
         set_threads(jobs)
+        set_io_threads(jobs)
         staging = out_dir / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
         staging.mkdir()
         try:

@@ -27,6 +27,18 @@ from matgen.tables.store import Table
 PASSES_EXTRA = 'passes = ["uv365", "nir850"]\n'
 
 
+def _texel_points(project):
+    """Every texel's parameters in table-axis order, decoded as the test config does (row-major)."""
+    def read(name):
+        inp = oiio.ImageInput.open(str(project / "maps" / name))
+        a = inp.read_image(oiio.FLOAT)[..., 0].astype(np.float64)
+        inp.close()
+        return a
+
+    mel, eu, bl = read("melanin.exr"), read("eumelanin.exr"), read("blood.png")
+    return np.stack([0.005 + mel * 0.445, eu, 0.002 + bl * 0.098, np.full_like(mel, 0.75)], -1).reshape(-1, 4)
+
+
 @pytest.fixture(scope="module")
 def baked(tmp_path_factory, kit):
     root = tmp_path_factory.mktemp("baked")
@@ -148,16 +160,7 @@ def test_pass_maps_are_response_weighted_albedo(baked):
     from matgen.bake.run import plan_bake
 
     plan = plan_bake(load_config(root / "p" / "material.toml"), table)
-    inp = oiio.ImageInput.open(str(root / "p" / "maps" / "melanin.exr"))
-    mel = inp.read_image(oiio.FLOAT)[..., 0].astype(np.float64)
-    inp.close()
-    inp = oiio.ImageInput.open(str(root / "p" / "maps" / "eumelanin.exr"))
-    eu = inp.read_image(oiio.FLOAT)[..., 0].astype(np.float64)
-    inp.close()
-    inp = oiio.ImageInput.open(str(root / "p" / "maps" / "blood.png"))
-    bl = inp.read_image(oiio.FLOAT)[..., 0].astype(np.float64)
-    inp.close()
-    pts = np.stack([0.005 + mel * 0.445, eu, 0.002 + bl * 0.098, np.full_like(mel, 0.75)], -1).reshape(-1, 4)
+    pts = _texel_points(root / "p")
     ref, _ = table.lookup(pts, ["albedo_multiple"])
     np.testing.assert_allclose(uv.reshape(-1), ref["albedo_multiple"].astype(np.float64) @ w, rtol=1e-6)
     w850 = np.array(doc["passes"]["nir850"]["weights"])
@@ -239,3 +242,25 @@ def test_mitsuba_preview_scene_loads_and_renders(tmp_path, kit):
     scene = mi.load_file(str(tmp_path / "out" / "scene_mitsuba.xml"), width=16, spp=4)
     img = np.array(mi.render(scene, spp=4))
     assert np.all(np.isfinite(img)) and 0.0 < img.mean() <= 1.0 + 0.05
+
+
+def test_user_csv_pass_and_progress_bar(tmp_path, kit, capsys):
+    """A user response CSV becomes a pass map w @ A with w from matgen.color.pass_weights of that file."""
+    from matgen.color import pass_weights
+
+    cfg = kit.make_project(tmp_path / "p", 6, 5)
+    (tmp_path / "p" / "cam.csv").write_text("wavelength_nm,weight\n600,0\n650,1\n700,0\n")
+    cfg.write_text(cfg.read_text().replace("passes = []", 'passes = ["cam.csv", "nir940"]'))
+    assert main(["bake", str(cfg), "--out", str(tmp_path / "out"), "--jobs", "1"]) == 0
+    captured = capsys.readouterr()
+    assert "texel" in captured.err and "100%" in captured.err  # tqdm progress with texel counts
+    table = Table.load(tmp_path / "p" / "table.npz")
+    w = pass_weights(str(tmp_path / "p" / "cam.csv"), table.bands)
+    doc = json.loads((tmp_path / "out" / "material.json").read_text())
+    np.testing.assert_allclose(doc["passes"]["cam"]["weights"], w)
+    cam, _, _ = read_exr(tmp_path / "out" / "passes" / "cam.exr")
+    ref, _ = table.lookup(_texel_points(tmp_path / "p"), ["albedo_multiple"])
+    np.testing.assert_allclose(cam.reshape(-1), ref["albedo_multiple"].astype(np.float64) @ w, rtol=1e-6)
+    cfg.write_text(cfg.read_text().replace('"cam.csv"', '"../cam.csv"'))
+    assert main(["bake", str(cfg), "--out", str(tmp_path / "out2"), "--quiet"]) == 2
+    assert "outside" in capsys.readouterr().err
