@@ -22,6 +22,7 @@ class BandSet:
     ----------
     centre_nm, lower_nm, upper_nm : ndarray of float64, shape (B,)
         Band centres and edges in nm.
+
     """
 
     centre_nm: np.ndarray
@@ -53,7 +54,9 @@ class BandSet:
         if c.size > 1:
             if np.any(np.diff(c) <= 0):
                 i = int(np.argmax(np.diff(c) <= 0))
-                raise BandError(f"bands are not sorted: centre {c[i + 1]} nm follows {c[i]} nm; sort them ascending")
+                raise BandError(
+                    f"bands are not sorted: centre {c[i + 1]} nm follows {c[i]} nm; sort them ascending"
+                )
             over = lo[1:] < hi[:-1] - 1e-9
             if over.any():
                 i = int(np.argmax(over))
@@ -70,7 +73,7 @@ class BandSet:
         return self.upper_nm - self.lower_nm
 
     def subset(self, index) -> BandSet:
-        """The bands at ``index`` (an int array, slice or boolean mask)."""
+        """Return the bands at ``index`` (an int array, slice or boolean mask)."""
         return BandSet(self.centre_nm[index], self.lower_nm[index], self.upper_nm[index])
 
     def index_of(self, wavelength_nm: float) -> int:
@@ -101,8 +104,13 @@ class BandSet:
             raise BandError(f"band table needs centre_nm, lower_nm and upper_nm lists ({exc})") from exc
 
     @classmethod
-    def regular(cls, start_nm: float, stop_nm: float, step_nm: float, width_nm: float | None = None) -> BandSet:
-        """Centres from ``start_nm`` to ``stop_nm`` inclusive every ``step_nm``; width defaults to the step."""
+    def regular(
+        cls, start_nm: float, stop_nm: float, step_nm: float, width_nm: float | None = None
+    ) -> BandSet:
+        """Bands centred from ``start_nm`` to ``stop_nm`` inclusive every ``step_nm`` (all in nm).
+
+        The width defaults to the step; a width wider than the step is a :class:`BandError`.
+        """
         for name, v in (("start", start_nm), ("stop", stop_nm), ("step", step_nm)):
             if not np.isfinite(v):
                 raise BandError(f"band {name} is {v!r}; must be a finite number of nm")
@@ -160,12 +168,15 @@ class BandSet:
 
 
 def default_bands() -> BandSet:
-    """The default band set: 300-1000 nm, 10 nm steps, 10 nm wide (71 bands)."""
+    """Return the default band set: 300-1000 nm, 10 nm steps, 10 nm wide (71 bands)."""
     return BandSet.regular(DEFAULT_BAND_START_NM, DEFAULT_BAND_STOP_NM, DEFAULT_BAND_STEP_NM)
 
 
 def band_average(wavelength_nm: np.ndarray, values: np.ndarray, bands: BandSet, dataset: str) -> np.ndarray:
-    """Average a tabulated spectrum over each band (trapezoidal integral of the piecewise-linear spectrum / width).
+    """Average a tabulated spectrum over each band.
+
+    The average is the trapezoidal integral of the piecewise-linear spectrum over the band, divided by
+    its width.
 
     Parameters
     ----------
@@ -187,6 +198,7 @@ def band_average(wavelength_nm: np.ndarray, values: np.ndarray, bands: BandSet, 
     ------
     BandError
         If any band reaches outside the dataset's wavelength range (no silent zeros or extrapolation).
+
     """
     wl = np.asarray(wavelength_nm, dtype=np.float64)
     v = np.asarray(values, dtype=np.float64)

@@ -26,6 +26,7 @@ from importlib import resources
 
 import numpy as np
 
+from matgen import constants as C
 from matgen.constants import HEMOGLOBIN_MOLAR_MASS_G_PER_MOL, LN10, MM_PER_CM, WHOLE_BLOOD_HEMOGLOBIN_G_PER_L
 from matgen.errors import BandError, DataError, ParameterError
 from matgen.spectra.bands import BandSet, band_average
@@ -41,6 +42,8 @@ LIPID_HOLD_DOWN_TO_NM = 250.0
 ANALYTIC_RANGE_NM = (250.0, 1100.0)
 #: Gauss-Legendre points per band for analytic spectra.
 QUADRATURE_POINTS = 16
+#: Data range (nm) of Saidi's neonatal skin baseline fit, as quoted by Jacques 1998 Sec. 1.1 (re-read).
+SAIDI_RANGE_NM = (450.0, 750.0)
 
 
 # ----------------------------------------------------------------------------------------------------
@@ -95,14 +98,14 @@ def water_table() -> tuple[np.ndarray, np.ndarray]:
     """
     t = _read_csv("water_segelstein1981")
     wl = t[:, 0]
-    return wl.copy(), 4.0 * np.pi * t[:, 1] / (wl * 1.0e-6)
+    return wl.copy(), 4.0 * np.pi * t[:, 1] / (wl * (1.0 / C.NM_PER_MM))
 
 
 @functools.cache
 def lipid_table() -> tuple[np.ndarray, np.ndarray]:
     """Fat absorption of van Veen et al. 2005 as vendored: (wavelength_nm (M,), mu_a (M,) in 1/mm)."""
     t = _read_csv("lipid_vanveen2005")
-    return t[:, 0].copy(), t[:, 1] / 1000.0  # 1/m -> 1/mm
+    return t[:, 0].copy(), t[:, 1] / C.MM_PER_M  # 1/m -> 1/mm
 
 
 # ----------------------------------------------------------------------------------------------------
@@ -205,12 +208,15 @@ def mu_a_blood(bands: BandSet, oxygen_saturation, hemoglobin_g_per_l: float = WH
 # melanins
 # ----------------------------------------------------------------------------------------------------
 #: Eumelanin melanosome law, Jacques 1998: mu_a = 6.6e11 lambda^-3.33 1/cm (= Donner & Jensen 2006,
-#: 6.6e10 lambda^-3.33 1/mm). Carried by simpa's Melanin.npz (checked in tests/spectra).
-EUMELANIN_JACQUES1998 = (6.6e11 / MM_PER_CM, -3.33)
-#: Jacques 2013 alternative: mu_a = 519 (lambda/500)^-3.5 1/cm (from memory).
-EUMELANIN_JACQUES2013 = (519.0 / MM_PER_CM, -3.5)
-#: Pheomelanin, Donner & Jensen 2006: mu_a = 2.9e14 lambda^-4.75 1/mm (from memory).
-PHEOMELANIN_DONNERJENSEN2006 = (2.9e14, -4.75)
+#: 6.6e10 lambda^-3.33 1/mm); (coefficient in 1/mm, exponent). Values and their status in matgen.constants.
+EUMELANIN_JACQUES1998 = (C.EUMELANIN_JACQUES1998_PER_MM, C.EUMELANIN_JACQUES1998_EXPONENT)
+#: Jacques 2013 Eq. 8: mu_a = 519 (lambda/500)^-3.5 1/cm; (1/mm at 500 nm, exponent).
+EUMELANIN_JACQUES2013 = (C.EUMELANIN_JACQUES2013_AT_500NM_PER_MM, C.EUMELANIN_JACQUES2013_EXPONENT)
+#: Pheomelanin, Donner & Jensen 2006: mu_a = 2.9e14 lambda^-4.75 1/mm (from memory); (1/mm, exponent).
+PHEOMELANIN_DONNERJENSEN2006 = (
+    C.PHEOMELANIN_DONNERJENSEN2006_PER_MM,
+    C.PHEOMELANIN_DONNERJENSEN2006_EXPONENT,
+)
 
 _EUMELANIN_METHODS = ("Jacques1998", "Jacques2013")
 _PHEOMELANIN_METHODS = ("DonnerJensen2006",)
@@ -230,7 +236,8 @@ def mu_a_eumelanin(bands: BandSet, method: str = "Jacques1998") -> np.ndarray:
         Bands in nm, within 250-1100 nm.
     method : {"Jacques1998", "Jacques2013"}
         ``Jacques1998``: 6.6e11 lambda^-3.33 1/cm (Jacques1998; DonnerJensen2006).
-        ``Jacques2013``: 519 (lambda/500 nm)^-3.5 1/cm (Jacques2013, from memory).
+        ``Jacques2013``: 519 (lambda/500 nm)^-3.5 1/cm (Jacques2013 Eq. 8; re-read as quoted, see
+        :data:`matgen.constants.EUMELANIN_JACQUES2013_AT_500NM_PER_MM`).
 
     Returns
     -------
@@ -246,7 +253,10 @@ def mu_a_eumelanin(bands: BandSet, method: str = "Jacques1998") -> np.ndarray:
         )
     a, b = EUMELANIN_JACQUES2013
     return band_average_function(
-        lambda wl: a * (wl / 500.0) ** b, bands, "eumelanin (Jacques 2013)", ANALYTIC_RANGE_NM
+        lambda wl: a * (wl / C.JACQUES2013_REFERENCE_WAVELENGTH_NM) ** b,
+        bands,
+        "eumelanin (Jacques 2013)",
+        ANALYTIC_RANGE_NM,
     )
 
 
@@ -314,8 +324,10 @@ def mu_a_baseline(bands: BandSet, method: str = "Jacques1998") -> np.ndarray:
         Bands in nm. ``Jacques1998`` holds for 250-1100 nm (fit to 350-1100 nm data); ``Saidi1992`` for
         450-750 nm only (its data range).
     method : {"Jacques1998", "Saidi1992"}
-        ``Jacques1998``: 0.244 + 85.3 exp(-(lambda - 154)/66.2) 1/cm (Jacques1998, from bloodless rat skin).
-        ``Saidi1992``: 7.84e8 lambda^-3.255 1/cm (Saidi1992 neonatal skin, as quoted by Jacques1998).
+        ``Jacques1998``: 0.244 + 85.3 exp(-(lambda - 154)/66.2) 1/cm (Jacques1998 Sec. 1.1, bloodless rat
+        skin, 350-1100 nm; re-read).
+        ``Saidi1992``: 7.84e8 lambda^-3.255 1/cm (Saidi1992 neonatal skin, 450-750 nm, as quoted by
+        Jacques1998 Sec. 1.1; re-read).
 
     Returns
     -------
@@ -326,13 +338,23 @@ def mu_a_baseline(bands: BandSet, method: str = "Jacques1998") -> np.ndarray:
     _method(method, _BASELINE_METHODS, "baseline")
     if method == "Jacques1998":
         return band_average_function(
-            lambda wl: (0.244 + 85.3 * np.exp(-(wl - 154.0) / 66.2)) / MM_PER_CM,
+            lambda wl: (
+                (
+                    C.BASELINE_JACQUES1998_FLOOR_PER_CM
+                    + C.BASELINE_JACQUES1998_AMPLITUDE_PER_CM
+                    * np.exp(-(wl - C.BASELINE_JACQUES1998_OFFSET_NM) / C.BASELINE_JACQUES1998_DECAY_NM)
+                )
+                / MM_PER_CM
+            ),
             bands,
             "skin baseline (Jacques 1998)",
             ANALYTIC_RANGE_NM,
         )
     return band_average_function(
-        lambda wl: 7.84e8 * wl**-3.255 / MM_PER_CM, bands, "skin baseline (Saidi 1992)", (450.0, 750.0)
+        lambda wl: C.BASELINE_SAIDI1992_PER_CM * wl**C.BASELINE_SAIDI1992_EXPONENT / MM_PER_CM,
+        bands,
+        "skin baseline (Saidi 1992)",
+        SAIDI_RANGE_NM,
     )
 
 
@@ -388,7 +410,7 @@ def mu_a_lipid(bands: BandSet, method: str = "vanVeen2005") -> np.ndarray:
 #: Prahl; value from memory) and vibronic bands (centre nm, relative height, Gaussian sigma in cm^-1 on the
 #: blue and red sides; from memory of the published spectrum's shape: shoulder 425, peak 450, 478 nm, and
 #: the weak cis band near 340 nm).
-CAROTENE_PEAK_PER_CM_PER_MOLAR = 1.395e5
+CAROTENE_PEAK_PER_CM_PER_MOLAR = C.CAROTENE_PEAK_PER_CM_PER_MOLAR
 CAROTENE_BANDS = (
     (425.0, 0.72, 650.0, 650.0),
     (450.0, 1.0, 650.0, 650.0),
@@ -399,16 +421,18 @@ CAROTENE_BANDS = (
 #: quotation of that entry), one broad, asymmetric band: half maximum near 410 nm and 490 nm (from
 #: memory), i.e.
 #: Gaussian sigma 1970 cm^-1 on the blue side and 1420 cm^-1 on the red side.
-BILIRUBIN_PEAK_PER_CM_PER_MOLAR = 5.5e4
+BILIRUBIN_PEAK_PER_CM_PER_MOLAR = C.BILIRUBIN_PEAK_PER_CM_PER_MOLAR
 BILIRUBIN_BANDS = ((453.0, 1.0, 1970.0, 1420.0),)
 MOLAR_MODEL_RANGE_NM = (250.0, 1700.0)
+#: Wavelength span (nm) searched for the peak of a band model when it is scaled to its published peak.
+PEAK_SEARCH_NM = (300.0, 700.0)
 
 
 def _gauss_bands(wl_nm, bands):
-    nu = 1.0e7 / wl_nm
+    nu = C.NM_PER_CM / wl_nm
     out = np.zeros_like(wl_nm, dtype=np.float64)
     for centre, height, sigma_blue, sigma_red in bands:
-        d = nu - 1.0e7 / centre  # > 0 on the blue (short-wavelength) side
+        d = nu - C.NM_PER_CM / centre  # > 0 on the blue (short-wavelength) side
         sigma = np.where(d > 0, sigma_blue, sigma_red)
         out += height * np.exp(-0.5 * (d / sigma) ** 2)
     return out
@@ -416,7 +440,7 @@ def _gauss_bands(wl_nm, bands):
 
 @functools.cache
 def _peak_norm(bands):
-    wl = np.linspace(300.0, 700.0, 40001)
+    wl = np.linspace(PEAK_SEARCH_NM[0], PEAK_SEARCH_NM[1], 40001)
     return float(_gauss_bands(wl, bands).max())
 
 
@@ -480,7 +504,7 @@ def mu_a_from_molar(extinction_per_cm_per_molar, concentration_umol_per_l):
         mu_a in 1/mm (Jacques2013).
 
     """
-    c = np.asarray(concentration_umol_per_l, dtype=np.float64) * 1.0e-6
+    c = np.asarray(concentration_umol_per_l, dtype=np.float64) * C.MOL_PER_UMOL
     return LN10 * np.asarray(extinction_per_cm_per_molar) * c[..., None] / MM_PER_CM
 
 

@@ -13,6 +13,7 @@ import math
 import numpy as np
 
 from matgen._optional import require
+from matgen.constants import NM_PER_MM
 from matgen.errors import ParameterError
 from matgen.spectra.bands import BandSet
 
@@ -110,7 +111,7 @@ def population_scattering(
         x, wh = np.polynomial.hermite_e.hermegauss(SIZE_POINTS)
         d = median_diameter_nm * np.exp(math.log(geometric_sigma) * x)
         w = wh / wh.sum()
-    d_mm = d * 1.0e-6
+    d_mm = d * (1.0 / NM_PER_MM)
     mean_volume_mm3 = float(np.sum(w * np.pi * d_mm**3 / 6.0))
     number_per_mm3 = volume_fraction / mean_volume_mm3
     area_mm2 = np.pi * d_mm**2 / 4.0

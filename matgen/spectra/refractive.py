@@ -9,27 +9,28 @@ from __future__ import annotations
 
 import numpy as np
 
+from matgen import constants as C
 from matgen.errors import ParameterError
 from matgen.spectra.bands import BandSet
 
-#: layer name -> (index, source). All from memory.
+#: layer name -> (index, source). All from memory; values in matgen.constants.
 LAYER_INDEX: dict[str, tuple[float, str]] = {
     # Tearney et al. 1995 measured about 1.51 in vivo by OCT; the keratin-rich layer is usually modelled at
     # 1.5-1.55 (Lister2012 review). matgen takes 1.55. (from memory)
-    "stratum_corneum": (1.55, "Tearney1995; Lister2012 (from memory)"),
+    "stratum_corneum": (C.N_STRATUM_CORNEUM, "Tearney1995; Lister2012 (from memory)"),
     # viable epidermis about 1.40 (Lister2012 review; Ding2006 reports 1.40-1.43 over 400-1000 nm;
     # from memory)
-    "epidermis": (1.40, "Lister2012; Ding2006 (from memory)"),
+    "epidermis": (C.N_EPIDERMIS, "Lister2012; Ding2006 (from memory)"),
     # dermis 1.39-1.41 (Ding2006; Bolin1989; from memory)
-    "papillary_dermis": (1.39, "Ding2006; Bolin1989 (from memory)"),
-    "reticular_dermis": (1.40, "Ding2006; Bolin1989 (from memory)"),
+    "papillary_dermis": (C.N_PAPILLARY_DERMIS, "Ding2006; Bolin1989 (from memory)"),
+    "reticular_dermis": (C.N_RETICULAR_DERMIS, "Ding2006; Bolin1989 (from memory)"),
     # adipose tissue about 1.44-1.46 (Bolin1989, from memory)
-    "hypodermis": (1.44, "Bolin1989 (from memory)"),
+    "hypodermis": (C.N_HYPODERMIS, "Bolin1989 (from memory)"),
 }
 
 #: Index of the medium below the hypodermis (skeletal muscle / fascia), about 1.37-1.38 (Bolin1989, from
 #: memory). It sets the Fresnel reflection at the bottom of the finite stack.
-N_BELOW_MUSCLE = 1.37
+N_BELOW_MUSCLE = C.N_MUSCLE
 N_BELOW_SOURCE = "Bolin1989 (muscle, from memory)"
 
 

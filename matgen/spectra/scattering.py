@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from matgen import constants as C
 from matgen.constants import MM_PER_CM
 from matgen.errors import ParameterError
 from matgen.spectra.bands import BandSet
@@ -25,8 +26,11 @@ from matgen.spectra.chromophores import band_average_function
 #: roughly 400-1100 nm; UV bands down to 250 nm extend the same smooth law (documented in
 #: docs/developers/tissue.md as an extrapolation).
 SCATTERING_RANGE_NM = (250.0, 1700.0)
+#: Range (nm) where matgen applies the van Gemert g(lambda) fit: at 1100 nm it reaches g = 0.939, beyond it
+#: would approach 1.
+VANGEMERT_RANGE_NM = (250.0, 1100.0)
 #: Reference wavelength of the Jacques 2013 law, nm.
-REFERENCE_WAVELENGTH_NM = 500.0
+REFERENCE_WAVELENGTH_NM = C.JACQUES2013_REFERENCE_WAVELENGTH_NM
 
 
 @dataclass(frozen=True)
@@ -52,16 +56,37 @@ class PowerLaw:
     source: str
 
 
-#: Published parameter sets. Jacques 2013 Table 2 rows (from memory; re-check against the paper when it can be
-#: read): skin 46.0 1/cm, 0.409, 0.562; dermis 43.6 1/cm, 0.41, 0.562; epidermis 66.7 1/cm, 0.29, 0.689.
-#: Subcutaneous fat: Bashkatov et al. 2005 fit mu_s' = 1050.6 lambda^-0.68 1/cm (from memory), written as a
-#: pure Mie law (f_Ray = 0) with a' = 1050.6 * 500^-0.68 1/cm.
+#: Published parameter sets (values in matgen.constants with their status). Jacques 2013 Table 2 rows as used
+#: here (from memory; the table could not be re-read): skin 46.0 1/cm, 0.409, 0.562; dermis 43.6 1/cm, 0.41,
+#: 0.562; epidermis 66.7 1/cm, 0.29, 0.689. simpa's literature_values quotes other epidermis / dermis
+#: parameters from Jacques 2013 Table 1 (Salomatina et al. 2006: f_Ray 0.29, b_Mie 2.8; f_Ray 0.1,
+#: b_Mie 3.5); see docs/developers/tissue.md. Subcutaneous fat: Bashkatov et al. 2005 fit
+#: mu_s' = 1050.6 lambda^-0.68 1/cm (from memory), written as a pure Mie law (f_Ray = 0) with
+#: a' = 1050.6 * 500^-0.68 1/cm.
 POWER_LAWS: dict[str, PowerLaw] = {
-    "skin_Jacques2013": PowerLaw(46.0 / MM_PER_CM, 0.409, 0.562, "Jacques2013 Table 2 (skin)"),
-    "dermis_Jacques2013": PowerLaw(43.6 / MM_PER_CM, 0.41, 0.562, "Jacques2013 Table 2 (dermis)"),
-    "epidermis_Jacques2013": PowerLaw(66.7 / MM_PER_CM, 0.29, 0.689, "Jacques2013 Table 2 (epidermis)"),
+    "skin_Jacques2013": PowerLaw(
+        C.JACQUES2013_SKIN_A_PRIME_PER_CM / MM_PER_CM,
+        C.JACQUES2013_SKIN_F_RAY,
+        C.JACQUES2013_SKIN_B_MIE,
+        "Jacques2013 Table 2 (skin)",
+    ),
+    "dermis_Jacques2013": PowerLaw(
+        C.JACQUES2013_DERMIS_A_PRIME_PER_CM / MM_PER_CM,
+        C.JACQUES2013_DERMIS_F_RAY,
+        C.JACQUES2013_DERMIS_B_MIE,
+        "Jacques2013 Table 2 (dermis)",
+    ),
+    "epidermis_Jacques2013": PowerLaw(
+        C.JACQUES2013_EPIDERMIS_A_PRIME_PER_CM / MM_PER_CM,
+        C.JACQUES2013_EPIDERMIS_F_RAY,
+        C.JACQUES2013_EPIDERMIS_B_MIE,
+        "Jacques2013 Table 2 (epidermis)",
+    ),
     "subcutaneous_fat_Bashkatov2005": PowerLaw(
-        1050.6 * 500.0**-0.68 / MM_PER_CM, 0.0, 0.68, "Bashkatov2005 (subcutaneous adipose tissue)"
+        C.FAT_BASHKATOV2005_PER_CM * REFERENCE_WAVELENGTH_NM**C.FAT_BASHKATOV2005_EXPONENT / MM_PER_CM,
+        0.0,
+        -C.FAT_BASHKATOV2005_EXPONENT,
+        "Bashkatov2005 (subcutaneous adipose tissue)",
     ),
 }
 
@@ -137,7 +162,8 @@ def anisotropy_vanGemert1989(wavelength_nm):
         Henyey-Greenstein g (dimensionless).
 
     """
-    return 0.62 + 0.29e-3 * np.asarray(wavelength_nm, dtype=np.float64)
+    wl = np.asarray(wavelength_nm, dtype=np.float64)
+    return C.G_VANGEMERT1989_INTERCEPT + C.G_VANGEMERT1989_SLOPE_PER_NM * wl
 
 
 def anisotropy(bands: BandSet, method: str = "vanGemert1989", value: float = 0.8) -> np.ndarray:
@@ -166,7 +192,7 @@ def anisotropy(bands: BandSet, method: str = "vanGemert1989", value: float = 0.8
             raise ParameterError(f"constant anisotropy {value!r} must lie in (-1, 1)")
         return np.full(len(bands), float(value))
     return band_average_function(
-        anisotropy_vanGemert1989, bands, "anisotropy (van Gemert 1989)", (250.0, 1100.0)
+        anisotropy_vanGemert1989, bands, "anisotropy (van Gemert 1989)", VANGEMERT_RANGE_NM
     )
 
 

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from matgen.constants import LN10, MM_PER_CM, N_AIR
+from matgen.constants import BLOOD_PLASMA_VOLUME_FRACTION, LN10, MM_PER_CM, MOL_PER_UMOL, N_AIR
 from matgen.errors import BandError, ParameterError
 from matgen.spectra import chromophores as ch
 from matgen.spectra.bands import BandSet
@@ -34,8 +34,9 @@ from matgen.tissue.layers import LAYER_NAMES, layer_scattering
 from matgen.tissue.packaging import applies, check_packaging, duysens_sphere_factor, vessel_factor
 from matgen.tissue.parameters import SkinParameters
 
-#: Plasma share of whole-blood volume, 1 - haematocrit, haematocrit 0.45 (typical adult value, from memory).
-PLASMA_FRACTION = 0.55
+#: Plasma share of whole-blood volume, 1 - haematocrit (haematocrit 0.45); see
+#: :data:`matgen.constants.BLOOD_PLASMA_VOLUME_FRACTION`.
+PLASMA_FRACTION = BLOOD_PLASMA_VOLUME_FRACTION
 
 
 def _band_key(bands: BandSet):
@@ -115,7 +116,7 @@ def absorption_batch(
         melanosome = melanosome * duysens_sphere_factor(melanosome, col("melanosome_diameter_mm"))
 
     sat = col("oxygen_saturation")
-    bilirubin = LN10 * sp["bilirubin_ext"] * col("bilirubin_umol_per_l") * 1.0e-6 / MM_PER_CM
+    bilirubin = LN10 * sp["bilirubin_ext"] * col("bilirubin_umol_per_l") * MOL_PER_UMOL / MM_PER_CM
     blood = sat * sp["hbo2"] + (1.0 - sat) * sp["hb"] + PLASMA_FRACTION * bilirubin
     if applies(packaging, "blood"):
         blood_pap = blood * vessel_factor(blood, col("papillary_vessel_radius_mm"))
@@ -123,7 +124,7 @@ def absorption_batch(
     else:
         blood_pap = blood_ret = blood
 
-    carotene = LN10 * sp["carotene_ext"] * col("carotene_umol_per_l") * 1.0e-6 / MM_PER_CM
+    carotene = LN10 * sp["carotene_ext"] * col("carotene_umol_per_l") * MOL_PER_UMOL / MM_PER_CM
     water, lipid, base = sp["water"], sp["lipid"], sp["baseline"]
 
     fw = col("stratum_corneum_water_fraction")
