@@ -171,22 +171,24 @@ def analytic_records():
         "melanin_laws": {
             **common,
             "source": "eumelanin: Jacques 1998 skin optics summary, melanosome mu_a = 6.6e11 "
-            "lambda^-3.33 1/cm "
-            "(BIBLIOGRAPHY: Jacques1998), identical to Donner & Jensen 2006 eumelanin 6.6e10 "
-            "lambda^-3.33 1/mm; "
-            "pheomelanin: Donner & Jensen 2006, 2.9e14 lambda^-4.75 1/mm (BIBLIOGRAPHY: DonnerJensen2006, "
-            "from memory); Jacques 2013 alternative 519 (lambda/500)^-3.5 1/cm (BIBLIOGRAPHY: Jacques2013, "
-            "from memory)",
+            "lambda^-3.33 1/cm (BIBLIOGRAPHY: Jacques1998; from memory, confirmed by simpa 1.0.0 Melanin.npz "
+            "within 0.5 % over 450-1000 nm), identical to Donner & Jensen 2006 eumelanin 6.6e10 "
+            "lambda^-3.33 1/mm; pheomelanin: Donner & Jensen 2006, 2.9e14 lambda^-4.75 1/mm (BIBLIOGRAPHY: "
+            "DonnerJensen2006, from memory, no outside copy found); Jacques 2013 Eq. 8 alternative "
+            "519 (lambda/500)^-3.5 1/cm (BIBLIOGRAPHY: Jacques2013; the paper not re-read, the value re-read "
+            "as quoted from Eq. 8 by the tissue absorption tool of Blaney et al. 2024, BIBLIOGRAPHY: "
+            "Blaney2024). Coefficients in matgen.constants",
             "units": "absorption coefficient of the melanosome interior, 1/mm; lambda in nm",
             "license": "formula (no data)",
             "wavelength_range_nm": [250.0, 1100.0],
         },
         "baseline_jacques1998": {
             **common,
-            "source": "Jacques 1998 skin optics summary: mu_a = 0.244 + 85.3 exp(-(lambda - 154)/66.2) "
-            "1/cm, fit to "
-            "bloodless rat skin (Huang and Jacques, 350-1100 nm); alternative 7.84e8 lambda^-3.255 1/cm for "
-            "Saidi's neonatal skin data, 450-750 nm (BIBLIOGRAPHY: Jacques1998, Saidi1992)",
+            "source": "Jacques 1998 skin optics summary, Sec. 1.1 (re-read): mu_a = 0.244 + 85.3 "
+            "exp(-(lambda - 154)/66.2) 1/cm, fit to bloodless rat skin (Huang and Jacques, 350-1100 nm); "
+            "alternative 7.84e8 lambda^-3.255 1/cm for Saidi's neonatal skin data, 450-750 nm "
+            "(BIBLIOGRAPHY: Jacques1998, Saidi1992). Below 350 nm the same expression is continued down to "
+            "250 nm (an extrapolation). Coefficients in matgen.constants",
             "units": "absorption coefficient of bloodless skin, 1/mm; lambda in nm",
             "license": "formula (no data)",
             "wavelength_range_nm": [250.0, 1100.0],
