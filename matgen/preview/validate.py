@@ -70,8 +70,8 @@ MELANIN_SETTINGS = (("light", 0.02), ("dark", 0.30))
 #: Paths per tracer render and photons per matgen run, quick and full.
 TRACER_PATHS = {"quick": 65_536, "full": 262_144}
 LAYERED_TRACER_PATHS = {"quick": 32_768, "full": 131_072}
-COLLAPSE_TRACER_PATHS = {"quick": 16_384, "full": 65_536}
-MATGEN_PHOTONS = {"quick": 100_000, "full": 500_000}
+COLLAPSE_TRACER_PATHS = {"quick": 8_192, "full": 65_536}
+MATGEN_PHOTONS = {"quick": 60_000, "full": 500_000}
 
 #: Media of the harness check against adding-doubling: (albedo, g, n, optical thickness, band centre nm).
 #: The band only selects the wavelengths the tracer samples (the media are grey); spreading the cases over
