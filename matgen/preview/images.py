@@ -6,7 +6,7 @@ floats in [0, 1] or 8-bit integers.
 View transform. Baked RGB maps hold scene-linear colour in the table's working space (ACEScg by default).
 Showing those numbers as if they were sRGB code values would be wrong twice (primaries and encoding). The
 view used here converts working-space RGB to linear sRGB / Rec. 709 primaries with the Bradford chromatic
-adaptation from the working space's white to D65 (colour-science ``RGB_to_RGB``, [Colour2024]), optionally
+adaptation from the working space's white to D65 (colour-science ``RGB_to_RGB``, [colour2024]), optionally
 scales by an exposure in stops, clips to the display gamut [0, 1] and applies the sRGB encoding
 (IEC 61966-2-1, [IEC1999srgb]). Albedo-like maps stay below 1, so no tone curve is applied.
 """
@@ -48,7 +48,7 @@ def working_to_display(rgb, working_space: str = "ACEScg", exposure_stops: float
 
     References
     ----------
-    [Colour2024] (``RGB_to_RGB``, Bradford adaptation); [IEC1999srgb] (sRGB encoding).
+    [colour2024] (``RGB_to_RGB``, Bradford adaptation); [IEC1999srgb] (sRGB encoding).
     """
     colour = _colour()
     arr = np.asarray(rgb, dtype=np.float64)
