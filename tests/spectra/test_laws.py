@@ -49,15 +49,18 @@ def test_pheomelanin_and_mixture():
 
 
 def test_eumelanin_2013_variant_and_unknown_method():
-    """Jacques 2013 variant 519 (lambda/500)^-3.5 1/cm; an unknown method names the valid ones."""
+    """Jacques 2013 Eq. 8 variant 519 (lambda/500)^-3.5 1/cm, i.e. 51.9 1/mm at 500 nm (as quoted from Eq. 8 by
+    Blaney et al. 2024's tissue absorption tool; the paper itself not re-read); an unknown method names the
+    valid ones."""
     assert ch.mu_a_eumelanin(_narrow([500.0]), method="Jacques2013")[0] == pytest.approx(51.9, rel=1e-8)
     with pytest.raises(ParameterError, match="Jacques1998, Jacques2013"):
         ch.mu_a_eumelanin(_narrow([500.0]), method="Smith2020")
 
 
 def test_baseline_matches_formula_and_simpa(ref):
-    """Jacques 1998: 0.244 + 85.3 exp(-(lambda - 154)/66.2) 1/cm; simpa 1.0 Skin_Baseline.npz carries the same
-    expression (450-1000 nm), agreement within 1e-4."""
+    """Jacques 1998 Sec. 1.1 (re-read on omlc.org/news/jan98/skinoptics.html): 0.244 + 85.3
+    exp(-(lambda - 154)/66.2) 1/cm; simpa 1.0 Skin_Baseline.npz carries the same expression (450-1000 nm),
+    agreement within 1e-4."""
     w, v = ref.simpa_spectrum("Skin_Baseline")
     sel = (w > 450) & (w < 1000)
     ours = ch.mu_a_baseline(_narrow(w[sel])) * 10
@@ -67,8 +70,8 @@ def test_baseline_matches_formula_and_simpa(ref):
 
 
 def test_saidi_baseline_range():
-    """Saidi's neonatal fit 7.84e8 lambda^-3.255 1/cm holds on 450-750 nm only (Jacques 1998): error
-    beyond."""
+    """Saidi's neonatal fit 7.84e8 lambda^-3.255 1/cm holds on 450-750 nm only (Jacques 1998 Sec. 1.1,
+    re-read): error beyond."""
     assert ch.mu_a_baseline(_narrow([600.0]), "Saidi1992")[0] == pytest.approx(
         7.84e8 * 600**-3.255 / 10, rel=1e-8
     )
@@ -124,3 +127,20 @@ def test_carotene_and_bilirubin_models_meet_their_stated_parameters():
     assert bil.max() == pytest.approx(5.5e4, rel=0.01)
     red = bands.centre_nm > 600
     assert car[red].max() < 1e-3 * car.max() and bil[red].max() < 1e-3 * bil.max()
+
+
+def test_dermis_jacques1998_matches_simpa_reference_table(ref):
+    """Jacques 1998 skin optics summary, dermis mu_s' = 2e12 lambda^-4 + 2e5 lambda^-1.5 1/cm (formula from
+    memory). Outside copy: the dermis reference table of simpa 1.0.0's tests
+    (simpa_tests/test_utils/tissue_composition_tests.py, get_dermis_reference_dictionary, citing
+    omlc.org/news/jan98/skinoptics.html), mu_s at g = 0.715 for 450-950 nm, printed to 4 significant digits:
+    mu_s (1 - g) must agree within 0.2 % (4-digit rounding of mu_s is at most 0.05 %; the rest is margin for
+    rounding of their own inputs)."""
+    table = ref.simpa_reference_table("get_dermis_reference_dictionary")
+    wl = np.array(sorted(w for w in table if "mu_s_per_cm" in table[w] and "g" in table[w]))
+    assert wl.size >= 6
+    theirs = np.array([table[w]["mu_s_per_cm"] * (1.0 - table[w]["g"]) for w in wl])
+    ours = sc.mu_s_reduced(_narrow(wl), "dermis_Jacques1998") * 10.0
+    assert np.max(np.abs(ours / theirs - 1.0)) < 2e-3
+    formula = 2e12 * wl**-4 + 2e5 * wl**-1.5
+    np.testing.assert_allclose(ours, formula, rtol=1e-6)
