@@ -49,9 +49,9 @@ def test_pheomelanin_and_mixture():
 
 
 def test_eumelanin_2013_variant_and_unknown_method():
-    """Jacques 2013 Eq. 8 variant 519 (lambda/500)^-3.5 1/cm, i.e. 51.9 1/mm at 500 nm (as quoted from Eq. 8 by
-    Blaney et al. 2024's tissue absorption tool; the paper itself not re-read); an unknown method names the
-    valid ones."""
+    """Jacques 2013 Eq. 8 variant 519 (lambda/500)^-3.5 1/cm, i.e. 51.9 1/mm at 500 nm (as quoted from Eq. 8
+    by Blaney et al. 2024's tissue absorption tool; the paper itself not re-read); an unknown method names
+    the valid ones."""
     assert ch.mu_a_eumelanin(_narrow([500.0]), method="Jacques2013")[0] == pytest.approx(51.9, rel=1e-8)
     with pytest.raises(ParameterError, match="Jacques1998, Jacques2013"):
         ch.mu_a_eumelanin(_narrow([500.0]), method="Smith2020")
