@@ -17,8 +17,12 @@ def register(sub):
         "matgen validate --quick\nmatgen validate --only harness layered --json validation.json",
     )
     p.add_argument("--quick", action="store_true", help="fewer bands and paths (under 2 minutes on 2 cores)")
-    p.add_argument("--only", nargs="+", metavar="NAME",
-                   help="run only these comparisons: harness, homogeneous, layered, collapse")
+    p.add_argument(
+        "--only",
+        nargs="+",
+        metavar="NAME",
+        help="run only these comparisons: harness, homogeneous, layered, collapse",
+    )
     p.add_argument("--preset", default="cheek", help="skin preset of the skin comparisons")
     p.add_argument("--seed", type=int, default=0, help="seed of matgen's transport and of the path tracer")
     p.add_argument("--json", metavar="PATH", help="also write the tables as JSON to PATH")
@@ -30,8 +34,13 @@ def run(args) -> int:
     from matgen.fsutil import atomic_path
     from matgen.preview.validate import run_validation
 
-    result = run_validation(quick=args.quick, seed=args.seed, only=args.only, preset_name=args.preset,
-                            progress=lambda text: print(text + "\n", flush=True))
+    result = run_validation(
+        quick=args.quick,
+        seed=args.seed,
+        only=args.only,
+        preset_name=args.preset,
+        progress=lambda text: print(text + "\n", flush=True),
+    )
     print(result.format().split("\n\n")[-1] if result.comparisons else result.format())
     if args.json:
         with atomic_path(args.json) as tmp:

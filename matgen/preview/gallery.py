@@ -22,8 +22,9 @@ PREVIEW_BANDS = "300:1000:20:10"
 PROFILE_BANDS_NM = (400.0, 560.0, 700.0, 860.0)
 
 
-def preset_previews(out_dir, presets, *, bands=None, photons: int = 20_000, seed: int = 0, method: str = "auto",
-                    progress=None) -> dict:
+def preset_previews(
+    out_dir, presets, *, bands=None, photons: int = 20_000, seed: int = 0, method: str = "auto", progress=None
+) -> dict:
     """Spectra of the presets, profiles and patch preview of the first, from matgen's own pipeline.
 
     Parameters
@@ -45,6 +46,7 @@ def preset_previews(out_dir, presets, *, bands=None, photons: int = 20_000, seed
     -------
     dict of str -> Path
         ``spectra``, ``profiles``, ``patch`` (and the method used under ``patch_method``).
+
     """
     from matgen.fit.models import burley2015_rings
     from matgen.preview.media import base_skin, skin_runs, skin_summary
@@ -66,8 +68,11 @@ def preset_previews(out_dir, presets, *, bands=None, photons: int = 20_000, seed
         errs[label] = q["albedo_multiple_stderr"][0]
         if first is None:
             first = (label, runs, q)
-    written = {"spectra": plots.plot_reflectance_spectra(out / "spectra.png", bands, curves, errs,
-                                                         title="Total diffuse reflectance A (matgen transport)")}
+    written = {
+        "spectra": plots.plot_reflectance_spectra(
+            out / "spectra.png", bands, curves, errs, title="Total diffuse reflectance A (matgen transport)"
+        )
+    }
     label, runs, q = first
     edges = runs.results[0].ring_edges_mm
     prof, perr, models = {}, {}, {}
@@ -79,11 +84,14 @@ def preset_previews(out_dir, presets, *, bands=None, photons: int = 20_000, seed
         key = f"{bands.centre_nm[b]:g} nm"
         prof[key] = runs.results[b].radial_reflectance_per_mm2
         perr[key] = runs.results[b].radial_stderr_per_mm2
-        models[key] = ("normalised diffusion fit",
-                       burley2015_rings(edges, q["albedo_multiple"][0, b], q["shape_distance_mm"][0, b]))
+        models[key] = (
+            "normalised diffusion fit",
+            burley2015_rings(edges, q["albedo_multiple"][0, b], q["shape_distance_mm"][0, b]),
+        )
     if prof:
-        written["profiles"] = plots.plot_radial_profiles(out / "profiles.png", edges, prof, perr, models,
-                                                         title=f"Radial reflectance profiles: {label}")
+        written["profiles"] = plots.plot_radial_profiles(
+            out / "profiles.png", edges, prof, perr, models, title=f"Radial reflectance profiles: {label}"
+        )
     medium = PatchMedium.from_quantities(bands, q, 0, label)
     written["patch"], written["patch_method"] = patch_preview(out / "patch.png", medium, method=method)
     return written
@@ -99,27 +107,43 @@ def descriptor_previews(out_dir, descriptor_path) -> dict:
     written = {}
     panels = material_panels(descriptor_path, doc)
     if panels:
-        written["contact_sheet"] = plots.plot_contact_sheet(out / "contact_sheet.png", panels,
-                                                            title=f"{doc['name']}: baked maps")
+        written["contact_sheet"] = plots.plot_contact_sheet(
+            out / "contact_sheet.png", panels, title=f"{doc['name']}: baked maps"
+        )
     spectra = texel_spectra(descriptor_path, doc)
     if spectra:
-        written["texel_spectra"] = plots.plot_reflectance_spectra(out / "texel_spectra.png", *spectra,
-                                                                  title="baked albedo A at three texels")
+        written["texel_spectra"] = plots.plot_reflectance_spectra(
+            out / "texel_spectra.png", *spectra, title="baked albedo A at three texels"
+        )
     return written
 
 
-def table_previews(out_dir, table, x_axis: str, y_axis: str, quantity: str = "albedo_multiple",
-                   band_nm: float = 550.0) -> dict:
+def table_previews(
+    out_dir, table, x_axis: str, y_axis: str, quantity: str = "albedo_multiple", band_nm: float = 550.0
+) -> dict:
     """A heat map of ``quantity`` over two table axes (the others at their middle grid value)."""
     out = Path(out_dir)
-    path = plots.plot_table_slice(out / f"table_{quantity}_{x_axis}_{y_axis}.png", table, quantity, x_axis, y_axis,
-                                  band_nm=band_nm)
+    path = plots.plot_table_slice(
+        out / f"table_{quantity}_{x_axis}_{y_axis}.png", table, quantity, x_axis, y_axis, band_nm=band_nm
+    )
     return {"table_slice": path}
 
 
-def write_previews(out_dir, *, presets=(), descriptor=None, table=None, slice_axes=None,
-                   quantity: str = "albedo_multiple", band_nm: float = 550.0, method: str = "auto",
-                   bands=None, photons: int = 20_000, seed: int = 0, progress=None) -> dict:
+def write_previews(
+    out_dir,
+    *,
+    presets=(),
+    descriptor=None,
+    table=None,
+    slice_axes=None,
+    quantity: str = "albedo_multiple",
+    band_nm: float = 550.0,
+    method: str = "auto",
+    bands=None,
+    photons: int = 20_000,
+    seed: int = 0,
+    progress=None,
+) -> dict:
     """Write every preview that the given inputs allow into ``out_dir``; return name -> path.
 
     ``presets`` -> spectra, profiles, patch (:func:`preset_previews`); ``descriptor`` -> contact sheet and
@@ -130,8 +154,11 @@ def write_previews(out_dir, *, presets=(), descriptor=None, table=None, slice_ax
         raise ParameterError("nothing to preview: give presets, a material descriptor or a table")
     written = {}
     if presets:
-        written.update(preset_previews(out_dir, presets, bands=bands, photons=photons, seed=seed, method=method,
-                                       progress=progress))
+        written.update(
+            preset_previews(
+                out_dir, presets, bands=bands, photons=photons, seed=seed, method=method, progress=progress
+            )
+        )
     if descriptor is not None:
         written.update(descriptor_previews(out_dir, descriptor))
     if table is not None:

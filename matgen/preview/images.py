@@ -49,6 +49,7 @@ def working_to_display(rgb, working_space: str = "ACEScg", exposure_stops: float
     References
     ----------
     [colour2024] (``RGB_to_RGB``, Bradford adaptation); [IEC1999srgb] (sRGB encoding).
+
     """
     colour = _colour()
     arr = np.asarray(rgb, dtype=np.float64)
@@ -57,10 +58,18 @@ def working_to_display(rgb, working_space: str = "ACEScg", exposure_stops: float
     try:
         src = colour.RGB_COLOURSPACES[working_space]
     except KeyError:
-        raise ParameterError(f"unknown working space {working_space!r}; e.g. 'ACEScg', 'ITU-R BT.709'") from None
+        raise ParameterError(
+            f"unknown working space {working_space!r}; e.g. 'ACEScg', 'ITU-R BT.709'"
+        ) from None
     dst = colour.RGB_COLOURSPACES["sRGB"]
-    lin = colour.RGB_to_RGB(np.nan_to_num(arr, nan=0.0), src, dst, chromatic_adaptation_transform="Bradford",
-                            apply_cctf_decoding=False, apply_cctf_encoding=False)
+    lin = colour.RGB_to_RGB(
+        np.nan_to_num(arr, nan=0.0),
+        src,
+        dst,
+        chromatic_adaptation_transform="Bradford",
+        apply_cctf_decoding=False,
+        apply_cctf_encoding=False,
+    )
     lin = np.clip(lin * 2.0 ** float(exposure_stops), 0.0, 1.0)
     return np.clip(colour.cctf_encoding(lin, function="sRGB"), 0.0, 1.0)
 
@@ -79,6 +88,7 @@ def read_texture(path) -> tuple[np.ndarray, list]:
     ------
     ImageError
         Naming the path when the file cannot be opened or read.
+
     """
     import OpenImageIO as oiio
 
@@ -127,11 +137,16 @@ def write_png(path, display) -> Path:
 
 
 def image_check(path) -> dict:
-    """Size and spread of a preview image: ``width``, ``height``, ``channels``, ``variance`` (of [0, 1] values).
+    """Size and spread of a preview image: ``width``, ``height``, ``channels``, ``variance`` (of [0, 1]).
 
     ``blank`` is True when the variance is below :data:`BLANK_VARIANCE_FLOOR` (a flat image).
     """
     arr, _ = read_texture(path)
     var = float(np.var(arr[..., :3] if arr.shape[2] >= 3 else arr))
-    return {"width": int(arr.shape[1]), "height": int(arr.shape[0]), "channels": int(arr.shape[2]),
-            "variance": var, "blank": bool(var < BLANK_VARIANCE_FLOOR)}
+    return {
+        "width": int(arr.shape[1]),
+        "height": int(arr.shape[0]),
+        "channels": int(arr.shape[2]),
+        "variance": var,
+        "blank": bool(var < BLANK_VARIANCE_FLOOR),
+    }

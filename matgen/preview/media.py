@@ -20,6 +20,7 @@ from matgen.transport.stack import Stack
 #: Optical thickness of the deep-slab (half-space stand-in) cases, at least, in mean free paths.
 DEEP_DEPTH_MFP = 40.0
 
+
 @dataclass(frozen=True)
 class ExportedMedium:
     """Per-band parameters of a homogeneous medium as a spectral path tracer receives them.
@@ -123,6 +124,7 @@ def effective_anisotropy(stack: Stack, absorbed) -> float:
     -------
     float
         Effective anisotropy.
+
     """
     mu_a = np.asarray(stack.mu_a, np.float64)
     ab = np.asarray(absorbed, np.float64)
@@ -143,6 +145,7 @@ def skin_summary(runs: SkinRuns) -> dict:
     -------
     dict of ndarray
         The table quantities, leading axis of length 1.
+
     """
     try:
         from matgen.fit.summary import summarize
@@ -155,15 +158,18 @@ def skin_summary(runs: SkinRuns) -> dict:
     radial_se = np.array([[r.radial_stderr_per_mm2 for r in res]])
     g_eff = np.array([[effective_anisotropy(st, r.absorbed) for st, r in zip(stacks, res, strict=True)]])
     n_top = float(np.mean([st.n[0] for st in stacks]))
-    return dict(summarize(runs.bands, res[0].ring_edges_mm, albedo, albedo_se, radial, radial_se, g_eff, n_top))
+    return dict(
+        summarize(runs.bands, res[0].ring_edges_mm, albedo, albedo_se, radial, radial_se, g_eff, n_top)
+    )
 
 
 #: Scene scale used when reading back the exported spectral medium (a centimetre scene).
 EXPORT_METRES_PER_SCENE_UNIT = 0.01
 
 
-def exported_medium(summary: dict, bands: BandSet,
-                    metres_per_scene_unit: float = EXPORT_METRES_PER_SCENE_UNIT) -> ExportedMedium:
+def exported_medium(
+    summary: dict, bands: BandSet, metres_per_scene_unit: float = EXPORT_METRES_PER_SCENE_UNIT
+) -> ExportedMedium:
     """The raw spectral-medium target's inputs for a summary, read back into mm and 1/mm.
 
     Goes through ``matgen.fit.targets.TARGETS["spectral_medium"].to_inputs`` so that what is validated is
@@ -183,12 +189,13 @@ def exported_medium(summary: dict, bands: BandSet,
     sigma_t = per_scene_unit / scene_units_to_mm(1.0, metres_per_scene_unit)
     g = np.broadcast_to(np.asarray(inputs["g"], dtype=np.float64).reshape(-1), albedo.shape).copy()
     ior = float(np.asarray(inputs["eta"], dtype=np.float64).reshape(-1)[0])
-    return ExportedMedium(bands, albedo, sigma_t, g, ior,
-                          f"spectral_medium inputs, {metres_per_scene_unit:g} m per scene unit")
+    return ExportedMedium(
+        bands, albedo, sigma_t, g, ior, f"spectral_medium inputs, {metres_per_scene_unit:g} m per scene unit"
+    )
 
 
 def deep_depth_mfp(albedo: float, g: float) -> float:
-    """Depth (mean free paths) of a deep slab standing in for a half-space: 40, or 10 diffusion lengths if more.
+    """Depth (mean free paths) of a deep slab standing for a half-space: 40, or 10 diffusion lengths if more.
 
     The diffusion length in mean free paths is 1 / sqrt(3 (1 - a)(1 - a g)) (diffusion theory,
     [Farrell1992]); capped at 400 so that renders stay affordable. matgen's transmittance is printed beside.

@@ -1,4 +1,4 @@
-"""Plots a person reads: reflectance spectra, radial profiles, table slices, contact sheets, validation figures.
+"""Plots a person reads: reflectance spectra, radial profiles, table slices, contact sheets, validation.
 
 Units: wavelength in nm, radius in mm, profiles in mm^-2, reflectance dimensionless; every axis is labelled
 with its unit. Figures are drawn with matplotlib's non-interactive Agg backend and written as PNG files
@@ -14,8 +14,11 @@ import numpy as np
 from matgen.errors import ParameterError
 
 #: Spectral regions shaded behind spectra, in nm: (label, lower, upper, colour).
-REGIONS_NM = (("UV", 280.0, 400.0, "#b9a7e6"), ("visible", 400.0, 700.0, "#f3e6b3"),
-              ("near IR", 700.0, 1100.0, "#e8b7a7"))
+REGIONS_NM = (
+    ("UV", 280.0, 400.0, "#b9a7e6"),
+    ("visible", 400.0, 700.0, "#f3e6b3"),
+    ("near IR", 700.0, 1100.0, "#e8b7a7"),
+)
 
 #: Figure resolution in dots per inch.
 DPI = 100
@@ -41,19 +44,34 @@ def _save(fig, path) -> Path:
 
 
 def shade_regions(ax, lower_nm: float, upper_nm: float) -> None:
-    """Shade the UV, visible and near-IR regions (:data:`REGIONS_NM`) between ``lower_nm`` and ``upper_nm``."""
+    """Shade the UV, visible and near-IR regions (:data:`REGIONS_NM`) from ``lower_nm`` to ``upper_nm``."""
     for label, lo, hi, colour in REGIONS_NM:
         lo, hi = max(lo, lower_nm), min(hi, upper_nm)
         if hi <= lo:
             continue
         ax.axvspan(lo, hi, color=colour, alpha=0.35, lw=0, zorder=0)
-        ax.text(0.5 * (lo + hi), 0.98, label, transform=ax.get_xaxis_transform(), ha="center", va="top",
-                fontsize=8, color="#444444")
+        ax.text(
+            0.5 * (lo + hi),
+            0.98,
+            label,
+            transform=ax.get_xaxis_transform(),
+            ha="center",
+            va="top",
+            fontsize=8,
+            color="#444444",
+        )
 
 
-def plot_reflectance_spectra(path, bands, curves: dict, stderr: dict | None = None, *,
-                             title: str = "Total diffuse reflectance", ylabel: str = "reflectance A (1)",
-                             size_px=(900, 500)) -> Path:
+def plot_reflectance_spectra(
+    path,
+    bands,
+    curves: dict,
+    stderr: dict | None = None,
+    *,
+    title: str = "Total diffuse reflectance",
+    ylabel: str = "reflectance A (1)",
+    size_px=(900, 500),
+) -> Path:
     """Reflectance spectra (one curve per parameter set or texel) over the bands, UV / visible / IR shaded.
 
     Parameters
@@ -70,6 +88,7 @@ def plot_reflectance_spectra(path, bands, curves: dict, stderr: dict | None = No
         Figure title and y label.
     size_px : (int, int)
         Image width and height in pixels.
+
     """
     if not curves:
         raise ParameterError("plot_reflectance_spectra needs at least one curve")
@@ -98,9 +117,16 @@ def plot_reflectance_spectra(path, bands, curves: dict, stderr: dict | None = No
     return _save(fig, path)
 
 
-def plot_radial_profiles(path, ring_edges_mm, profiles: dict, stderr: dict | None = None,
-                         models: dict | None = None, *, title: str = "Radial reflectance profiles",
-                         size_px=(900, 550)) -> Path:
+def plot_radial_profiles(
+    path,
+    ring_edges_mm,
+    profiles: dict,
+    stderr: dict | None = None,
+    models: dict | None = None,
+    *,
+    title: str = "Radial reflectance profiles",
+    size_px=(900, 550),
+) -> Path:
     """Radial reflectance profiles on log-log axes, with fitted models overlaid.
 
     Parameters
@@ -115,6 +141,7 @@ def plot_radial_profiles(path, ring_edges_mm, profiles: dict, stderr: dict | Non
         Standard errors (error bars of +-2 se).
     models : dict of str -> (label, ndarray (R,)), optional
         Same keys as ``profiles`` -> (model name, model ring averages in mm^-2), drawn as lines.
+
     """
     from matgen.transport.results import ring_centres_mm
 
@@ -128,8 +155,15 @@ def plot_radial_profiles(path, ring_edges_mm, profiles: dict, stderr: dict | Non
         ok = y > 0
         if stderr and label in stderr:
             e = 2.0 * np.asarray(stderr[label], dtype=np.float64)
-            container = ax.errorbar(r[ok], y[ok], yerr=np.minimum(e[ok], 0.999 * y[ok]), fmt="o", ms=3,
-                                    capsize=0, label=f"{label} (Monte Carlo)")
+            container = ax.errorbar(
+                r[ok],
+                y[ok],
+                yerr=np.minimum(e[ok], 0.999 * y[ok]),
+                fmt="o",
+                ms=3,
+                capsize=0,
+                label=f"{label} (Monte Carlo)",
+            )
             colour = container[0].get_color()
         else:
             (pts,) = ax.plot(r[ok], y[ok], "o", ms=3, label=f"{label} (Monte Carlo)")
@@ -149,9 +183,19 @@ def plot_radial_profiles(path, ring_edges_mm, profiles: dict, stderr: dict | Non
     return _save(fig, path)
 
 
-def plot_table_slice(path, table, quantity: str, x_axis: str, y_axis: str, *, fixed: dict | None = None,
-                     band_nm: float | None = None, channel: int = 0, samples: int = 64,
-                     size_px=(700, 560)) -> Path:
+def plot_table_slice(
+    path,
+    table,
+    quantity: str,
+    x_axis: str,
+    y_axis: str,
+    *,
+    fixed: dict | None = None,
+    band_nm: float | None = None,
+    channel: int = 0,
+    samples: int = 64,
+    size_px=(700, 560),
+) -> Path:
     """A table quantity over two axes as a heat map, the other axes held fixed (interpolated lookup).
 
     Parameters
@@ -171,6 +215,7 @@ def plot_table_slice(path, table, quantity: str, x_axis: str, y_axis: str, *, fi
         For RGB or scalar quantities: the channel index.
     samples : int
         Samples per axis of the heat map.
+
     """
     names = table.axis_names
     for a in (x_axis, y_axis):
@@ -187,7 +232,9 @@ def plot_table_slice(path, table, quantity: str, x_axis: str, y_axis: str, *, fi
     for name in (x_axis, y_axis):
         ax_ = axes[name]
         lo, hi = float(ax_.values[0]), float(ax_.values[-1])
-        grids[name] = np.geomspace(lo, hi, samples) if ax_.spacing == "log" and lo > 0 else np.linspace(lo, hi, samples)
+        grids[name] = (
+            np.geomspace(lo, hi, samples) if ax_.spacing == "log" and lo > 0 else np.linspace(lo, hi, samples)
+        )
     xx, yy = np.meshgrid(grids[x_axis], grids[y_axis])
     for name in names:
         if name == x_axis:
@@ -243,14 +290,16 @@ def plot_contact_sheet(path, panels: list, *, title: str = "", columns: int = 3,
         Panels per row.
     panel_px : int
         Size of one panel in pixels.
+
     """
     if not panels:
         raise ParameterError("the contact sheet needs at least one panel")
     plt = _plt()
     cols = min(columns, len(panels))
     rows = (len(panels) + cols - 1) // cols
-    fig, axs = plt.subplots(rows, cols, figsize=(cols * panel_px / DPI, rows * (panel_px + 40) / DPI), dpi=DPI,
-                            squeeze=False)
+    fig, axs = plt.subplots(
+        rows, cols, figsize=(cols * panel_px / DPI, rows * (panel_px + 40) / DPI), dpi=DPI, squeeze=False
+    )
     for i, ax in enumerate(axs.ravel()):
         if i >= len(panels):
             ax.axis("off")
@@ -261,7 +310,7 @@ def plot_contact_sheet(path, panels: list, *, title: str = "", columns: int = 3,
         else:
             v = np.asarray(p["values"], dtype=np.float64)
             finite = v[np.isfinite(v)]
-            lo, hi = (np.percentile(finite, [1, 99]) if finite.size else (0.0, 1.0))
+            lo, hi = np.percentile(finite, [1, 99]) if finite.size else (0.0, 1.0)
             title = p["title"]
             if hi <= lo:  # a flat map: show it on a unit-wide scale and say so
                 title = f"{title} (all {lo:g})"
@@ -287,13 +336,15 @@ def plot_validation(path, comparisons: list, *, size_px=(900, 520)) -> Path:
         PNG to write.
     comparisons : list of dict
         ``Comparison.to_dict()`` forms (``matgen.preview.validate``).
+
     """
     if not comparisons:
         raise ParameterError("plot_validation needs at least one comparison")
     plt = _plt()
     n = len(comparisons)
-    fig, axs = plt.subplots(n, 1, figsize=(size_px[0] / DPI, max(size_px[1], 190 * n) / DPI), dpi=DPI,
-                            squeeze=False)
+    fig, axs = plt.subplots(
+        n, 1, figsize=(size_px[0] / DPI, max(size_px[1], 190 * n) / DPI), dpi=DPI, squeeze=False
+    )
     for ax, comp in zip(axs[:, 0], comparisons, strict=True):
         rows = comp["rows"]
         x = np.arange(len(rows))

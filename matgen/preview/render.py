@@ -72,6 +72,7 @@ class PatchMedium:
         Boundary refractive index.
     label : str
         What it is (preset, texel).
+
     """
 
     bands: object
@@ -86,14 +87,24 @@ class PatchMedium:
     @classmethod
     def from_quantities(cls, bands, quantities: dict, index: int = 0, label: str = "") -> PatchMedium:
         """From table quantities (``summarize`` output or a table lookup): row ``index`` of each array."""
+
         def row(name):
             try:
                 return np.asarray(quantities[name], dtype=np.float64)[index].reshape(-1)
             except KeyError:
                 raise ParameterError(f"the preview needs table quantity {name!r}") from None
+
         ior = float(row("ior")[0]) if "ior" in quantities else 1.4
-        return cls(bands, row("albedo_multiple"), row("shape_distance_mm"), row("albedo_single"),
-                   row("mean_free_path_mm"), row("anisotropy"), ior, label)
+        return cls(
+            bands,
+            row("albedo_multiple"),
+            row("shape_distance_mm"),
+            row("albedo_single"),
+            row("mean_free_path_mm"),
+            row("anisotropy"),
+            ior,
+            label,
+        )
 
 
 def disc_kernel(medium: PatchMedium, field_mm: float, pixels: int) -> np.ndarray:
@@ -129,14 +140,18 @@ def disc_kernel(medium: PatchMedium, field_mm: float, pixels: int) -> np.ndarray
 def light_irradiance(radius_mm, light_height_mm: float = LIGHT_HEIGHT_MM):
     """Irradiance on the patch from a unit point light of intensity h^2 at height h: (1 + (r/h)^2)^(-3/2).
 
-    Inverse-square law with the cosine of incidence (E = I cos(theta) / distance^2). Dimensionless (1 at r = 0).
+    Inverse-square law with the cosine of incidence (E = I cos(theta) / distance^2); 1 at r = 0.
     """
     r = np.asarray(radius_mm, dtype=np.float64)
     return (1.0 + (r / light_height_mm) ** 2) ** -1.5
 
 
-def builtin_band_images(medium: PatchMedium, field_mm: float = FIELD_MM, pixels: int = PIXELS,
-                        light_height_mm: float = LIGHT_HEIGHT_MM) -> np.ndarray:
+def builtin_band_images(
+    medium: PatchMedium,
+    field_mm: float = FIELD_MM,
+    pixels: int = PIXELS,
+    light_height_mm: float = LIGHT_HEIGHT_MM,
+) -> np.ndarray:
     """Exitant diffuse reflectance (B, P, P) of the patch under the small light (FFT convolution).
 
     Source: the fitted profile of [Christensen2015]; the convolution of irradiance with a radially symmetric
@@ -155,11 +170,16 @@ def builtin_band_images(medium: PatchMedium, field_mm: float = FIELD_MM, pixels:
     f_light = np.fft.rfft2(light, s=(size, size))
     out = np.fft.irfft2(np.fft.rfft2(kern, s=(size, size)) * f_light[None], s=(size, size))
     h = n // 2
-    return np.clip(out[:, h:h + n, h:h + n], 0.0, None)
+    return np.clip(out[:, h : h + n, h : h + n], 0.0, None)
 
 
-def builtin_views(medium: PatchMedium, passes=DEFAULT_PASSES, working_space: str = "ACEScg",
-                  illuminant: str = "D65", **kwargs) -> dict:
+def builtin_views(
+    medium: PatchMedium,
+    passes=DEFAULT_PASSES,
+    working_space: str = "ACEScg",
+    illuminant: str = "D65",
+    **kwargs,
+) -> dict:
     """Display images (P, P, 3) of the built-in approximation: ``visible`` and one per pass."""
     from matgen.color import channel_weights, pass_weights
     from matgen.preview.images import linear_to_display, working_to_display
@@ -168,11 +188,12 @@ def builtin_views(medium: PatchMedium, passes=DEFAULT_PASSES, working_space: str
     views = {}
     w = channel_weights(medium.bands, working_space, illuminant)
     rgb = np.tensordot(imgs, w.T, axes=([0], [0]))
-    views["visible"] = working_to_display(rgb, "ACEScg" if working_space.lower() == "acescg" else working_space,
-                                          EXPOSURE_STOPS)
+    views["visible"] = working_to_display(
+        rgb, "ACEScg" if working_space.lower() == "acescg" else working_space, EXPOSURE_STOPS
+    )
     for name in passes:
         pw = pass_weights(name, medium.bands)
-        grey = linear_to_display(np.tensordot(imgs, pw, axes=([0], [0])) * 2.0 ** EXPOSURE_STOPS)
+        grey = linear_to_display(np.tensordot(imgs, pw, axes=([0], [0])) * 2.0**EXPOSURE_STOPS)
         views[name] = np.repeat(grey[..., None], 3, axis=2)
     return views
 
@@ -187,7 +208,9 @@ def _irregular(bands, values) -> dict:
     return {"type": "irregular", "wavelengths": wl, "values": vals}
 
 
-def _tracer_scene(medium: PatchMedium, film: dict, field_mm: float, light_height_mm: float, spp: int, seed: int):
+def _tracer_scene(
+    medium: PatchMedium, film: dict, field_mm: float, light_height_mm: float, spp: int, seed: int
+):
     from matgen.preview import tracer
 
     mi = tracer.mitsuba()
@@ -195,33 +218,66 @@ def _tracer_scene(medium: PatchMedium, film: dict, field_mm: float, light_height
     mfp_max = float(np.max(medium.mean_free_path_mm))
     depth = float(min(max(40.0 * mfp_max, 10.0), 60.0))
     sigma_t = 1.0 / np.maximum(medium.mean_free_path_mm, 1e-6)
-    med = {"type": "homogeneous", "albedo": _irregular(medium.bands, np.clip(medium.albedo_single, 0, 1)),
-           "sigma_t": _irregular(medium.bands, sigma_t), "scale": 1.0,
-           "phase": {"type": "hg", "g": float(np.mean(medium.anisotropy))}}
+    med = {
+        "type": "homogeneous",
+        "albedo": _irregular(medium.bands, np.clip(medium.albedo_single, 0, 1)),
+        "sigma_t": _irregular(medium.bands, sigma_t),
+        "scale": 1.0,
+        "phase": {"type": "hg", "g": float(np.mean(medium.anisotropy))},
+    }
     half = 400.0
     scene = {
         "type": "scene",
         "integrator": {"type": "volpath", "max_depth": -1},
-        "sensor": {"type": "orthographic",
-                   "to_world": T().look_at(origin=[0, 0, 50.0], target=[0, 0, 0], up=[0, 1, 0])
-                   @ T().scale([field_mm / 2, field_mm / 2, 1.0]),
-                   "sampler": {"type": "independent", "sample_count": int(spp), "seed": int(seed)},
-                   "film": film},
-        "light": {"type": "point", "position": [0.0, 0.0, float(light_height_mm)],
-                  "intensity": {"type": "uniform", "value": float(light_height_mm) ** 2}},
-        "top": {"type": "rectangle", "to_world": T().scale([half, half, 1.0]),
-                "bsdf": {"type": "roughdielectric", "distribution": "ggx", "alpha": SURFACE_ROUGHNESS,
-                         "int_ior": float(medium.ior), "ext_ior": 1.0}, "interior": med},
-        "bottom": {"type": "rectangle", "to_world": T().translate([0, 0, -depth]) @ T().scale([half, half, 1.0]),
-                   "bsdf": {"type": "null"}, "exterior": med},
-        "floor": {"type": "rectangle", "to_world": T().translate([0, 0, -depth - 1.0]) @ T().scale([half, half, 1.0]),
-                  "bsdf": {"type": "diffuse", "reflectance": {"type": "uniform", "value": 0.0}}},
+        "sensor": {
+            "type": "orthographic",
+            "to_world": T().look_at(origin=[0, 0, 50.0], target=[0, 0, 0], up=[0, 1, 0])
+            @ T().scale([field_mm / 2, field_mm / 2, 1.0]),
+            "sampler": {"type": "independent", "sample_count": int(spp), "seed": int(seed)},
+            "film": film,
+        },
+        "light": {
+            "type": "point",
+            "position": [0.0, 0.0, float(light_height_mm)],
+            "intensity": {"type": "uniform", "value": float(light_height_mm) ** 2},
+        },
+        "top": {
+            "type": "rectangle",
+            "to_world": T().scale([half, half, 1.0]),
+            "bsdf": {
+                "type": "roughdielectric",
+                "distribution": "ggx",
+                "alpha": SURFACE_ROUGHNESS,
+                "int_ior": float(medium.ior),
+                "ext_ior": 1.0,
+            },
+            "interior": med,
+        },
+        "bottom": {
+            "type": "rectangle",
+            "to_world": T().translate([0, 0, -depth]) @ T().scale([half, half, 1.0]),
+            "bsdf": {"type": "null"},
+            "exterior": med,
+        },
+        "floor": {
+            "type": "rectangle",
+            "to_world": T().translate([0, 0, -depth - 1.0]) @ T().scale([half, half, 1.0]),
+            "bsdf": {"type": "diffuse", "reflectance": {"type": "uniform", "value": 0.0}},
+        },
     }
     return mi, mi.load_dict(scene)
 
 
-def tracer_views(medium: PatchMedium, passes=DEFAULT_PASSES, *, field_mm: float = FIELD_MM,
-                 light_height_mm: float = LIGHT_HEIGHT_MM, pixels: int = 96, spp: int = 16, seed: int = 0) -> dict:
+def tracer_views(
+    medium: PatchMedium,
+    passes=DEFAULT_PASSES,
+    *,
+    field_mm: float = FIELD_MM,
+    light_height_mm: float = LIGHT_HEIGHT_MM,
+    pixels: int = 96,
+    spp: int = 16,
+    seed: int = 0,
+) -> dict:
     """Display images (P, P, 3) rendered by Mitsuba 3: ``visible`` (RGB film) and one per pass (specfilm).
 
     Needs the table bands to cover the pass curves and 400-700 nm; the visible view uses Mitsuba's own
@@ -231,13 +287,20 @@ def tracer_views(medium: PatchMedium, passes=DEFAULT_PASSES, *, field_mm: float 
     from matgen.preview.images import linear_to_display
 
     views = {}
-    film = {"type": "hdrfilm", "width": pixels, "height": pixels, "pixel_format": "rgb",
-            "rfilter": {"type": "box"}}
+    film = {
+        "type": "hdrfilm",
+        "width": pixels,
+        "height": pixels,
+        "pixel_format": "rgb",
+        "rfilter": {"type": "box"},
+    }
     mi, scene = _tracer_scene(medium, film, field_mm, light_height_mm, spp, seed)
     rgb = np.asarray(mi.render(scene), dtype=np.float64)[..., :3]
     import colour
 
-    views["visible"] = np.clip(colour.cctf_encoding(np.clip(rgb * 2.0 ** EXPOSURE_STOPS, 0, 1), function="sRGB"), 0, 1)
+    views["visible"] = np.clip(
+        colour.cctf_encoding(np.clip(rgb * 2.0**EXPOSURE_STOPS, 0, 1), function="sRGB"), 0, 1
+    )
     for k, name in enumerate(passes):
         pw = pass_weights(name, medium.bands)
         keep = pw > 0
@@ -249,10 +312,16 @@ def tracer_views(medium: PatchMedium, passes=DEFAULT_PASSES, *, field_mm: float 
         else:
             band = _irregular(sub, pw[keep] / np.max(pw[keep]))
             norm = float(np.trapezoid(pw[keep] / np.max(pw[keep]), sub.centre_nm))
-        pfilm = {"type": "specfilm", "width": pixels, "height": pixels, "rfilter": {"type": "box"}, "band": band}
+        pfilm = {
+            "type": "specfilm",
+            "width": pixels,
+            "height": pixels,
+            "rfilter": {"type": "box"},
+            "band": band,
+        }
         mi, pscene = _tracer_scene(medium, pfilm, field_mm, light_height_mm, spp, seed + k + 1)
         grey = np.asarray(mi.render(pscene), dtype=np.float64)[..., 0] / norm
-        views[name] = np.repeat(linear_to_display(grey * 2.0 ** EXPOSURE_STOPS)[..., None], 3, axis=2)
+        views[name] = np.repeat(linear_to_display(grey * 2.0**EXPOSURE_STOPS)[..., None], 3, axis=2)
     return views
 
 
@@ -267,8 +336,16 @@ def tracer_available() -> bool:
     return True
 
 
-def patch_preview(path, medium: PatchMedium, *, method: str = "auto", passes=DEFAULT_PASSES,
-                  working_space: str = "ACEScg", illuminant: str = "D65", **kwargs) -> tuple:
+def patch_preview(
+    path,
+    medium: PatchMedium,
+    *,
+    method: str = "auto",
+    passes=DEFAULT_PASSES,
+    working_space: str = "ACEScg",
+    illuminant: str = "D65",
+    **kwargs,
+) -> tuple:
     """Write a PNG with the visible view and one view per pass of a flat patch lit by a small light.
 
     Parameters
@@ -288,6 +365,7 @@ def patch_preview(path, medium: PatchMedium, *, method: str = "auto", passes=DEF
     -------
     (Path, str)
         The file written and the method used (``"tracer"`` or ``"builtin"``).
+
     """
     from matgen.preview.plots import plot_contact_sheet
 
@@ -313,13 +391,19 @@ def patch_preview(path, medium: PatchMedium, *, method: str = "auto", passes=DEF
     else:
         views = builtin_views(medium, passes, working_space, illuminant, **kwargs)
         label = BUILTIN_LABEL
-    names = {"visible": "visible (sRGB view)", "uv365": "UV 365 nm pass", "nir850": "near-IR 850 nm pass",
-             "nir940": "near-IR 940 nm pass"}
+    names = {
+        "visible": "visible (sRGB view)",
+        "uv365": "UV 365 nm pass",
+        "nir850": "near-IR 850 nm pass",
+        "nir940": "near-IR 940 nm pass",
+    }
     panels = [{"title": names.get(k, k), "image": v} for k, v in views.items()]
     height = kwargs.get("light_height_mm", LIGHT_HEIGHT_MM)
     field_mm = kwargs.get("field_mm", FIELD_MM)
-    title = (f"{medium.label + ': ' if medium.label else ''}flat patch, small light {height:g} mm above, "
-             f"{field_mm:g} mm field, +{EXPOSURE_STOPS:g} stops\n{label}"
-             + (f"\n(passes {', '.join(left_out)} left out: not covered by the bands)" if left_out else ""))
+    title = (
+        f"{medium.label + ': ' if medium.label else ''}flat patch, small light {height:g} mm above, "
+        f"{field_mm:g} mm field, +{EXPOSURE_STOPS:g} stops\n{label}"
+        + (f"\n(passes {', '.join(left_out)} left out: not covered by the bands)" if left_out else "")
+    )
     out = plot_contact_sheet(path, panels, title=title, columns=len(panels), panel_px=280)
     return out, use

@@ -53,8 +53,10 @@ def png_data_uri(path) -> str:
 
 
 def _figure(path, caption: str) -> str:
-    return f'<figure><img src="{png_data_uri(path)}" alt="{_esc(caption)}"><figcaption>{_esc(caption)}' \
-           f"</figcaption></figure>"
+    return (
+        f'<figure><img src="{png_data_uri(path)}" alt="{_esc(caption)}"><figcaption>{_esc(caption)}'
+        f"</figcaption></figure>"
+    )
 
 
 def _table(headers, rows) -> str:
@@ -65,8 +67,11 @@ def _table(headers, rows) -> str:
 
 def _texture(folder: Path, doc: dict, quantity: str = None, kind: str = None, key: str = None):
     for t in doc["textures"]:
-        if (quantity is None or t["quantity"] == quantity) and (kind is None or t["kind"] == kind) \
-                and (key is None or t["key"] == key):
+        if (
+            (quantity is None or t["quantity"] == quantity)
+            and (kind is None or t["kind"] == kind)
+            and (key is None or t["key"] == key)
+        ):
             path = folder / t["path"]
             if path.is_file():
                 arr, names = images.read_texture(path)
@@ -77,7 +82,7 @@ def _texture(folder: Path, doc: dict, quantity: str = None, kind: str = None, ke
 def material_panels(descriptor_path, doc: dict) -> list:
     """Contact-sheet panels of a baked material (first UDIM tile where there are several).
 
-    The ACEScg (working-space) albedo through the sRGB view (:func:`matgen.preview.images.working_to_display`),
+    The ACEScg (working-space) albedo through the sRGB view (``matgen.preview.images.working_to_display``),
     each UV / IR pass map, the mean-free-path and radius maps with a colour bar and their unit, and the QA
     maps (texels clamped to the table, fit residual).
     """
@@ -87,16 +92,26 @@ def material_panels(descriptor_path, doc: dict) -> list:
     found = _texture(folder, doc, quantity="rgb_albedo_multiple", kind="rgb")
     if found:
         t, arr, _ = found
-        panels.append({"title": f"albedo A, {space} through sRGB view", "image": images.working_to_display(
-            arr[..., :3], space)})
+        panels.append(
+            {
+                "title": f"albedo A, {space} through sRGB view",
+                "image": images.working_to_display(arr[..., :3], space),
+            }
+        )
     for t in doc["textures"]:
         if t["kind"] == "pass":
             arr, _ = images.read_texture(folder / t["path"])
-            panels.append({"title": f"pass {t['quantity']}", "image": np.repeat(
-                images.linear_to_display(arr[..., 0])[..., None], 3, axis=2)})
-    for quantity, label in (("rgb_mean_free_path_mm", "mean free path (red channel)"),
-                            ("rgb_shape_distance_mm", "shape distance d (red channel)"),
-                            ("subsurface_radius", "OpenPBR subsurface_radius")):
+            panels.append(
+                {
+                    "title": f"pass {t['quantity']}",
+                    "image": np.repeat(images.linear_to_display(arr[..., 0])[..., None], 3, axis=2),
+                }
+            )
+    for quantity, label in (
+        ("rgb_mean_free_path_mm", "mean free path (red channel)"),
+        ("rgb_shape_distance_mm", "shape distance d (red channel)"),
+        ("subsurface_radius", "OpenPBR subsurface_radius"),
+    ):
         found = _texture(folder, doc, quantity=quantity)
         if found:
             t, arr, _ = found
@@ -116,6 +131,7 @@ def texel_spectra(descriptor_path, doc: dict, n_texels: int = 3):
     Returns
     -------
     (BandSet, dict of str -> ndarray (B,)) or None when the bake wrote no spectral albedo stack.
+
     """
     from matgen.spectra.bands import BandSet
 
@@ -136,11 +152,15 @@ def texel_spectra(descriptor_path, doc: dict, n_texels: int = 3):
 
 def _qa_rows(descriptor_path, doc: dict, inspect) -> list:
     s = doc.get("statistics", {})
-    rows = [["texels", _esc(s.get("texels", "?"))],
-            ["texels clamped to the table's range", _esc(s.get("table_clamped_texels", "?"))],
-            ["texels clamped by the map encoding", _esc(s.get("encoding_clamped_texels", "?"))],
-            ["files present / missing / modified",
-             _esc(f"{inspect.checked} / {len(inspect.missing)} / {len(inspect.modified)}")]]
+    rows = [
+        ["texels", _esc(s.get("texels", "?"))],
+        ["texels clamped to the table's range", _esc(s.get("table_clamped_texels", "?"))],
+        ["texels clamped by the map encoding", _esc(s.get("encoding_clamped_texels", "?"))],
+        [
+            "files present / missing / modified",
+            _esc(f"{inspect.checked} / {len(inspect.missing)} / {len(inspect.modified)}"),
+        ],
+    ]
     found = _texture(Path(descriptor_path).parent, doc, kind="qa")
     if found:
         _, arr, names = found
@@ -148,8 +168,12 @@ def _qa_rows(descriptor_path, doc: dict, inspect) -> list:
             r = arr[..., names.index("fit_residual")].astype(np.float64).ravel()
             r = r[np.isfinite(r)]
             if r.size:
-                rows.append(["fit residual (relative RMS): median / 95th percentile / max",
-                             _esc(f"{np.median(r):.4f} / {np.percentile(r, 95):.4f} / {r.max():.4f}")])
+                rows.append(
+                    [
+                        "fit residual (relative RMS): median / 95th percentile / max",
+                        _esc(f"{np.median(r):.4f} / {np.percentile(r, 95):.4f} / {r.max():.4f}"),
+                    ]
+                )
     return rows
 
 
@@ -158,24 +182,38 @@ def _validation_section(validation: dict, tmp: Path) -> str:
     verdict = "PASS" if validation.get("passed") else "FAIL"
     cls = "pass" if validation.get("passed") else "fail"
     mode = "quick" if validation.get("quick") else "full"
-    parts.append(f'<p>Validation against the spectral path tracer ({mode} run): <span class="{cls}">{verdict}</span>'
-                 f" in {validation.get('seconds', 0):.0f} s. A row fails when |difference| exceeds 3 combined "
-                 f"standard errors plus the stated allowance {_esc(validation.get('allowances', {}))}.</p>")
+    parts.append(
+        f'<p>Validation against the spectral path tracer ({mode} run): <span class="{cls}">{verdict}</span>'
+        f" in {validation.get('seconds', 0):.0f} s. A row fails when |difference| exceeds 3 combined "
+        f"standard errors plus the stated allowance {_esc(validation.get('allowances', {}))}.</p>"
+    )
     comps = validation.get("comparisons", [])
     if comps:
         fig = plots.plot_validation(tmp / "validation.png", comps)
         parts.append(_figure(fig, "difference per case with its bound (green band)"))
     for comp in comps:
         cls = "pass" if comp["passed"] else "fail"
-        parts.append(f"<h3>{_esc(comp['title'])} <span class='{cls}'>{'PASS' if comp['passed'] else 'FAIL'}</span>"
-                     f"</h3><p class='note'>tested: {_esc(comp['tested_label'])}; reference: "
-                     f"{_esc(comp['reference_label'])}</p>")
-        rows = [[_esc(r["label"]), f"{r['tested']['value']:.5f} ± {r['tested']['stderr']:.5f}",
-                 f"{r['reference']['value']:.5f} ± {r['reference']['stderr']:.5f}", f"{r['difference']:+.5f}",
-                 f"{r['combined_stderr']:.5f}", f"{r['bound']:.5f}",
-                 "<span class='pass'>yes</span>" if r["passed"] else "<span class='fail'>NO</span>", _esc(r["note"])]
-                for r in comp["rows"]]
-        parts.append(_table(["case", "tested", "reference", "difference", "combined se", "bound", "ok", "note"], rows))
+        parts.append(
+            f"<h3>{_esc(comp['title'])} <span class='{cls}'>{'PASS' if comp['passed'] else 'FAIL'}</span>"
+            f"</h3><p class='note'>tested: {_esc(comp['tested_label'])}; reference: "
+            f"{_esc(comp['reference_label'])}</p>"
+        )
+        rows = [
+            [
+                _esc(r["label"]),
+                f"{r['tested']['value']:.5f} ± {r['tested']['stderr']:.5f}",
+                f"{r['reference']['value']:.5f} ± {r['reference']['stderr']:.5f}",
+                f"{r['difference']:+.5f}",
+                f"{r['combined_stderr']:.5f}",
+                f"{r['bound']:.5f}",
+                "<span class='pass'>yes</span>" if r["passed"] else "<span class='fail'>NO</span>",
+                _esc(r["note"]),
+            ]
+            for r in comp["rows"]
+        ]
+        parts.append(
+            _table(["case", "tested", "reference", "difference", "combined se", "bound", "ok", "note"], rows)
+        )
     for name, why in validation.get("skipped", {}).items():
         parts.append(f"<p class='fail'>{_esc(name)}: not run ({_esc(why)})</p>")
     return "\n".join(parts)
@@ -200,6 +238,7 @@ def build_report(descriptor_path, out_path, *, validation=None, extra_figures=No
     -------
     Path
         The file written.
+
     """
     from matgen.export.descriptor import inspect_descriptor
     from matgen.fsutil import atomic_path
@@ -212,9 +251,12 @@ def build_report(descriptor_path, out_path, *, validation=None, extra_figures=No
             validation = json.loads(Path(validation).read_text())
         except (OSError, ValueError) as exc:
             raise DataError(f"cannot read validation results {validation}: {exc}") from exc
-    body = [f"<h1>matgen material report: {_esc(doc['name'])}</h1>",
-            "<p class='note'>For imagery only: these numbers are no basis for clinical, dosimetric or UV-exposure "
-            f"decisions. Report written by matgen {_esc(__version__)}.</p>"]
+    body = [
+        f"<h1>matgen material report: {_esc(doc['name'])}</h1>",
+        "<p class='note'>For imagery only: these numbers are no basis for clinical, dosimetric or "
+        "UV-exposure "
+        f"decisions. Report written by matgen {_esc(__version__)}.</p>",
+    ]
     with tempfile.TemporaryDirectory(prefix="matgen-report-") as tmpdir:
         tmp = Path(tmpdir)
         # inputs
@@ -223,45 +265,80 @@ def build_report(descriptor_path, out_path, *, validation=None, extra_figures=No
         rows = []
         for name, src in (cfg.get("parameters") or {}).items():
             rows.append([f"<code>{_esc(name)}</code>", _esc(json.dumps(src, sort_keys=True))])
-        body.append(_table(["parameter", "source (map / value, encoding, range)"], rows) if rows
-                    else "<p class='note'>The descriptor records no parameter sources.</p>")
+        body.append(
+            _table(["parameter", "source (map / value, encoding, range)"], rows)
+            if rows
+            else "<p class='note'>The descriptor records no parameter sources.</p>"
+        )
         units = doc["units"]
         sb = doc["bands"]["spectral_stacks"]["centre_nm"]
-        body.append(_table(["setting", "value"], [
-            ["working space / illuminant", _esc(f"{doc['working_space']} / {doc['illuminant']}")],
-            ["metres per scene unit", _esc(units["metres_per_scene_unit"])],
-            ["spectral-stack bands (nm)", _esc(f"{len(sb)} bands, {sb[0]:g}-{sb[-1]:g} nm")],
-            ["UDIM tiles", _esc(doc["udim_tiles"] or "single texture")],
-            ["renderer targets", _esc(", ".join(doc.get("targets", {})) or "none")]]))
+        body.append(
+            _table(
+                ["setting", "value"],
+                [
+                    ["working space / illuminant", _esc(f"{doc['working_space']} / {doc['illuminant']}")],
+                    ["metres per scene unit", _esc(units["metres_per_scene_unit"])],
+                    ["spectral-stack bands (nm)", _esc(f"{len(sb)} bands, {sb[0]:g}-{sb[-1]:g} nm")],
+                    ["UDIM tiles", _esc(doc["udim_tiles"] or "single texture")],
+                    ["renderer targets", _esc(", ".join(doc.get("targets", {})) or "none")],
+                ],
+            )
+        )
         # provenance
         prov = doc["provenance"]
         body.append("<h2>Provenance</h2>")
-        body.append(_table(["item", "value"], [
-            ["matgen version of the bake", _esc(prov.get("matgen_version"))],
-            ["table", _esc(prov.get("table", ""))], ["table SHA-256", f"<code>{_esc(prov.get('table_sha256'))}</code>"],
-            ["config SHA-256", f"<code>{_esc(prov.get('config_sha256'))}</code>"],
-            ["table manifest", f"<code>{_esc(json.dumps(prov.get('table_manifest', {}), sort_keys=True)[:1500])}"
-                               "</code>"]]))
-        tex_rows = [[_esc(t["key"]), _esc(t["kind"]), _esc(t["path"]), _esc(f"{t['width']}x{t['height']}"),
-                     _esc(len(t["channels"])), _esc(t["unit"]), f"<code>{_esc(t['sha256'][:16])}</code>"]
-                    for t in doc["textures"]]
-        body.append(_table(["texture", "kind", "path", "size", "channels", "unit", "SHA-256 (first 16)"], tex_rows))
+        body.append(
+            _table(
+                ["item", "value"],
+                [
+                    ["matgen version of the bake", _esc(prov.get("matgen_version"))],
+                    ["table", _esc(prov.get("table", ""))],
+                    ["table SHA-256", f"<code>{_esc(prov.get('table_sha256'))}</code>"],
+                    ["config SHA-256", f"<code>{_esc(prov.get('config_sha256'))}</code>"],
+                    [
+                        "table manifest",
+                        f"<code>{_esc(json.dumps(prov.get('table_manifest', {}), sort_keys=True)[:1500])}"
+                        "</code>",
+                    ],
+                ],
+            )
+        )
+        tex_rows = [
+            [
+                _esc(t["key"]),
+                _esc(t["kind"]),
+                _esc(t["path"]),
+                _esc(f"{t['width']}x{t['height']}"),
+                _esc(len(t["channels"])),
+                _esc(t["unit"]),
+                f"<code>{_esc(t['sha256'][:16])}</code>",
+            ]
+            for t in doc["textures"]
+        ]
+        body.append(
+            _table(["texture", "kind", "path", "size", "channels", "unit", "SHA-256 (first 16)"], tex_rows)
+        )
         # previews
         body.append("<h2>Previews</h2>")
         panels = material_panels(descriptor_path, doc)
         if panels:
             sheet = plots.plot_contact_sheet(tmp / "sheet.png", panels, title=f"{doc['name']}: baked maps")
-            body.append(_figure(sheet, "contact sheet of the baked maps; scalar maps with colour bars and units"))
+            body.append(
+                _figure(sheet, "contact sheet of the baked maps; scalar maps with colour bars and units")
+            )
         spectra = texel_spectra(descriptor_path, doc)
         if spectra:
             bands, curves = spectra
-            fig = plots.plot_reflectance_spectra(tmp / "spectra.png", bands, curves,
-                                                 title="baked albedo A at three texels")
+            fig = plots.plot_reflectance_spectra(
+                tmp / "spectra.png", bands, curves, title="baked albedo A at three texels"
+            )
             body.append(_figure(fig, "reflectance spectra of the baked spectral stack at three texels"))
             body.append(_patch_section(descriptor_path, doc, bands, curves, tmp))
         else:
-            body.append("<p class='note'>No spectral albedo stack in this bake: spectra and patch preview "
-                        "left out.</p>")
+            body.append(
+                "<p class='note'>No spectral albedo stack in this bake: spectra and patch preview "
+                "left out.</p>"
+            )
         for path, caption in extra_figures or []:
             body.append(_figure(path, caption))
         # QA
@@ -275,11 +352,15 @@ def build_report(descriptor_path, out_path, *, validation=None, extra_figures=No
         if validation:
             body.append(_validation_section(validation, tmp))
         else:
-            body.append("<p class='note'>No validation results attached: run <code>matgen validate --json "
-                        "validation.json</code> and pass <code>--validation validation.json</code>.</p>")
-        page = ("<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
-                f"<title>matgen report: {_esc(doc['name'])}</title><style>{_STYLE}</style></head>"
-                f"<body>{''.join(body)}<script>{_SCRIPT}</script></body></html>\n")
+            body.append(
+                "<p class='note'>No validation results attached: run <code>matgen validate --json "
+                "validation.json</code> and pass <code>--validation validation.json</code>.</p>"
+            )
+        page = (
+            "<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
+            f"<title>matgen report: {_esc(doc['name'])}</title><style>{_STYLE}</style></head>"
+            f"<body>{''.join(body)}<script>{_SCRIPT}</script></body></html>\n"
+        )
     out_path = Path(out_path)
     with atomic_path(out_path) as tmpfile:
         tmpfile.write_text(page, encoding="utf-8")
@@ -300,8 +381,10 @@ def _patch_section(descriptor_path, doc, bands, curves, tmp: Path) -> str:
     d_found = _texture(folder, doc, quantity="shape_distance_mm", kind="spectral")
     l_found = _texture(folder, doc, quantity="mean_free_path_mm", kind="spectral")
     if d_found is None and l_found is None:
-        return "<p class='note'>Patch preview left out: the bake wrote neither shape_distance_mm nor " \
-               "mean_free_path_mm spectral stacks.</p>"
+        return (
+            "<p class='note'>Patch preview left out: the bake wrote neither shape_distance_mm nor "
+            "mean_free_path_mm spectral stacks.</p>"
+        )
     _, arr_a, _ = _texture(folder, doc, quantity="albedo_multiple", kind="spectral")
     flat_a = arr_a.reshape(-1, arr_a.shape[2]).astype(np.float64)
     i = int(np.argsort(flat_a.mean(axis=1), kind="stable")[flat_a.shape[0] // 2])
@@ -317,8 +400,13 @@ def _patch_section(descriptor_path, doc, bands, curves, tmp: Path) -> str:
     nan = np.full(len(bands), np.nan)
     medium = PatchMedium(bands, np.asarray(a, np.float64), d, nan, nan, nan, 1.4, label)
     try:
-        path, used = patch_preview(tmp / "patch.png", medium, method="builtin", working_space=doc.get("working_space", "ACEScg"),
-                                   illuminant=doc.get("illuminant", "D65"))
+        path, used = patch_preview(
+            tmp / "patch.png",
+            medium,
+            method="builtin",
+            working_space=doc.get("working_space", "ACEScg"),
+            illuminant=doc.get("illuminant", "D65"),
+        )
     except (MatgenError, ImageError) as exc:
         return f"<p class='note'>Patch preview failed: {_esc(exc)}</p>"
     return _figure(path, f"flat patch under a small light, median texel, {used} method ({note}).")

@@ -1,4 +1,4 @@
-"""Scenes for an independent spectral path tracer (Mitsuba 3, ``scalar_spectral`` variant, CPU). Units: mm, 1/mm, nm.
+"""Scenes for an independent spectral path tracer (Mitsuba 3, ``scalar_spectral``, CPU). Units: mm, 1/mm, nm.
 
 Scene units are millimetres throughout, so ``sigma_t`` is given in 1/mm and thicknesses in mm.
 
@@ -78,7 +78,12 @@ def band_sensitivity(lower_nm: float, upper_nm: float) -> dict:
     """A flat band sensitivity from ``lower_nm`` to ``upper_nm`` (nm) as a Mitsuba ``regular`` spectrum."""
     if not (math.isfinite(lower_nm) and math.isfinite(upper_nm) and 0 < lower_nm < upper_nm):
         raise ParameterError(f"band [{lower_nm}, {upper_nm}] nm is invalid; need 0 < lower < upper")
-    return {"type": "regular", "wavelength_min": float(lower_nm), "wavelength_max": float(upper_nm), "values": "1, 1"}
+    return {
+        "type": "regular",
+        "wavelength_min": float(lower_nm),
+        "wavelength_max": float(upper_nm),
+        "values": "1, 1",
+    }
 
 
 @dataclass(frozen=True)
@@ -117,7 +122,9 @@ class TracerLayer:
 def layers_from_stack(stack: Stack) -> list[TracerLayer]:
     """The layers of a transport :class:`~matgen.transport.stack.Stack` (1/mm, mm) as tracer layers."""
     return [
-        TracerLayer.from_coefficients(stack.thickness_mm[i], stack.mu_a[i], stack.mu_s[i], stack.g[i], stack.n[i])
+        TracerLayer.from_coefficients(
+            stack.thickness_mm[i], stack.mu_a[i], stack.mu_s[i], stack.g[i], stack.n[i]
+        )
         for i in range(stack.n_layers)
     ]
 
@@ -149,7 +156,9 @@ def _check_layers(layers, n_above, n_below):
         if not (0.0 <= la.albedo <= 1.0):
             raise ParameterError(f"tracer layer {i}: albedo {la.albedo} must lie in [0, 1]")
         if not (la.sigma_t_per_mm >= 0 and math.isfinite(la.sigma_t_per_mm)):
-            raise ParameterError(f"tracer layer {i}: sigma_t {la.sigma_t_per_mm} 1/mm must be finite and >= 0")
+            raise ParameterError(
+                f"tracer layer {i}: sigma_t {la.sigma_t_per_mm} 1/mm must be finite and >= 0"
+            )
         if not (-1.0 < la.g < 1.0):
             raise ParameterError(f"tracer layer {i}: g {la.g} must lie in (-1, 1)")
         if not la.n >= 1.0:
@@ -203,8 +212,19 @@ def stack_interfaces(layers, n_above: float, n_below: float, half_width_mm: floa
     return shapes
 
 
-def reflectance_scene(layers, n_above, n_below, lower_nm, upper_nm, *, paths_per_pixel, seed=0,
-                      resolution=DEFAULT_RESOLUTION, rr_depth=DEFAULT_RR_DEPTH, empty=False):
+def reflectance_scene(
+    layers,
+    n_above,
+    n_below,
+    lower_nm,
+    upper_nm,
+    *,
+    paths_per_pixel,
+    seed=0,
+    resolution=DEFAULT_RESOLUTION,
+    rr_depth=DEFAULT_RR_DEPTH,
+    empty=False,
+):
     """The reciprocity scene (module docstring) for one band, as a loaded Mitsuba scene.
 
     Parameters
@@ -238,7 +258,9 @@ def reflectance_scene(layers, n_above, n_below, lower_nm, upper_nm, *, paths_per
         "integrator": {"type": "volpath", "max_depth": -1, "rr_depth": int(rr_depth)},
         "sensor": {
             "type": "orthographic",
-            "to_world": T().look_at(origin=[0.0, 0.0, total + 1.0], target=[0.0, 0.0, 0.0], up=[0.0, 1.0, 0.0])
+            "to_world": T().look_at(
+                origin=[0.0, 0.0, total + 1.0], target=[0.0, 0.0, 0.0], up=[0.0, 1.0, 0.0]
+            )
             @ T().scale([view_half, view_half, 1.0]),
             "sampler": {"type": "independent", "sample_count": int(paths_per_pixel), "seed": int(seed)},
             "film": {
@@ -261,8 +283,19 @@ def reflectance_scene(layers, n_above, n_below, lower_nm, upper_nm, *, paths_per
     return mi.load_dict(scene)
 
 
-def render_reflectance(layers, n_above, n_below, lower_nm, upper_nm, *, paths=262_144, seed=0,
-                       resolution=DEFAULT_RESOLUTION, rr_depth=DEFAULT_RR_DEPTH, empty=False) -> Estimate:
+def render_reflectance(
+    layers,
+    n_above,
+    n_below,
+    lower_nm,
+    upper_nm,
+    *,
+    paths=262_144,
+    seed=0,
+    resolution=DEFAULT_RESOLUTION,
+    rr_depth=DEFAULT_RR_DEPTH,
+    empty=False,
+) -> Estimate:
     """Total reflectance (specular + diffuse) of a layered slab at normal incidence, by the path tracer.
 
     Source: Mitsuba 3 [Jakob2022mitsuba3], scene of the module docstring (reciprocity, [Chandrasekhar1960]).
@@ -298,8 +331,18 @@ def render_reflectance(layers, n_above, n_below, lower_nm, upper_nm, *, paths=26
         raise ParameterError(f"paths {paths} is below one per pixel ({resolution * resolution})")
     mi = mitsuba()
     spp = int(math.ceil(paths / (resolution * resolution)))
-    scene = reflectance_scene(layers, n_above, n_below, lower_nm, upper_nm, paths_per_pixel=spp, seed=seed,
-                              resolution=resolution, rr_depth=rr_depth, empty=empty)
+    scene = reflectance_scene(
+        layers,
+        n_above,
+        n_below,
+        lower_nm,
+        upper_nm,
+        paths_per_pixel=spp,
+        seed=seed,
+        resolution=resolution,
+        rr_depth=rr_depth,
+        empty=empty,
+    )
     image = np.asarray(mi.render(scene), dtype=np.float64)[..., 0] / (float(upper_nm) - float(lower_nm))
     pixels = image.ravel()
     return Estimate(float(pixels.mean()), float(pixels.std(ddof=1) / math.sqrt(pixels.size)))
@@ -307,4 +350,6 @@ def render_reflectance(layers, n_above, n_below, lower_nm, upper_nm, *, paths=26
 
 def render_stack_reflectance(stack: Stack, lower_nm: float, upper_nm: float, **kwargs) -> Estimate:
     """:func:`render_reflectance` for a transport :class:`~matgen.transport.stack.Stack` (mm, 1/mm)."""
-    return render_reflectance(layers_from_stack(stack), stack.n_above, stack.n_below, lower_nm, upper_nm, **kwargs)
+    return render_reflectance(
+        layers_from_stack(stack), stack.n_above, stack.n_below, lower_nm, upper_nm, **kwargs
+    )

@@ -56,12 +56,14 @@ ALLOWANCE_COLLAPSE = 0.02
 #: Number of combined standard errors a difference may reach before the allowance.
 SIGMA_BOUND = 3.0
 
-#: Optical thickness of the slab cases in mean free paths (deep slabs: :func:`matgen.preview.media.deep_depth_mfp`).
+#: Optical thickness of the slab cases in mean free paths (deep slabs: ``media.deep_depth_mfp``).
 SLAB_DEPTH_MFP = 10.0
 
 #: Band centres (nm) of each comparison, quick and full runs.
-HOMOGENEOUS_BANDS_NM = {"quick": (300.0, 450.0, 600.0, 800.0, 1000.0),
-                        "full": (300.0, 365.0, 420.0, 500.0, 560.0, 650.0, 760.0, 850.0, 940.0, 1000.0)}
+HOMOGENEOUS_BANDS_NM = {
+    "quick": (300.0, 450.0, 600.0, 800.0, 1000.0),
+    "full": (300.0, 365.0, 420.0, 500.0, 560.0, 650.0, 760.0, 850.0, 940.0, 1000.0),
+}
 LAYERED_BANDS_NM = {"quick": (450.0, 600.0, 850.0), "full": (365.0, 450.0, 550.0, 600.0, 700.0, 850.0, 940.0)}
 
 #: Melanin settings of the layered comparisons: (label, epidermal melanin volume fraction).
@@ -78,8 +80,14 @@ MATGEN_PHOTONS = {"quick": 60_000, "full": 200_000}
 #: 300-1000 nm checks that the scene renders outside the visible range.
 HARNESS_MEDIA = {
     "quick": ((0.9, 0.0, 1.0, 10.0, 300.0), (0.99, 0.8, 1.4, 10.0, 550.0), (0.6, 0.9, 1.4, 20.0, 1000.0)),
-    "full": ((0.9, 0.0, 1.0, 10.0, 300.0), (0.99, 0.8, 1.4, 10.0, 550.0), (0.6, 0.9, 1.4, 20.0, 1000.0),
-             (0.3, 0.5, 1.0, 10.0, 365.0), (0.95, 0.0, 1.4, 10.0, 850.0), (0.999, 0.8, 1.4, 40.0, 700.0)),
+    "full": (
+        (0.9, 0.0, 1.0, 10.0, 300.0),
+        (0.99, 0.8, 1.4, 10.0, 550.0),
+        (0.6, 0.9, 1.4, 20.0, 1000.0),
+        (0.3, 0.5, 1.0, 10.0, 365.0),
+        (0.95, 0.0, 1.4, 10.0, 850.0),
+        (0.999, 0.8, 1.4, 40.0, 700.0),
+    ),
 }
 
 
@@ -94,7 +102,7 @@ class Row:
     wavelength_nm : float
         Band centre in nm (NaN where not a band).
     tested, reference : Estimate
-        Dimensionless reflectances (tested: matgen, or the tracer in the harness check) and their standard errors.
+        Dimensionless reflectances (tested: matgen, or the tracer in the harness check), standard errors.
     allowance : float
         Stated allowance (absolute) added to ``SIGMA_BOUND`` combined standard errors.
     note : str
@@ -183,8 +191,10 @@ class Comparison:
 
     def format_table(self) -> str:
         """Plain-text table: band, matgen, reference, difference, combined standard error, bound, verdict."""
-        head = (f"{self.title}\n  tested = {self.tested_label}; reference = {self.reference_label}\n"
-                f"  {'case':<34} {'tested':>16} {'reference':>16} {'diff':>9} {'comb.se':>8} {'bound':>8}  ok")
+        head = (
+            f"{self.title}\n  tested = {self.tested_label}; reference = {self.reference_label}\n"
+            f"  {'case':<34} {'tested':>16} {'reference':>16} {'diff':>9} {'comb.se':>8} {'bound':>8}  ok"
+        )
         lines = [head]
         for r in self.rows:
             lines.append(
@@ -193,8 +203,10 @@ class Comparison:
                 f"{r.combined_stderr:8.5f} {r.bound:8.5f}  {'yes' if r.passed else 'NO'}"
                 + (f"  ({r.note})" if r.note else "")
             )
-        lines.append(f"  -> {'PASS' if self.passed else 'FAIL'}: max |diff| {self.max_abs_difference:.5f}, "
-                     f"{len(self.rows)} rows, {self.seconds:.1f} s")
+        lines.append(
+            f"  -> {'PASS' if self.passed else 'FAIL'}: max |diff| {self.max_abs_difference:.5f}, "
+            f"{len(self.rows)} rows, {self.seconds:.1f} s"
+        )
         return "\n".join(lines)
 
     def to_dict(self) -> dict:
@@ -233,12 +245,13 @@ def tracer_label() -> str:
     return f"Mitsuba {tracer.mitsuba_version()} scalar_spectral volpath (reciprocity scene)"
 
 
-# --------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # 1. harness against adding-doubling
 
 
-def adding_doubling_reflectance(albedo: float, optical_thickness: float, g: float, n: float,
-                                quad_pts: int = 32) -> float:
+def adding_doubling_reflectance(
+    albedo: float, optical_thickness: float, g: float, n: float, quad_pts: int = 32
+) -> float:
     """Total reflectance (specular included) of a slab at normal incidence by adding-doubling.
 
     Source: iadpython ([Prahl1993iad]) ``Sample(a, b, g, n, n_above=1, n_below=1, quad_pts).rt()[0]``; 16-32
@@ -260,10 +273,12 @@ def adding_doubling_reflectance(albedo: float, optical_thickness: float, g: floa
     try:
         import iadpython
     except ImportError as exc:
-        raise DependencyError('the harness check needs iadpython; install it with: pip install "matgen[test]"') \
-            from exc
-    sample = iadpython.Sample(a=albedo, b=optical_thickness, g=g, n=n, n_above=1.0, n_below=1.0,
-                              quad_pts=quad_pts)
+        raise DependencyError(
+            'the harness check needs iadpython; install it with: pip install "matgen[test]"'
+        ) from exc
+    sample = iadpython.Sample(
+        a=albedo, b=optical_thickness, g=g, n=n, n_above=1.0, n_below=1.0, quad_pts=quad_pts
+    )
     return float(sample.rt()[0])
 
 
@@ -275,20 +290,31 @@ def harness_check(quick: bool = True, seed: int = 0) -> Comparison:
     """
     mode = _mode(quick)
     t0 = time.perf_counter()
-    comp = Comparison("harness", "Path-tracer scene vs adding-doubling, homogeneous slabs",
-                      tracer_label(), f"iadpython {_package_version('iadpython')} adding-doubling, 32 points")
+    comp = Comparison(
+        "harness",
+        "Path-tracer scene vs adding-doubling, homogeneous slabs",
+        tracer_label(),
+        f"iadpython {_package_version('iadpython')} adding-doubling, 32 points",
+    )
     for i, (albedo, g, n, b, wavelength_nm) in enumerate(HARNESS_MEDIA[mode]):
         lo, hi = _band_of(wavelength_nm)
         layer = tracer.TracerLayer(thickness_mm=b, albedo=albedo, sigma_t_per_mm=1.0, g=g, n=n)
         est = tracer.render_reflectance([layer], 1.0, 1.0, lo, hi, paths=TRACER_PATHS[mode], seed=seed + i)
         ref = adding_doubling_reflectance(albedo, b, g, n)
-        comp.rows.append(Row(f"{wavelength_nm:g} nm a={albedo} g={g} n={n} b={b:g}", wavelength_nm, est, Estimate(ref, 0.0),
-                             ALLOWANCE_TRACER))
+        comp.rows.append(
+            Row(
+                f"{wavelength_nm:g} nm a={albedo} g={g} n={n} b={b:g}",
+                wavelength_nm,
+                est,
+                Estimate(ref, 0.0),
+                ALLOWANCE_TRACER,
+            )
+        )
     comp.seconds = time.perf_counter() - t0
     return comp
 
 
-# --------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # matgen side
 
 
@@ -304,17 +330,31 @@ def matgen_reflectance(stack: Stack, photons: int, seed: int = 0) -> tuple[Estim
 
 def _slab_stack(albedo, sigma_t_per_mm, g, n, thickness_mm) -> Stack:
     mu_s = albedo * sigma_t_per_mm
-    return Stack(thickness_mm=[thickness_mm], n=[n], mu_a=[sigma_t_per_mm - mu_s], mu_s=[mu_s], g=[g],
-                 n_above=1.0, n_below=1.0, names=("medium",))
+    return Stack(
+        thickness_mm=[thickness_mm],
+        n=[n],
+        mu_a=[sigma_t_per_mm - mu_s],
+        mu_s=[mu_s],
+        g=[g],
+        n_above=1.0,
+        n_below=1.0,
+        names=("medium",),
+    )
 
 
-
-# --------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # 2. homogeneous slabs of the exported medium
 
 
-def homogeneous_comparison(medium: ExportedMedium, *, n_values=(1.0, 1.4), quick: bool = True, seed: int = 0,
-                           bands_nm=None, deep: bool = False) -> Comparison:
+def homogeneous_comparison(
+    medium: ExportedMedium,
+    *,
+    n_values=(1.0, 1.4),
+    quick: bool = True,
+    seed: int = 0,
+    bands_nm=None,
+    deep: bool = False,
+) -> Comparison:
     """Matgen's transport against the path tracer for slabs of the exported medium, band by band.
 
     Parameters
@@ -336,9 +376,12 @@ def homogeneous_comparison(medium: ExportedMedium, *, n_values=(1.0, 1.4), quick
     mode = _mode(quick)
     t0 = time.perf_counter()
     kind = "deep slabs (half-space stand-in)" if deep else f"{SLAB_DEPTH_MFP:g}-mfp slabs"
-    comp = Comparison("homogeneous_deep" if deep else "homogeneous",
-                      f"Exported effective medium ({medium.source}), {kind}: matgen vs path tracer",
-                      f"matgen {_package_version('matgen')} transport", tracer_label())
+    comp = Comparison(
+        "homogeneous_deep" if deep else "homogeneous",
+        f"Exported effective medium ({medium.source}), {kind}: matgen vs path tracer",
+        f"matgen {_package_version('matgen')} transport",
+        tracer_label(),
+    )
     centres = medium.bands.centre_nm if bands_nm is None else bands_nm
     k = 0
     for n_opt in n_values:
@@ -349,17 +392,29 @@ def homogeneous_comparison(medium: ExportedMedium, *, n_values=(1.0, 1.4), quick
             depth_mfp = deep_depth_mfp(a, g) if deep else SLAB_DEPTH_MFP
             stack = _slab_stack(a, st, g, n, depth_mfp / st)
             total, _diffuse, trans = matgen_reflectance(stack, MATGEN_PHOTONS[mode], seed=seed + k)
-            est = tracer.render_stack_reflectance(stack, medium.bands.lower_nm[b], medium.bands.upper_nm[b],
-                                                  paths=TRACER_PATHS[mode], seed=seed + k)
-            comp.rows.append(Row(f"{medium.bands.centre_nm[b]:g} nm n={n:g}", float(medium.bands.centre_nm[b]),
-                                 total, est, ALLOWANCE_TRACER,
-                                 f"a={a:.4f} g={g:.3f} l={1 / st:.4f} mm, {depth_mfp:.0f} mfp, T={trans.value:.4f}"))
+            est = tracer.render_stack_reflectance(
+                stack,
+                medium.bands.lower_nm[b],
+                medium.bands.upper_nm[b],
+                paths=TRACER_PATHS[mode],
+                seed=seed + k,
+            )
+            comp.rows.append(
+                Row(
+                    f"{medium.bands.centre_nm[b]:g} nm n={n:g}",
+                    float(medium.bands.centre_nm[b]),
+                    total,
+                    est,
+                    ALLOWANCE_TRACER,
+                    f"a={a:.4f} g={g:.3f} l={1 / st:.4f} mm, {depth_mfp:.0f} mfp, T={trans.value:.4f}",
+                )
+            )
             k += 1
     comp.seconds = time.perf_counter() - t0
     return comp
 
 
-# --------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # 3. layered skin stack
 
 
@@ -379,23 +434,39 @@ def layered_comparison(runs: list, *, quick: bool = True, seed: int = 0) -> Comp
     """
     mode = _mode(quick)
     t0 = time.perf_counter()
-    comp = Comparison("layered", "Layered skin stack: matgen transport vs path tracer (one medium per layer)",
-                      f"matgen {_package_version('matgen')} transport", tracer_label())
+    comp = Comparison(
+        "layered",
+        "Layered skin stack: matgen transport vs path tracer (one medium per layer)",
+        f"matgen {_package_version('matgen')} transport",
+        tracer_label(),
+    )
     k = 0
     for run in runs:
-        for b, (stack, res) in enumerate(zip(run.stacks, run.results)):
-            est = tracer.render_stack_reflectance(stack, run.bands.lower_nm[b], run.bands.upper_nm[b],
-                                                  paths=LAYERED_TRACER_PATHS[mode], seed=seed + k)
-            comp.rows.append(Row(f"{run.bands.centre_nm[b]:g} nm {run.label}", float(run.bands.centre_nm[b]),
-                                 res.total_reflectance, est, ALLOWANCE_TRACER,
-                                 f"melanin {run.params.melanin_fraction:g}, {stack.n_layers} layers, "
-                                 f"{stack.total_thickness_mm:.2f} mm, T={res.transmittance.value:.4f}"))
+        for b, (stack, res) in enumerate(zip(run.stacks, run.results, strict=True)):
+            est = tracer.render_stack_reflectance(
+                stack,
+                run.bands.lower_nm[b],
+                run.bands.upper_nm[b],
+                paths=LAYERED_TRACER_PATHS[mode],
+                seed=seed + k,
+            )
+            comp.rows.append(
+                Row(
+                    f"{run.bands.centre_nm[b]:g} nm {run.label}",
+                    float(run.bands.centre_nm[b]),
+                    res.total_reflectance,
+                    est,
+                    ALLOWANCE_TRACER,
+                    f"melanin {run.params.melanin_fraction:g}, {stack.n_layers} layers, "
+                    f"{stack.total_thickness_mm:.2f} mm, T={res.transmittance.value:.4f}",
+                )
+            )
             k += 1
     comp.seconds = time.perf_counter() - t0
     return comp
 
 
-# --------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # 4. cost of collapsing the layers into one effective medium
 
 
@@ -410,9 +481,12 @@ def collapse_comparison(runs: list, *, quick: bool = True, seed: int = 0) -> Com
     """
     mode = _mode(quick)
     t0 = time.perf_counter()
-    comp = Comparison("collapse", "Cost of collapsing the layers: layered A vs rendered effective medium",
-                      f"matgen {_package_version('matgen')} layered transport, diffuse A",
-                      tracer_label() + ", exported effective medium, deep slab, specular removed")
+    comp = Comparison(
+        "collapse",
+        "Cost of collapsing the layers: layered A vs rendered effective medium",
+        f"matgen {_package_version('matgen')} layered transport, diffuse A",
+        tracer_label() + ", exported effective medium, deep slab, specular removed",
+    )
     k = 0
     for run in runs:
         medium = exported_medium(skin_summary(run), run.bands)
@@ -420,20 +494,30 @@ def collapse_comparison(runs: list, *, quick: bool = True, seed: int = 0) -> Com
             a, st, g = float(medium.albedo[b]), float(medium.sigma_t_per_mm[b]), float(medium.g[b])
             depth_mfp = deep_depth_mfp(a, g)
             stack = _slab_stack(a, st, g, medium.ior, depth_mfp / st)
-            est = tracer.render_stack_reflectance(stack, run.bands.lower_nm[b], run.bands.upper_nm[b],
-                                                  paths=COLLAPSE_TRACER_PATHS[mode], seed=seed + k)
+            est = tracer.render_stack_reflectance(
+                stack,
+                run.bands.lower_nm[b],
+                run.bands.upper_nm[b],
+                paths=COLLAPSE_TRACER_PATHS[mode],
+                seed=seed + k,
+            )
             spec = ((medium.ior - 1.0) / (medium.ior + 1.0)) ** 2
-            comp.rows.append(Row(f"{run.bands.centre_nm[b]:g} nm {run.label}", float(run.bands.centre_nm[b]),
-                                 res.diffuse_reflectance, Estimate(est.value - spec, est.stderr),
-                                 ALLOWANCE_COLLAPSE,
-                                 f"alpha={a:.4f} l={1.0 / st:.3f} mm g={g:.2f} ior={medium.ior:.2f}, "
-                                 f"{depth_mfp:.0f} mfp"))
+            comp.rows.append(
+                Row(
+                    f"{run.bands.centre_nm[b]:g} nm {run.label}",
+                    float(run.bands.centre_nm[b]),
+                    res.diffuse_reflectance,
+                    Estimate(est.value - spec, est.stderr),
+                    ALLOWANCE_COLLAPSE,
+                    f"alpha={a:.4f} l={1.0 / st:.3f} mm g={g:.2f} ior={medium.ior:.2f}, {depth_mfp:.0f} mfp",
+                )
+            )
             k += 1
     comp.seconds = time.perf_counter() - t0
     return comp
 
 
-# --------------------------------------------------------------------------------------------------------------
+# ----------------------------------------------------------------------------------------------------
 # the whole run
 
 COMPARISONS = ("harness", "homogeneous", "layered", "collapse")
@@ -450,7 +534,7 @@ class ValidationRun:
 
     @property
     def passed(self) -> bool:
-        """True when at least one comparison ran and every one that ran passed (see ``skipped`` for the rest)."""
+        """True when a comparison ran and every one that ran passed (see ``skipped`` for the rest)."""
         return bool(self.comparisons) and all(c.passed for c in self.comparisons)
 
     def get(self, name: str) -> Comparison | None:
@@ -468,11 +552,15 @@ class ValidationRun:
         lines = [f"{name}: NOT RUN ({why})" for name, why in self.skipped.items()]
         collapse = self.get("collapse")
         if collapse is not None:
-            lines.append(f"cost of collapsing the layers into one medium: max |A_layered - A_effective| = "
-                         f"{collapse.max_abs_difference:.4f} "
-                         f"({'within' if collapse.passed else 'OUTSIDE'} 3 se + {ALLOWANCE_COLLAPSE})")
-        lines.append(f"validation ({'quick' if self.quick else 'full'}): {'PASS' if self.passed else 'FAIL'}"
-                     f"{' (incomplete)' if self.skipped else ''} in {self.seconds:.1f} s")
+            lines.append(
+                f"cost of collapsing the layers into one medium: max |A_layered - A_effective| = "
+                f"{collapse.max_abs_difference:.4f} "
+                f"({'within' if collapse.passed else 'OUTSIDE'} 3 se + {ALLOWANCE_COLLAPSE})"
+            )
+        lines.append(
+            f"validation ({'quick' if self.quick else 'full'}): {'PASS' if self.passed else 'FAIL'}"
+            f"{' (incomplete)' if self.skipped else ''} in {self.seconds:.1f} s"
+        )
         return "\n".join(lines)
 
     def to_dict(self) -> dict:
@@ -483,7 +571,11 @@ class ValidationRun:
             "seconds": self.seconds,
             "comparisons": [c.to_dict() for c in self.comparisons],
             "skipped": dict(self.skipped),
-            "allowances": {"tracer": ALLOWANCE_TRACER, "collapse": ALLOWANCE_COLLAPSE, "sigma_bound": SIGMA_BOUND},
+            "allowances": {
+                "tracer": ALLOWANCE_TRACER,
+                "collapse": ALLOWANCE_COLLAPSE,
+                "sigma_bound": SIGMA_BOUND,
+            },
         }
 
 
@@ -491,8 +583,9 @@ def _bands(centres) -> BandSet:
     return BandSet.parse(",".join(f"{c:g}" for c in centres))
 
 
-def run_validation(quick: bool = True, seed: int = 0, only=None, preset_name: str = "cheek",
-                   progress=None) -> ValidationRun:
+def run_validation(
+    quick: bool = True, seed: int = 0, only=None, preset_name: str = "cheek", progress=None
+) -> ValidationRun:
     """Run the comparisons (all, or those named in ``only``) and collect them.
 
     The layered and collapse comparisons share matgen's layered runs (one per melanin setting). A comparison
@@ -514,8 +607,16 @@ def run_validation(quick: bool = True, seed: int = 0, only=None, preset_name: st
         if layered_runs is None:
             base = base_skin(preset_name)
             bands = _bands(LAYERED_BANDS_NM[mode])
-            layered_runs = [skin_runs(label, base.replace(melanin_fraction=melanin), bands, MATGEN_PHOTONS[mode],
-                                      seed + 1000 * (i + 1)) for i, (label, melanin) in enumerate(MELANIN_SETTINGS)]
+            layered_runs = [
+                skin_runs(
+                    label,
+                    base.replace(melanin_fraction=melanin),
+                    bands,
+                    MATGEN_PHOTONS[mode],
+                    seed + 1000 * (i + 1),
+                )
+                for i, (label, melanin) in enumerate(MELANIN_SETTINGS)
+            ]
         return layered_runs
 
     for name in names:
@@ -528,8 +629,16 @@ def run_validation(quick: bool = True, seed: int = 0, only=None, preset_name: st
                 medium = exported_medium(skin_summary(runs), bands)
                 comps = [homogeneous_comparison(medium, n_values=(1.0, 1.4), quick=quick, seed=seed + 2000)]
                 if not quick:  # deep slabs with the exported boundary index, every other band
-                    comps.append(homogeneous_comparison(medium, n_values=(None,), quick=quick, seed=seed + 3000,
-                                                        bands_nm=medium.bands.centre_nm[::2], deep=True))
+                    comps.append(
+                        homogeneous_comparison(
+                            medium,
+                            n_values=(None,),
+                            quick=quick,
+                            seed=seed + 3000,
+                            bands_nm=medium.bands.centre_nm[::2],
+                            deep=True,
+                        )
+                    )
             elif name == "layered":
                 comps = [layered_comparison(_layered_runs(), quick=quick, seed=seed + 4000)]
             else:

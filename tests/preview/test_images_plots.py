@@ -38,8 +38,9 @@ def test_view_transform_is_not_the_identity_and_clips():
 def test_reflectance_spectra_plot(tmp_path):
     bands = BandSet.regular(300, 1000, 10)
     x = bands.centre_nm
-    path = plots.plot_reflectance_spectra(tmp_path / "s.png", bands, {"a": 0.5 * x / 1000, "b": 0.1 + 0 * x},
-                                          {"a": 0.01 + 0 * x})
+    path = plots.plot_reflectance_spectra(
+        tmp_path / "s.png", bands, {"a": 0.5 * x / 1000, "b": 0.1 + 0 * x}, {"a": 0.01 + 0 * x}
+    )
     _check(path, 900, 500)
     with pytest.raises(ParameterError, match="bands"):
         plots.plot_reflectance_spectra(tmp_path / "t.png", bands, {"a": x[:5]})
@@ -56,14 +57,26 @@ def test_radial_profile_plot_from_transport(tmp_path):
     fit = fit_burley2015_result(res)
     d = float(np.asarray(fit["shape_distance_mm"]).reshape(-1)[0])
     model = burley2015_rings(res.ring_edges_mm, res.diffuse_reflectance.value, d)
-    path = plots.plot_radial_profiles(tmp_path / "p.png", res.ring_edges_mm, {"550 nm": res.radial_reflectance_per_mm2},
-                                      {"550 nm": res.radial_stderr_per_mm2}, {"550 nm": ("fit", model)})
+    path = plots.plot_radial_profiles(
+        tmp_path / "p.png",
+        res.ring_edges_mm,
+        {"550 nm": res.radial_reflectance_per_mm2},
+        {"550 nm": res.radial_stderr_per_mm2},
+        {"550 nm": ("fit", model)},
+    )
     _check(path, 900, 550)
 
 
 def test_table_slice_heat_map(tmp_path, test_table):
-    path = plots.plot_table_slice(tmp_path / "h.png", test_table, "albedo_multiple", "melanin_fraction",
-                                  "blood_fraction", band_nm=550.0, samples=32)
+    path = plots.plot_table_slice(
+        tmp_path / "h.png",
+        test_table,
+        "albedo_multiple",
+        "melanin_fraction",
+        "blood_fraction",
+        band_nm=550.0,
+        samples=32,
+    )
     _check(path, 700, 560)
     with pytest.raises(ParameterError, match="axis"):
         plots.plot_table_slice(tmp_path / "x.png", test_table, "albedo_multiple", "nope", "blood_fraction")
@@ -87,8 +100,16 @@ def test_contact_sheet_of_a_bake(tmp_path, baked_material):
 
 def _medium(bands, a=0.5, d=0.5):
     b = len(bands)
-    return render.PatchMedium(bands, np.full(b, a), np.full(b, d), np.full(b, 0.9), np.full(b, 0.3),
-                              np.full(b, 0.8), 1.4, "grey test medium")
+    return render.PatchMedium(
+        bands,
+        np.full(b, a),
+        np.full(b, d),
+        np.full(b, 0.9),
+        np.full(b, 0.3),
+        np.full(b, 0.8),
+        1.4,
+        "grey test medium",
+    )
 
 
 def test_builtin_patch_conserves_energy():
@@ -101,7 +122,9 @@ def test_builtin_patch_conserves_energy():
     c = (np.arange(n) - (n - 1) / 2.0) * 12.0 / n
     light = render.light_irradiance(np.hypot(c[None, :], c[:, None]), 0.5)
     for d in (0.05, 0.4):
-        imgs = render.builtin_band_images(_medium(bands, a=0.42, d=d), field_mm=12.0, pixels=n, light_height_mm=0.5)
+        imgs = render.builtin_band_images(
+            _medium(bands, a=0.42, d=d), field_mm=12.0, pixels=n, light_height_mm=0.5
+        )
         assert imgs[0].sum() / light.sum() == pytest.approx(0.42, rel=0.02)
         # and the light spreads: the lit centre loses to its surroundings as d grows
         assert imgs[0][n // 2, n // 2] < 0.42 * light[n // 2, n // 2]
@@ -124,7 +147,8 @@ def test_tracer_patch_preview(tmp_path):
     """The path-tracer preview renders (Mitsuba 3, small film and few samples) and is not blank."""
     pytest.importorskip("mitsuba")
     bands = BandSet.regular(300, 1000, 20, 10)
-    path, used = render.patch_preview(tmp_path / "patch.png", _medium(bands, d=0.3), method="tracer", pixels=32,
-                                      spp=4)
+    path, used = render.patch_preview(
+        tmp_path / "patch.png", _medium(bands, d=0.3), method="tracer", pixels=32, spp=4
+    )
     assert used == "tracer"
     _check(path, 840, 320)

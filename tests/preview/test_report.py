@@ -12,23 +12,63 @@ from matgen.cli import main
 from matgen.preview.report import build_report
 
 CHROMIUM = Path("/usr/bin/chromium")
-FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-         "--disable-background-networking", "--disable-component-update", "--disable-sync",
-         "--enable-logging=stderr", "--v=0", "--virtual-time-budget=5000"]
+FLAGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-quic",
+    "--no-first-run",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--enable-logging=stderr",
+    "--v=0",
+    "--virtual-time-budget=5000",
+]
 
 _VALIDATION = {
-    "quick": True, "passed": False, "seconds": 1.0, "skipped": {"collapse": "example: not run"},
+    "quick": True,
+    "passed": False,
+    "seconds": 1.0,
+    "skipped": {"collapse": "example: not run"},
     "allowances": {"tracer": 0.001, "collapse": 0.02, "sigma_bound": 3.0},
-    "comparisons": [{
-        "name": "layered", "title": "example table", "tested_label": "matgen", "reference_label": "tracer",
-        "passed": False, "max_abs_difference": 0.02, "seconds": 1.0,
-        "rows": [
-            {"label": "550 nm", "wavelength_nm": 550.0, "tested": {"value": 0.40, "stderr": 0.001},
-             "reference": {"value": 0.401, "stderr": 0.001}, "difference": -0.001, "combined_stderr": 0.0014,
-             "allowance": 0.001, "bound": 0.0052, "passed": True, "note": ""},
-            {"label": "850 nm", "wavelength_nm": 850.0, "tested": {"value": 0.52, "stderr": 0.001},
-             "reference": {"value": 0.50, "stderr": 0.001}, "difference": 0.02, "combined_stderr": 0.0014,
-             "allowance": 0.001, "bound": 0.0052, "passed": False, "note": "x"}]}],
+    "comparisons": [
+        {
+            "name": "layered",
+            "title": "example table",
+            "tested_label": "matgen",
+            "reference_label": "tracer",
+            "passed": False,
+            "max_abs_difference": 0.02,
+            "seconds": 1.0,
+            "rows": [
+                {
+                    "label": "550 nm",
+                    "wavelength_nm": 550.0,
+                    "tested": {"value": 0.40, "stderr": 0.001},
+                    "reference": {"value": 0.401, "stderr": 0.001},
+                    "difference": -0.001,
+                    "combined_stderr": 0.0014,
+                    "allowance": 0.001,
+                    "bound": 0.0052,
+                    "passed": True,
+                    "note": "",
+                },
+                {
+                    "label": "850 nm",
+                    "wavelength_nm": 850.0,
+                    "tested": {"value": 0.52, "stderr": 0.001},
+                    "reference": {"value": 0.50, "stderr": 0.001},
+                    "difference": 0.02,
+                    "combined_stderr": 0.0014,
+                    "allowance": 0.001,
+                    "bound": 0.0052,
+                    "passed": False,
+                    "note": "x",
+                },
+            ],
+        }
+    ],
 }
 
 
@@ -62,8 +102,17 @@ def test_report_loads_in_headless_chromium(tmp_path, baked_material):
     assert len(srcs) >= 4 and all(s.startswith("data:image/png;base64,") for s in srcs)
     assert not re.search(r"""(href|src)=["'](https?:|file:|//)""", text)
     # what it must show
-    for needle in ("Inputs", "Provenance", "Previews", "QA", "Validation", "fit residual",
-                   "texels clamped to the table", "FAIL", "not run"):
+    for needle in (
+        "Inputs",
+        "Provenance",
+        "Previews",
+        "QA",
+        "Validation",
+        "fit residual",
+        "texels clamped to the table",
+        "FAIL",
+        "not run",
+    ):
         assert needle in text, needle
     proc = _chromium(tmp_path, out.as_uri(), "--dump-dom")
     assert proc.returncode == 0, proc.stderr[-2000:]
@@ -89,8 +138,21 @@ def test_preview_command_for_a_preset(tmp_path):
     from matgen.preview import images
 
     out = tmp_path / "pv"
-    rc = main(["preview", "--preset", "cheek", "--bands", "300:1000:100:10", "--photons", "4000",
-               "--method", "builtin", "--out", str(out)])
+    rc = main(
+        [
+            "preview",
+            "--preset",
+            "cheek",
+            "--bands",
+            "300:1000:100:10",
+            "--photons",
+            "4000",
+            "--method",
+            "builtin",
+            "--out",
+            str(out),
+        ]
+    )
     assert rc == 0
     for name in ("spectra.png", "profiles.png", "patch.png"):
         assert not images.image_check(out / name)["blank"], name

@@ -27,12 +27,19 @@ from matgen.transport.results import Estimate  # noqa: E402
 
 @pytest.mark.parametrize("centre_nm", [300.0, 550.0, 1000.0])
 def test_unit_sky_reads_one_per_nm_of_band(centre_nm):
-    """specfilm integrates over the band: a 10 nm band of the unit sky reads 10, i.e. 1 after dividing by width.
+    """specfilm integrates over the band: a 10 nm band of the unit sky reads 10, 1 after dividing by width.
 
     Bands at 300 and 1000 nm render because the sky is a uniform spectrum (not RGB-upsampled).
     """
-    est = tracer.render_reflectance([tracer.TracerLayer(1.0, 0.5, 1.0, 0.0, 1.0)], 1.0, 1.0,
-                                    centre_nm - 5.0, centre_nm + 5.0, paths=4096, empty=True)
+    est = tracer.render_reflectance(
+        [tracer.TracerLayer(1.0, 0.5, 1.0, 0.0, 1.0)],
+        1.0,
+        1.0,
+        centre_nm - 5.0,
+        centre_nm + 5.0,
+        paths=4096,
+        empty=True,
+    )
     assert est.value == pytest.approx(1.0, abs=1e-5)
 
 
@@ -63,13 +70,16 @@ def test_split_slab_equals_single_slab():
 def test_nested_dielectric_interfaces_match_glass_slides():
     """Clear glass layers (n = 1.5) above and below a scattering slab: dielectric interfaces in series.
 
-    Reference: iadpython 0.5.3 with n_above = n_below = 1.5 slides, a = 0.9, b = 10, g = 0, n = 1.4, 32 points.
+    Reference: iadpython 0.5.3, n_above = n_below = 1.5 slides, a = 0.9, b = 10, g = 0, n = 1.4, 32 points.
     """
     import iadpython
 
     a, g, n = 0.9, 0.0, 1.4
-    layers = [tracer.TracerLayer(1.0, 0.0, 0.0, 0.0, 1.5), tracer.TracerLayer(10.0, a, 1.0, g, n),
-              tracer.TracerLayer(1.0, 0.0, 0.0, 0.0, 1.5)]
+    layers = [
+        tracer.TracerLayer(1.0, 0.0, 0.0, 0.0, 1.5),
+        tracer.TracerLayer(10.0, a, 1.0, g, n),
+        tracer.TracerLayer(1.0, 0.0, 0.0, 0.0, 1.5),
+    ]
     est = tracer.render_reflectance(layers, 1.0, 1.0, 645.0, 655.0, paths=32768, seed=4)
     ref = float(iadpython.Sample(a=a, b=10.0, g=g, n=n, n_above=1.5, n_below=1.5, quad_pts=32).rt()[0])
     # the slides add reflectance: the check is not vacuous
@@ -80,8 +90,9 @@ def test_nested_dielectric_interfaces_match_glass_slides():
 def test_isotropic_half_space_chandrasekhar():
     """Isotropic half-space, n = 1, albedo 0.9: R = 1 - H(1) sqrt(1 - a) = 0.414947 (Chandrasekhar 1960,
     as quoted in REFERENCES.md); a 40-mfp slab stands in for the half-space (its transmittance ~ 1e-6)."""
-    est = tracer.render_reflectance([tracer.TracerLayer(40.0, 0.9, 1.0, 0.0, 1.0)], 1.0, 1.0, 495.0, 505.0,
-                                    paths=32768, seed=5)
+    est = tracer.render_reflectance(
+        [tracer.TracerLayer(40.0, 0.9, 1.0, 0.0, 1.0)], 1.0, 1.0, 495.0, 505.0, paths=32768, seed=5
+    )
     assert _within(est, 0.414947), est
 
 
@@ -100,8 +111,14 @@ def test_verdict_fails_beyond_the_bound():
 
 def test_bad_layers_raise_parameter_errors():
     with pytest.raises(ParameterError, match="albedo"):
-        tracer.render_reflectance([tracer.TracerLayer(1.0, 1.5, 1.0, 0.0, 1.0)], 1.0, 1.0, 545, 555, paths=4096)
+        tracer.render_reflectance(
+            [tracer.TracerLayer(1.0, 1.5, 1.0, 0.0, 1.0)], 1.0, 1.0, 545, 555, paths=4096
+        )
     with pytest.raises(ParameterError, match="thickness"):
-        tracer.render_reflectance([tracer.TracerLayer(0.0, 0.5, 1.0, 0.0, 1.0)], 1.0, 1.0, 545, 555, paths=4096)
+        tracer.render_reflectance(
+            [tracer.TracerLayer(0.0, 0.5, 1.0, 0.0, 1.0)], 1.0, 1.0, 545, 555, paths=4096
+        )
     with pytest.raises(ParameterError, match="band"):
-        tracer.render_reflectance([tracer.TracerLayer(1.0, 0.5, 1.0, 0.0, 1.0)], 1.0, 1.0, 555, 545, paths=4096)
+        tracer.render_reflectance(
+            [tracer.TracerLayer(1.0, 0.5, 1.0, 0.0, 1.0)], 1.0, 1.0, 555, 545, paths=4096
+        )

@@ -82,7 +82,9 @@ def test_collapse_cost_within_allowance(quick_run):
     comp = quick_run.get("collapse")
     worst = max(comp.rows, key=lambda r: abs(r.difference))
     if resolve_inversion() != "boundary_table" and not comp.passed:
-        pytest.xfail(f"inversion {resolve_inversion()!r} in use (no boundary table shipped): collapse cost up to "
-                     f"{comp.max_abs_difference:.3f} at {worst.label}, allowance {ALLOWANCE_COLLAPSE}")
+        pytest.xfail(
+            f"inversion {resolve_inversion()!r} in use (no boundary table shipped): collapse cost up to "
+            f"{comp.max_abs_difference:.3f} at {worst.label}, allowance {ALLOWANCE_COLLAPSE}"
+        )
     assert comp.passed, comp.format_table()
     assert np.isfinite(comp.max_abs_difference)
