@@ -14,12 +14,12 @@ Method (Wang, Jacques & Zheng 1995, with absorption applied continuously, as in 
 * **cross boundary**: at an index step the packet is reflected with the unpolarised Fresnel probability
   (one uniform drawn), else refracted by Snell's law; without an index step it passes unchanged and no
   uniform is drawn. Leaving the top is diffuse reflectance, leaving the bottom transmittance.
-* **spin**: Henyey-Greenstein polar cosine and uniform azimuth (two uniforms).
+* **spin**: Henyey-Greenstein polar cosine (one uniform) and a uniform azimuth (rejection from the unit disc).
 * **roulette**: below weight ``ROULETTE_WEIGHT`` the packet survives with probability ``ROULETTE_CHANCE``
   and weight divided by it (unbiased), else it ends (one uniform drawn).
 
-Random numbers per photon come in this order: hop, [boundary draws], spin polar, spin azimuth, [roulette],
-hop, ... The pure-Python twin :mod:`matgen.transport.kernels_py` follows the same order, and the parity test
+Random numbers per photon come in this order: hop, [boundary draws], spin polar, spin azimuth (pairs until
+one falls in the unit disc), [roulette], hop, ... The pure-Python twin :mod:`matgen.transport.kernels_py` follows the same order, and the parity test
 compares both.
 
 Tallies are integers: each photon's contribution ``x`` in [0, 1] to a tally (weight, weight squared, ...)
@@ -93,6 +93,24 @@ def _bin(edges, v):
     return k
 
 
+@njit(cache=True, inline="always")
+def sample_azimuth(s0, s1):
+    """Uniform azimuth as (cos_phi, sin_phi) by rejection from the unit disc with angle doubling.
+
+    Draws pairs of uniforms until the point (2u1 - 1, 2u2 - 1) falls inside the unit disc (acceptance
+    pi/4); cos_phi = (x^2 - y^2)/r^2, sin_phi = 2xy/r^2 (``vonNeumann1951``). Returns (cos, sin, s0, s1).
+    """
+    while True:
+        u1, s0, s1 = uniform(s0, s1)
+        u2, s0, s1 = uniform(s0, s1)
+        x = 2.0 * u1 - 1.0
+        y = 2.0 * u2 - 1.0
+        r2 = x * x + y * y
+        if 0.0 < r2 <= 1.0:
+            inv = 1.0 / r2
+            return (x * x - y * y) * inv, 2.0 * x * y * inv, s0, s1
+
+
 @njit(cache=True)
 def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
     """Follow one packet from launch to exit or roulette end.
@@ -114,6 +132,12 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
     tuple
         (side, weight, x_mm, y_mm, exit_cos, max_depth_mm): side 1 top, 2 bottom, 0 ended by roulette
         (weight 0); exit_cos is the cosine of the exit direction in the ambient medium.
+
+    Notes
+    -----
+    Hot-loop form: the current layer's constants live in locals (reloaded when the packet changes layer),
+    the boundary test compares ``tau |uz| < mu_s * distance`` without a division, and the azimuth comes
+    from a rejection sampler (no trigonometric call).
     """
     n_layers = lay.shape[0]
     for j in range(n_layers):
@@ -129,25 +153,30 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
     uz = uz0
     w = w0
     zmax = 0.0
+    # constants of the current layer
+    z_top = lay[0, Z_TOP]
+    z_bot = lay[0, Z_BOT]
+    mus = lay[0, MU_S]
+    mua = lay[0, MU_A]
+    g = lay[0, G]
     while True:
         # hop: scattering depth to spend before the next scattering event
         u, s0, s1 = uniform_open0(s0, s1)
         tau = -math.log(u)
         while True:
-            mus = lay[layer, MU_S]
             if uz > 0.0:
-                db = (lay[layer, Z_BOT] - z) / uz
-            elif uz < 0.0:
-                db = (lay[layer, Z_TOP] - z) / uz
+                dist = z_bot - z
+                auz = uz
             else:
-                db = _INF
-            if tau < mus * db:
+                dist = z - z_top
+                auz = -uz
+            if tau * auz < mus * dist:
                 # scatters inside this layer: move, drop
                 s = tau / mus
                 x += s * ux
                 y += s * uy
                 z += s * uz
-                wn = w * math.exp(-lay[layer, MU_A] * s)
+                wn = w * math.exp(-mua * s)
                 absorbed[layer] += w - wn
                 path[layer] += s
                 wpath[layer] += w * s
@@ -155,29 +184,30 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
                 if z > zmax:
                     zmax = z
                 break
-            if db == _INF:
+            if auz == 0.0:
                 # clear layer travelled exactly sideways: the packet never reaches a boundary
                 return SIDE_NONE, 0.0, x, y, 0.0, zmax
             # move to the boundary, drop
+            db = dist / auz
             tau -= mus * db
             x += db * ux
             y += db * uy
-            wn = w * math.exp(-lay[layer, MU_A] * db)
+            wn = w * math.exp(-mua * db)
             absorbed[layer] += w - wn
             path[layer] += db
             wpath[layer] += w * db
             w = wn
             if uz > 0.0:
-                z = lay[layer, Z_BOT]
+                z = z_bot
                 n_t = lay[layer, N_DOWN]
                 if z > zmax:
                     zmax = z
             else:
-                z = lay[layer, Z_TOP]
+                z = z_top
                 n_t = lay[layer, N_UP]
             # cross boundary
             n_i = lay[layer, N_LAYER]
-            r, cos_t = fresnel(n_i, n_t, abs(uz))
+            r, cos_t = fresnel(n_i, n_t, auz)
             reflect = False
             if r >= 1.0:
                 reflect = True
@@ -200,14 +230,15 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
                 ux *= ratio
                 uy *= ratio
                 uz = math.copysign(cos_t, uz)
+            z_top = lay[layer, Z_TOP]
+            z_bot = lay[layer, Z_BOT]
+            mus = lay[layer, MU_S]
+            mua = lay[layer, MU_A]
+            g = lay[layer, G]
         # spin
         u, s0, s1 = uniform(s0, s1)
-        mu = hg_sample_mu(lay[layer, G], u)
-        u, s0, s1 = uniform(s0, s1)
-        cos_phi = math.cos(_TWO_PI * u)
-        sin_phi = math.sqrt(max(0.0, 1.0 - cos_phi * cos_phi))
-        if u >= 0.5:
-            sin_phi = -sin_phi
+        mu = hg_sample_mu(g, u)
+        cos_phi, sin_phi, s0, s1 = sample_azimuth(s0, s1)
         ux, uy, uz = spin(ux, uy, uz, mu, cos_phi, sin_phi)
         # roulette
         if w < ROULETTE_WEIGHT:

@@ -88,11 +88,22 @@ def spin(d, mu: float, cos_phi: float, sin_phi: float):
     if abs(uz) > 1.0 - 1.0e-12:
         return [sin_t * cos_phi, sin_t * sin_phi, mu if uz > 0.0 else -mu]
     tmp = math.sqrt(1.0 - uz * uz)
+    f = sin_t / tmp
     return [
-        sin_t * (ux * uz * cos_phi - uy * sin_phi) / tmp + ux * mu,
-        sin_t * (uy * uz * cos_phi + ux * sin_phi) / tmp + uy * mu,
+        f * (ux * uz * cos_phi - uy * sin_phi) + ux * mu,
+        f * (uy * uz * cos_phi + ux * sin_phi) + uy * mu,
         -sin_t * cos_phi * tmp + uz * mu,
     ]
+
+
+def azimuth(stream: PhotonStream):
+    """(cos_phi, sin_phi) of a uniform azimuth by rejection from the unit disc (angle doubling)."""
+    while True:
+        x = 2.0 * stream.uniform() - 1.0
+        y = 2.0 * stream.uniform() - 1.0
+        r2 = x * x + y * y
+        if 0.0 < r2 <= 1.0:
+            return (x * x - y * y) * (1.0 / r2), 2.0 * x * y * (1.0 / r2)
 
 
 def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: float):
@@ -111,12 +122,10 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
         while True:
             lay = layers[j]
             if d[2] > 0.0:
-                db = (lay["z_bot"] - pos[2]) / d[2]
-            elif d[2] < 0.0:
-                db = (lay["z_top"] - pos[2]) / d[2]
+                dist, auz = lay["z_bot"] - pos[2], d[2]
             else:
-                db = math.inf
-            if tau < lay["mu_s"] * db:
+                dist, auz = pos[2] - lay["z_top"], -d[2]
+            if tau * auz < lay["mu_s"] * dist:
                 s = tau / lay["mu_s"]
                 pos = [pos[0] + s * d[0], pos[1] + s * d[1], pos[2] + s * d[2]]
                 wn = w * math.exp(-lay["mu_a"] * s)
@@ -126,8 +135,9 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
                 w = wn
                 zmax = max(zmax, pos[2])
                 break
-            if db == math.inf:
+            if auz == 0.0:
                 return 0, 0.0, pos[0], pos[1], 0.0, zmax, path, absorbed, wpath
+            db = dist / auz
             tau -= lay["mu_s"] * db
             pos[0] += db * d[0]
             pos[1] += db * d[1]
@@ -144,7 +154,7 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
             else:
                 pos[2] = lay["z_top"]
                 n_t = lay["n_up"]
-            r, cos_t = fresnel(lay["n"], n_t, abs(d[2]))
+            r, cos_t = fresnel(lay["n"], n_t, auz)
             if r >= 1.0:
                 reflect = True
             elif r > 0.0:
@@ -166,11 +176,7 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
                 ratio = lay["n"] / n_t
                 d = [d[0] * ratio, d[1] * ratio, cos_t if d[2] > 0.0 else -cos_t]
         mu = hg_sample(layers[j]["g"], stream.uniform())
-        u = stream.uniform()
-        cos_phi = math.cos(2.0 * math.pi * u)
-        sin_phi = math.sqrt(max(0.0, 1.0 - cos_phi * cos_phi))
-        if u >= 0.5:
-            sin_phi = -sin_phi
+        cos_phi, sin_phi = azimuth(stream)
         d = spin(d, mu, cos_phi, sin_phi)
         if w < K.ROULETTE_WEIGHT:
             if stream.uniform() < K.ROULETTE_CHANCE:

@@ -82,7 +82,8 @@ def spin(ux, uy, uz, mu, cos_phi, sin_phi):
     if abs(uz) > 1.0 - 1.0e-12:
         return sin_t * cos_phi, sin_t * sin_phi, (mu if uz > 0.0 else -mu)
     tmp = math.sqrt(1.0 - uz * uz)
-    nx = sin_t * (ux * uz * cos_phi - uy * sin_phi) / tmp + ux * mu
-    ny = sin_t * (uy * uz * cos_phi + ux * sin_phi) / tmp + uy * mu
+    f = sin_t / tmp
+    nx = f * (ux * uz * cos_phi - uy * sin_phi) + ux * mu
+    ny = f * (uy * uz * cos_phi + ux * sin_phi) + uy * mu
     nz = -sin_t * cos_phi * tmp + uz * mu
     return nx, ny, nz

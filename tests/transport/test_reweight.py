@@ -6,6 +6,7 @@ independent estimate, so the two must agree within 3 combined standard errors, s
 
 import numpy as np
 import pytest
+from scipy import stats
 from transport_cases import benchmark_stack, needs_jit
 
 from matgen.errors import ParameterError
@@ -22,9 +23,10 @@ def _agree(a, ea, b, eb):
 @needs_jit
 def test_reweighting_matches_direct_runs_for_random_absorption_sets():
     """Benchmark stack (5 layers) at 550 nm scattering; reference mu_a = 0.05/mm in every layer; 10 random
-    absorption sets (log-uniform 0.05-3/mm per layer, seeded). Diffuse reflectance, transmittance, total
-    absorption and the radial profile of rings centred 0.1-3 mm agree with direct runs within 3 combined
-    standard errors."""
+    absorption sets (log-uniform 0.05-3/mm per layer, seeded). Diffuse reflectance, transmittance and total
+    absorption agree with direct runs within 3 combined standard errors for every set. The radial profile
+    (15 rings centred 0.1-3 mm, 150 comparisons in all, too many for a per-ring 3-sigma bound) is tested per set
+    by a chi-square of the ring differences over their combined variances: p-value above 1e-3."""
     ref_stack = benchmark_stack(550, mu_a=[0.05] * 5)
     _, rec = simulate(ref_stack, 60_000, seed=101, records=True)
     rng = np.random.default_rng(2026)
@@ -41,8 +43,9 @@ def test_reweighting_matches_direct_runs_for_random_absorption_sets():
         tot_rw = rw.absorbed[k].sum()
         tot_d = d.absorbed.sum()
         assert abs(tot_rw - tot_d) <= 3.0 * np.hypot(rw.absorbed_stderr[k].sum(), d.absorbed_stderr.sum()), k
-        assert _agree(rw.radial_reflectance_per_mm2[k, rings], rw.radial_stderr_per_mm2[k, rings],
-                      d.radial_reflectance_per_mm2[rings], d.radial_stderr_per_mm2[rings]), k
+        diff = rw.radial_reflectance_per_mm2[k, rings] - d.radial_reflectance_per_mm2[rings]
+        var = rw.radial_stderr_per_mm2[k, rings] ** 2 + d.radial_stderr_per_mm2[rings] ** 2
+        assert stats.chi2.sf(np.sum(diff**2 / var), rings.size) > 1e-3, k
 
 
 def test_reweighting_at_the_reference_reproduces_the_run():
