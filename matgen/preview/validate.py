@@ -20,7 +20,9 @@ Allowances (absolute reflectance, added to 3 combined standard errors):
 
 - :data:`ALLOWANCE_TRACER`: Mitsuba's scalar variant computes in float32 and the tracer slab is finite
   sideways; iadpython's 16- vs 32-point quadrature differ by up to 2e-4 at the tested slabs. 1e-3 covers
-  these (measured harness deviations at the tested slabs stay below it once roulette is deferred).
+  these; with roulette deferred (``matgen.preview.tracer``) no harness deviation beyond 3 standard errors
+  was seen at slabs of 10-40 mean free paths (one of 0.4 %, 3.7 se, remains at 200 mfp, outside the tested
+  range).
 - :data:`ALLOWANCE_COLLAPSE`: the effective medium reproduces the layered albedo A only through the fitted
   profile width and the boundary-aware inversion table (``matgen.fit.inversion``), whose interpolation and
   half-space assumptions carry errors of order 1e-2; the layered stack also has a different top index than
