@@ -37,6 +37,9 @@ from matgen.fit.models import shape_scaling_Christensen2015
 INVERSION_METHODS = ("ChiangKutzBurley2016", "OpenPBR2024", "boundary_table")
 
 TABLE_FILE = "inversion_table.npz"
+
+#: Bisection steps of the table inversion on s in [0, 1]: 2^-52 resolution.
+_BISECTION_STEPS = 52
 TABLE_PROVENANCE = "inversion_table.provenance.json"
 
 
@@ -316,50 +319,81 @@ class InversionTable:
         w = np.stack([(1 - tg) * (1 - tn), tg * (1 - tn), (1 - tg) * tn, tg * tn])
         return gi, ni, w
 
-    def _curves(self, table, g, n):
+    def _similarity_nodes(self, gi):
+        """Similarity parameter s = sqrt((1 - alpha) / (1 - g alpha)) of every alpha node at g nodes gi.
+
+        Returns (K, Na), decreasing along alpha (s = 1 at alpha = 0, 0 at alpha = 1).
+        """
+        a = self.albedo_single[None, :]
+        g = self.g[gi][:, None]
+        return np.sqrt(np.clip((1.0 - a) / (1.0 - g * a), 0.0, None))
+
+    def _corner_interp(self, x, nodes_x, values):
+        """Per row, linear interpolation of values (K, Na) at x (K,) on ascending nodes_x (K, Na)."""
+        k = np.clip(np.sum(nodes_x < x[:, None], axis=1) - 1, 0, nodes_x.shape[1] - 2)
+        rows = np.arange(x.size)
+        x0, x1 = nodes_x[rows, k], nodes_x[rows, k + 1]
+        t = np.clip((x - x0) / (x1 - x0), 0.0, 1.0)
+        return values[rows, k] + t * (values[rows, k + 1] - values[rows, k])
+
+    def _blend_at_similarity(self, table, s, gi, ni, w):
+        """Blend the four corners' values of ``table`` (Na, Ng, Nn) interpolated at similarity s (K,)."""
+        out = np.zeros(s.size)
+        for c in range(4):
+            nodes = self._similarity_nodes(gi[c])[:, ::-1]  # ascending s
+            vals = table[:, gi[c], ni[c]].T[:, ::-1]
+            out += w[c] * self._corner_interp(s, nodes, vals)
+        return out
+
+    def _prepare(self, values, g, n):
+        v = np.asarray(values, dtype=np.float64)
+        shape = v.shape
+        g = np.broadcast_to(np.asarray(g, dtype=np.float64), shape).reshape(-1)
+        n = np.broadcast_to(np.asarray(n, dtype=np.float64), shape).reshape(-1)
         gi, ni, w = self._corner_weights(g, n)
-        # table[:, gi, ni] -> (Na, 4, K)
-        return np.einsum("ack,ck->ka", table[:, gi, ni], w)  # (K, Na)
+        return v.reshape(-1), shape, np.clip(g, self.g[0], self.g[-1]), gi, ni, w
 
     def albedo_multiple_of(self, albedo_single, g, n):
-        """A(alpha, g, n) by interpolation (linear in u = sqrt(1 - alpha), bilinear in g and n)."""
-        a = np.asarray(albedo_single, dtype=np.float64).reshape(-1)
-        g, n = np.broadcast_to(g, a.shape), np.broadcast_to(n, a.shape)
-        curves = self._curves(self.albedo_multiple, g, n)
-        u_nodes = np.sqrt(1.0 - self.albedo_single)[::-1]
-        u = np.sqrt(np.clip(1.0 - a, 0.0, 1.0))
-        return np.array([np.interp(u[k], u_nodes, curves[k, ::-1]) for k in range(a.size)])
+        """A(alpha, g, n) by interpolation.
+
+        At each of the four (g, n) corner nodes A is interpolated linearly in van de Hulst's similarity
+        parameter s = sqrt((1 - alpha) / (1 - g alpha)) (``vandeHulst1980``: half-spaces of equal s have
+        nearly equal A, so blending corners at equal s is far more accurate than at equal alpha); the
+        corner values are blended bilinearly in g and n.
+        """
+        a, shape, g, gi, ni, w = self._prepare(albedo_single, g, n)
+        s = np.sqrt(np.clip((1.0 - a) / (1.0 - g * a), 0.0, None))
+        return self._blend_at_similarity(self.albedo_multiple, s, gi, ni, w).reshape(shape)
 
     def invert(self, albedo_multiple, g, n):
         """Return alpha and the scaling l/d that reproduce A for each (g, n); arrays of A's shape.
 
+        Exact inverse of :meth:`albedo_multiple_of` (bisection on the similarity parameter s, on which the
+        interpolated A is monotone), alpha = (1 - s^2) / (1 - g s^2); l/d interpolated the same way.
         Raises :class:`FitError` where A exceeds the largest diffuse reflectance the boundary allows,
         1 - R_specular(n).
         """
-        a_in = np.asarray(albedo_multiple, dtype=np.float64)
-        shape = a_in.shape
-        a = a_in.reshape(-1)
-        g = np.broadcast_to(np.asarray(g, dtype=np.float64), shape).reshape(-1)
-        n = np.broadcast_to(np.asarray(n, dtype=np.float64), shape).reshape(-1)
-        curves = self._curves(self.albedo_multiple, g, n)  # (K, Na), increasing along Na
-        top = curves[:, -1]
+        a, shape, g, gi, ni, w = self._prepare(albedo_multiple, g, n)
+        top = np.einsum("ck,ck->k", self.albedo_multiple[-1][gi, ni], w)
         over = a >= top
         if over.any():
             i = int(np.argmax(over))
             raise FitError(
-                f"albedo_multiple[{i}] = {a[i]:.6g} is not reachable by a half-space of index {n[i]:g}: "
-                f"at most {top[i]:.6g} (1 - normal specular reflectance)"
+                f"albedo_multiple[{i}] = {a[i]:.6g} is not reachable by a half-space of index "
+                f"{np.broadcast_to(n, shape).reshape(-1)[i]:g}: at most {top[i]:.6g} "
+                "(1 - normal specular reflectance)"
             )
-        k = np.clip(np.sum(curves < a[:, None], axis=1) - 1, 0, curves.shape[1] - 2)
-        rows = np.arange(a.size)
-        a0, a1 = curves[rows, k], curves[rows, k + 1]
-        t = (a - a0) / (a1 - a0)
-        u_nodes = np.sqrt(1.0 - self.albedo_single)
-        u = u_nodes[k] + t * (u_nodes[k + 1] - u_nodes[k])
-        alpha = 1.0 - u * u
-        s_curves = self._curves(self._scaling_filled, g, n)
-        s = s_curves[rows, k] + t * (s_curves[rows, k + 1] - s_curves[rows, k])
-        return alpha.reshape(shape), s.reshape(shape)
+        lo = np.zeros(a.size)  # s = 0: alpha = 1, largest A
+        hi = np.ones(a.size)  # s = 1: alpha = 0, A = 0
+        for _ in range(_BISECTION_STEPS):
+            mid = 0.5 * (lo + hi)
+            above = self._blend_at_similarity(self.albedo_multiple, mid, gi, ni, w) > a
+            lo = np.where(above, mid, lo)
+            hi = np.where(above, hi, mid)
+        s = 0.5 * (lo + hi)
+        alpha = (1.0 - s**2) / (1.0 - g * s**2)
+        scale = self._blend_at_similarity(self._scaling_filled, s, gi, ni, w)
+        return alpha.reshape(shape), scale.reshape(shape)
 
 
 @lru_cache(maxsize=1)

@@ -90,24 +90,26 @@ def test_ckb_closed_form_difference_is_recorded(isotropic_runs):
 needs_table = pytest.mark.skipif(not has_default_table(), reason="inversion table not built")
 
 
-@needs_table
-@pytest.mark.parametrize("alpha, g, n", [(0.95, 0.0, 1.0), (0.93, 0.8, 1.4), (0.985, 0.75, 1.44)])
-def test_boundary_table_reproduces_transport(alpha, g, n):
-    """The shipped boundary-aware table vs a fresh transport run (another seed) at on- and off-node points.
+#: Interpolation allowance of the shipped table (absolute A). Leave-one-node-out along g (at equal similarity
+#: parameter) predicts dropped nodes to 0.013 and along n to 0.008 at doubled node spacing; linear
+#: interpolation error scales with the spacing squared, so about 0.004 (g) and 0.002 (n) at the real spacing.
+TABLE_ALLOWANCE = 0.006
 
-    Tolerance: 3 x the combined standard error of the run and of the bracketing table nodes, plus the
-    table's own linear-interpolation allowance, estimated from its second differences along
-    u = sqrt(1 - alpha) (|delta^2 A| / 8, the bound for linear interpolation of a smooth curve) and
-    likewise along g and n."""
+
+@needs_table
+@pytest.mark.parametrize(
+    "alpha, g, n",
+    [(0.95, 0.0, 1.0), (0.93, 0.8, 1.4), (0.985, 0.75, 1.44), (0.99, 0.85, 1.36), (0.97, 0.2, 1.2)],
+)
+def test_boundary_table_reproduces_transport(alpha, g, n):
+    """The shipped boundary-aware table vs a fresh transport run (another seed) at on- and off-node points:
+    within 3 x the combined standard error of the run and the table nodes, plus TABLE_ALLOWANCE; and the
+    inversion of the run's A returns alpha within 0.01."""
     tab = default_inversion_table()
     run = _half_space(alpha, g, n, photons=60_000, seed=99)
-    a_tab = float(tab.albedo_multiple_of(alpha, g, n)[0])
+    a_tab = float(tab.albedo_multiple_of(alpha, g, n))
     node_err = float(np.max(tab.albedo_multiple_stderr))
-    allowance = 0.0
-    for axis in range(3):
-        second = np.abs(np.diff(tab.albedo_multiple, n=2, axis=axis))
-        allowance += float(np.max(second)) / 8.0 if second.size else 0.0
-    tol = 3.0 * np.hypot(run.diffuse_reflectance.stderr, node_err) + allowance
+    tol = 3.0 * np.hypot(run.diffuse_reflectance.stderr, node_err) + TABLE_ALLOWANCE
     assert abs(a_tab - run.diffuse_reflectance.value) < tol
     alpha_back = float(tab.invert(np.array([run.diffuse_reflectance.value]), g, n)[0][0])
-    assert alpha_back == pytest.approx(alpha, abs=0.02)
+    assert alpha_back == pytest.approx(alpha, abs=0.01)

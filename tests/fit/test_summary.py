@@ -125,3 +125,15 @@ def test_cli_fit_single_band_text_and_errors(tmp_path, capsys):
     bad.write_text(json.dumps(noprof))
     assert main(["fit", str(bad)]) == 2
     assert "no radial profile" in capsys.readouterr().err
+
+
+def test_default_inversion_is_the_shipped_table():
+    from matgen.fit.inversion import default_inversion_table, has_default_table
+    from matgen.fit.summary import resolve_inversion
+
+    assert has_default_table() and resolve_inversion() == "boundary_table"
+    a, a_err, y, s, d = _inputs(n=2, seed=8)
+    q = summarize(BANDS, EDGES, a, a_err, y, s, np.full(len(BANDS), 0.8), 1.4)
+    alpha, scale = default_inversion_table().invert(a, 0.8, 1.4)
+    np.testing.assert_allclose(q["albedo_single"], alpha, rtol=1e-12)
+    np.testing.assert_allclose(q["mean_free_path_mm"], scale * d, rtol=1e-6)
