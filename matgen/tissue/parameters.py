@@ -37,7 +37,8 @@ FIELD_SPECS: dict[str, FieldSpec] = {
         0.5,
         "volume fraction",
         "melanosome volume fraction of the viable epidermis",
-        "Jacques1998: 1.3-6.3 % light, 11-16 % medium, 18-43 % dark skin (from memory)",
+        "Jacques1998: 1.3-6.3 % light, 11-16 % medium, 18-43 % dark skin (from memory; the 43 % upper end "
+        "re-read as quoted from Jacques2013 by Blaney2024)",
     ),
     "eumelanin_share": FieldSpec(
         0.0,
