@@ -126,7 +126,7 @@ def _segment_distance(x, y, a, b):
 
 
 def generate_maps(size: int = 512, seed: int = DEFAULT_SEED) -> dict:
-    """The scenario's pigment maps (invented), deterministic for a given size and seed.
+    """Generate the scenario's pigment maps (invented), deterministic for a given size and seed.
 
     Parameters
     ----------
@@ -141,6 +141,7 @@ def generate_maps(size: int = 512, seed: int = DEFAULT_SEED) -> dict:
         ``melanin`` and ``blood``: float32 (size, size) encodings in [0, 1]; ``melanin_fraction`` and
         ``blood_fraction``: the decoded volume fractions (float64); ``marked``: tuple of :class:`MarkedTexel`
         (a freckle, a freckle-free texel of the blush, the scar).
+
     """
     if size < 16:
         raise ValueError(f"scenario map size is {size} texels; use at least 16")
@@ -151,7 +152,9 @@ def generate_maps(size: int = 512, seed: int = DEFAULT_SEED) -> dict:
     mel = BASE_MELANIN * (1.0 + 0.12 * _smooth_noise(rng, size, size / 16))
     # freckles: centres drawn from a density over cheeks and nose bridge, splatted at three sizes
     density = sum(np.exp(-((x - cx) ** 2 + (y - cy) ** 2) / (2 * 0.12**2)) for cx, cy in CHEEKS)
-    density = density + 0.8 * np.exp(-((x - NOSE[0]) ** 2 / (2 * 0.06**2) + (y - NOSE[1]) ** 2 / (2 * 0.05**2)))
+    density = density + 0.8 * np.exp(
+        -((x - NOSE[0]) ** 2 / (2 * 0.06**2) + (y - NOSE[1]) ** 2 / (2 * 0.05**2))
+    )
     p = (density / density.sum()).ravel()
     n_freckles = int(0.0016 * size * size) + 40
     freckles = np.zeros((size, size))
@@ -183,8 +186,14 @@ def generate_maps(size: int = 512, seed: int = DEFAULT_SEED) -> dict:
     sx = int(0.5 * (SCAR[0][0] + SCAR[1][0]) * size)
     sy = int(0.5 * (SCAR[0][1] + SCAR[1][1]) * size)
     left = np.exp(-((x - CHEEKS[0][0]) ** 2 + (y - CHEEKS[0][1]) ** 2) / (2 * BLUSH_SIGMA**2))
-    by, bx = np.unravel_index(int(np.argmax(left * (1.0 + 0.25 * streak) - 4.0 * freckles - scar)), left.shape)
-    marked = (MarkedTexel("freckle", int(fx), int(fy)), MarkedTexel("blush", int(bx), int(by)), MarkedTexel("scar", sx, sy))
+    by, bx = np.unravel_index(
+        int(np.argmax(left * (1.0 + 0.25 * streak) - 4.0 * freckles - scar)), left.shape
+    )
+    marked = (
+        MarkedTexel("freckle", int(fx), int(fy)),
+        MarkedTexel("blush", int(bx), int(by)),
+        MarkedTexel("scar", sx, sy),
+    )
     return {
         "melanin": _encode(mel, MELANIN_RANGE),
         "blood": _encode(blood, BLOOD_RANGE),
@@ -210,6 +219,7 @@ def write_scenario(folder, size: int = 512, seed: int = DEFAULT_SEED) -> tuple:
     -------
     tuple
         (path of ``material.toml``, the dict of :func:`generate_maps`).
+
     """
     folder = Path(folder)
     maps = generate_maps(size, seed)

@@ -1,4 +1,4 @@
-"""Bake a large map set into all default outputs; report texels/s, peak memory and the ratio to the EXR I/O floor.
+"""Bake a large map set into all default outputs; report texels/s, peak memory and ratio to the I/O floor.
 
 The benchmark writes a synthetic map set (smooth melanin and blood maps, float EXR) and a material config
 with the default outputs (five spectral stacks on the chosen bands, ACEScg maps, OpenPBR maps, the uv365 and
@@ -59,7 +59,9 @@ def add_arguments(parser) -> None:
     parser.add_argument("--bands", default="400:700:10", help="band subset of the spectral stacks")
     parser.add_argument("--jobs", type=int, default=None, help="lookup threads of the bake")
     parser.add_argument("--table", default="default", help="table file, or 'default' for the shipped table")
-    parser.add_argument("--work", default=None, help="work folder (default: a temporary folder, removed after)")
+    parser.add_argument(
+        "--work", default=None, help="work folder (default: a temporary folder, removed after)"
+    )
     parser.add_argument("--memory-mb", type=int, default=256, help="strip memory budget of the bake, MiB")
     parser.add_argument("--json", action="store_true", help="print the figures as JSON")
 
@@ -72,7 +74,7 @@ def _write_map(path: Path, values: np.ndarray) -> None:
         raise ImageError(f"cannot write benchmark map {path}: {oiio.geterror()}")
     rows = 256
     for y0 in range(0, values.shape[0], rows):
-        out.write_scanlines(y0, min(values.shape[0], y0 + rows), 0, values[y0:y0 + rows, :, None])
+        out.write_scanlines(y0, min(values.shape[0], y0 + rows), 0, values[y0 : y0 + rows, :, None])
     out.close()
 
 
@@ -133,8 +135,18 @@ def run(args) -> int:
         cfg = write_inputs(work / "inputs", args.size, args.bands)
         t_inputs = time.perf_counter() - t0
         out = work / "out"
-        cmd = [sys.executable, "-m", "matgen", "bake", str(cfg), "--out", str(out), "--quiet",
-               "--memory-mb", str(args.memory_mb)]
+        cmd = [
+            sys.executable,
+            "-m",
+            "matgen",
+            "bake",
+            str(cfg),
+            "--out",
+            str(out),
+            "--quiet",
+            "--memory-mb",
+            str(args.memory_mb),
+        ]
         if args.jobs:
             cmd += ["--jobs", str(args.jobs)]
         if args.table != "default":
@@ -167,12 +179,18 @@ def run(args) -> int:
         if args.json:
             print(json.dumps(figures, indent=1))
         else:
-            print(f"bake benchmark: {args.size} x {args.size} texels, {figures['output_files']} files, "
-                  f"{channels} channels, {figures['output_bytes'] / 2**20:.0f} MiB written")
-            print(f"  bake (matgen bake in a child process): {wall:.1f} s, {texels / wall:,.0f} texels/s, "
-                  f"peak memory {peak_mib:.0f} MiB")
-            print(f"  I/O floor (writing the same bytes to EXR): {floor_s:.1f} s; bake / floor = "
-                  f"{figures['ratio_to_io_floor']}")
+            print(
+                f"bake benchmark: {args.size} x {args.size} texels, {figures['output_files']} files, "
+                f"{channels} channels, {figures['output_bytes'] / 2**20:.0f} MiB written"
+            )
+            print(
+                f"  bake (matgen bake in a child process): {wall:.1f} s, {texels / wall:,.0f} texels/s, "
+                f"peak memory {peak_mib:.0f} MiB"
+            )
+            print(
+                f"  I/O floor (writing the same bytes to EXR): {floor_s:.1f} s; bake / floor = "
+                f"{figures['ratio_to_io_floor']}"
+            )
         return 0
     finally:
         if not args.work:

@@ -39,7 +39,13 @@ from matgen.limits import read_text_limited
 UDIM_TOKEN = "<UDIM>"
 
 #: Spectral quantities a bake writes by default (one EXR stack each).
-DEFAULT_SPECTRAL = ("albedo_multiple", "albedo_single", "mean_free_path_mm", "shape_distance_mm", "fit_residual")
+DEFAULT_SPECTRAL = (
+    "albedo_multiple",
+    "albedo_single",
+    "mean_free_path_mm",
+    "shape_distance_mm",
+    "fit_residual",
+)
 #: RGB quantities (table working space) written by default.
 DEFAULT_RGB = ("albedo_multiple", "mean_free_path_mm", "shape_distance_mm")
 #: Renderer targets written by default.
@@ -75,6 +81,7 @@ class ParameterSource:
         ``"linear"`` (v in [0, 1] -> lo + v (hi - lo)) or ``"fraction"`` (v itself, in [0, 1]).
     range : tuple of float
         (lo, hi) of the linear encoding in the field's unit; (0, 1) for ``"fraction"``.
+
     """
 
     name: str
@@ -149,6 +156,7 @@ class BakeConfig:
     outputs : OutputOptions
     source : dict
         The config as read (for provenance).
+
     """
 
     name: str
@@ -165,7 +173,7 @@ class BakeConfig:
     source: dict = field(default_factory=dict)
 
     def parameter(self, name: str) -> ParameterSource:
-        """The source of parameter ``name``; :class:`ConfigError` if the config does not give it."""
+        """Return the source of parameter ``name``; :class:`ConfigError` if the config does not give it."""
         for p in self.parameters:
             if p.name == name:
                 return p
@@ -191,8 +199,9 @@ def _check_schema(data: dict, where: str) -> None:
         raise ConfigError(f"{where}: field '{loc}': {e.message}")
 
 
-def config_from_dict(data: dict, base_dir, *, where: str = "material config",
-                     allow_outside: bool = False) -> BakeConfig:
+def config_from_dict(
+    data: dict, base_dir, *, where: str = "material config", allow_outside: bool = False
+) -> BakeConfig:
     """Validate a config mapping (as read from TOML) and resolve its paths against ``base_dir``.
 
     Parameters
@@ -216,6 +225,7 @@ def config_from_dict(data: dict, base_dir, *, where: str = "material config",
         On a schema violation or an inconsistent entry (the message names the field).
     PathError
         On a path that leaves ``base_dir`` without ``allow_outside``.
+
     """
     if not isinstance(data, dict):
         raise ConfigError(f"{where}: the config must be a table of keys")
@@ -231,7 +241,9 @@ def config_from_dict(data: dict, base_dir, *, where: str = "material config",
         encoding = entry.get("encoding", "linear")
         if encoding == "linear":
             if "range" not in entry:
-                raise ConfigError(f"{where}: field 'parameters.{name}': a linear encoding needs range = [lo, hi]")
+                raise ConfigError(
+                    f"{where}: field 'parameters.{name}': a linear encoding needs range = [lo, hi]"
+                )
             lo, hi = (float(x) for x in entry["range"])
             if not hi > lo:
                 raise ConfigError(f"{where}: field 'parameters.{name}.range': need lo < hi; got [{lo}, {hi}]")
@@ -242,13 +254,29 @@ def config_from_dict(data: dict, base_dir, *, where: str = "material config",
             rng = (0.0, 1.0)
         if text.count(UDIM_TOKEN) > 1:
             raise ConfigError(f"{where}: field 'parameters.{name}.map': '{UDIM_TOKEN}' may appear once")
-        resolved = resolve_inside(base_dir, text.replace(UDIM_TOKEN, "1001"), f"map of parameter '{name}'",
-                                  allow_outside=allow_outside)
-        pattern = resolved.parent / resolved.name.replace("1001", UDIM_TOKEN) if UDIM_TOKEN in text else resolved
+        resolved = resolve_inside(
+            base_dir,
+            text.replace(UDIM_TOKEN, "1001"),
+            f"map of parameter '{name}'",
+            allow_outside=allow_outside,
+        )
+        pattern = (
+            resolved.parent / resolved.name.replace("1001", UDIM_TOKEN) if UDIM_TOKEN in text else resolved
+        )
         if UDIM_TOKEN in text and UDIM_TOKEN not in Path(text).name:
-            raise ConfigError(f"{where}: field 'parameters.{name}.map': '{UDIM_TOKEN}' must be in the file name")
-        params.append(ParameterSource(name=name, map_pattern=pattern, map_text=text,
-                                      channel=int(entry.get("channel", 0)), encoding=encoding, range=rng))
+            raise ConfigError(
+                f"{where}: field 'parameters.{name}.map': '{UDIM_TOKEN}' must be in the file name"
+            )
+        params.append(
+            ParameterSource(
+                name=name,
+                map_pattern=pattern,
+                map_text=text,
+                channel=int(entry.get("channel", 0)),
+                encoding=encoding,
+                range=rng,
+            )
+        )
     if not any(p.is_map for p in params):
         raise ConfigError(f"{where}: field 'parameters': at least one parameter must come from a map")
     table = data.get("table", {}).get("path", "default")
@@ -301,6 +329,7 @@ def load_config(path, *, allow_outside: bool = False) -> BakeConfig:
     Returns
     -------
     BakeConfig
+
     """
     path = Path(path)
     if not path.is_file():

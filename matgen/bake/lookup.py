@@ -39,6 +39,7 @@ class TexelLookup:
         linear in the table's values (pass responses, band averages) and so can be formed on the grid once.
     backend : {"numba", "python"}
         The compiled kernel or its pure-Python twin (parity tests).
+
     """
 
     def __init__(self, table, request: dict, backend: str = "numba", derived: dict | None = None):
@@ -61,7 +62,9 @@ class TexelLookup:
         for name, grid in (derived or {}).items():
             q = np.asarray(grid, dtype=np.float32)
             if q.shape[:-1] != tuple(a.values.size for a in table.axes):
-                raise TableError(f"derived grid '{name}' has shape {q.shape}; expected the table's grid + channels")
+                raise TableError(
+                    f"derived grid '{name}' has shape {q.shape}; expected the table's grid + channels"
+                )
             blocks.append(q)
             self.slices[name] = slice(start, start + q.shape[-1])
             start += q.shape[-1]
@@ -84,14 +87,19 @@ class TexelLookup:
             Quantity name -> float32 array (N, C_name).
         clamped : ndarray of bool, shape (N,)
             Texels with at least one parameter outside its table axis (clamped to the edge).
+
         """
         pts = np.asarray(points, dtype=np.float64)
         if pts.ndim != 2 or pts.shape[1] != len(self.axis_names):
-            raise ParameterError(f"lookup points have shape {pts.shape}; expected (N, {len(self.axis_names)})")
+            raise ParameterError(
+                f"lookup points have shape {pts.shape}; expected (N, {len(self.axis_names)})"
+            )
         clamped = np.any((pts < self.axis_min) | (pts > self.axis_max), axis=1)
         inside = np.empty_like(pts)
         for i, ax in enumerate(self._axes):
             inside[:, i] = ax.transform(np.clip(pts[:, i], self.axis_min[i], self.axis_max[i]))
         coords, offsets, strides, flat = self._prepared
-        out, _ = run_prepared(coords, offsets, strides, flat, np.ascontiguousarray(inside), backend=self.backend)
+        out, _ = run_prepared(
+            coords, offsets, strides, flat, np.ascontiguousarray(inside), backend=self.backend
+        )
         return {name: out[:, s] for name, s in self.slices.items()}, clamped

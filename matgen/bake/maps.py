@@ -30,7 +30,7 @@ def udim_of(u: int, v: int) -> int:
 
 
 def tile_path(pattern: Path, tile: int | None) -> Path:
-    """The file of UDIM ``tile`` in ``pattern`` (``pattern`` itself when it holds no ``<UDIM>``)."""
+    """Return the file of UDIM ``tile`` in ``pattern`` (``pattern`` itself when it holds no ``<UDIM>``)."""
     pattern = Path(pattern)
     if UDIM_TOKEN not in pattern.name:
         return pattern
@@ -76,24 +76,36 @@ def map_info(path, tile=None, *, channel: int = 0, what: str = "map") -> MapInfo
     ------
     ImageError
         If the file is missing or unreadable, too large, or has too few channels.
+
     """
     path = Path(path)
     if not path.is_file():
         raise ImageError(f"{what} {_where(path, tile)} does not exist")
     inp = oiio.ImageInput.open(str(path))
     if inp is None:
-        raise ImageError(f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {oiio.geterror().strip()}")
+        raise ImageError(
+            f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {oiio.geterror().strip()}"
+        )
     try:
         spec = inp.spec()
-        info = MapInfo(path, tile, int(spec.width), int(spec.height), int(spec.nchannels), str(spec.format),
-                       str(spec.get_string_attribute("oiio:ColorSpace", "")))
+        info = MapInfo(
+            path,
+            tile,
+            int(spec.width),
+            int(spec.height),
+            int(spec.nchannels),
+            str(spec.format),
+            str(spec.get_string_attribute("oiio:ColorSpace", "")),
+        )
     finally:
         inp.close()
     check_image_dims(info.width, info.height, 1, path=_where(path, tile))
     check_count(info.nchannels, "image_channels", f"the channel count of {what} {_where(path, tile)}")
     if channel >= info.nchannels:
-        raise ImageError(f"{what} {_where(path, tile)} has {info.nchannels} channel(s); the config reads channel "
-                         f"{channel} (channels count from 0)")
+        raise ImageError(
+            f"{what} {_where(path, tile)} has {info.nchannels} channel(s); the config reads channel "
+            f"{channel} (channels count from 0)"
+        )
     return info
 
 
@@ -110,6 +122,7 @@ class MapReader:
         (width, height) to resample to; None reads at the map's own size.
     what : str
         Name of the map for messages (e.g. "map of parameter 'melanin_fraction'").
+
     """
 
     def __init__(self, info: MapInfo, channel: int = 0, target_size=None, what: str = "map"):
@@ -121,14 +134,20 @@ class MapReader:
         self._inp = None
         if info.colorspace and "srgb" in info.colorspace.lower():
             warnings.warn(
-                f"{what} {_where(info.path, info.tile)} is tagged as colour space '{info.colorspace}'; pigment maps "
-                "are non-colour data and are read without any transfer function", ColourSpaceWarning, stacklevel=2)
+                f"{what} {_where(info.path, info.tile)} is tagged as colour space '{info.colorspace}'; "
+                "pigment maps "
+                "are non-colour data and are read without any transfer function",
+                ColourSpaceWarning,
+                stacklevel=2,
+            )
 
     def __enter__(self):
         self._inp = oiio.ImageInput.open(str(self.info.path))
         if self._inp is None:
-            raise ImageError(f"{self.what} {_where(self.info.path, self.info.tile)} cannot be read: "
-                             f"{oiio.geterror().strip()}")
+            raise ImageError(
+                f"{self.what} {_where(self.info.path, self.info.tile)} cannot be read: "
+                f"{oiio.geterror().strip()}"
+            )
         return self
 
     def __exit__(self, *exc):
@@ -148,8 +167,10 @@ class MapReader:
         data = inp.read_scanlines(0, 0, y0, y1, 0, self.channel, self.channel + 1, oiio.FLOAT)
         if data is None or not isinstance(data, np.ndarray) or data.size != (y1 - y0) * self.info.width:
             msg = inp.geterror().strip() or oiio.geterror().strip() or "short read"
-            raise ImageError(f"{self.what} {_where(self.info.path, self.info.tile)}: rows {y0}..{y1 - 1} cannot be "
-                             f"read ({msg}); the file may be truncated or corrupt")
+            raise ImageError(
+                f"{self.what} {_where(self.info.path, self.info.tile)}: rows {y0}..{y1 - 1} cannot be "
+                f"read ({msg}); the file may be truncated or corrupt"
+            )
         return np.asarray(data, dtype=np.float32).reshape(y1 - y0, self.info.width)
 
     def read_rows(self, y0: int, y1: int) -> np.ndarray:

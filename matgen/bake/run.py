@@ -41,7 +41,6 @@ QUANTITY_UNITS = {
 }
 
 
-
 def spectral_channel_name(wavelength_nm: float, prefix: str = "T") -> str:
     """Channel name of the spectral OpenEXR layout: ``T.550,000000nm`` (Fichet, Pacanowski & Wilkie 2021).
 
@@ -55,6 +54,7 @@ def spectral_channel_name(wavelength_nm: float, prefix: str = "T") -> str:
     References
     ----------
     Fichet2021
+
     """
     number = f"{float(wavelength_nm):.6f}".replace(".", ",")
     return f"{prefix}.{number}nm"
@@ -78,6 +78,7 @@ class OutputSpec:
         Unit of the texel values ("1" for dimensionless, "mm", "scene_unit").
     description : str
         One line for the descriptor.
+
     """
 
     key: str
@@ -125,7 +126,7 @@ class BakePlan:
         return [t.tile for t in self.tiles]
 
     def tile_inputs(self, tile: int | None) -> TileInputs:
-        """The inputs of UDIM ``tile``; :class:`ConfigError` if the set has no such tile."""
+        """Return the inputs of UDIM ``tile``; :class:`ConfigError` if the set has no such tile."""
         for t in self.tiles:
             if t.tile == tile:
                 return t
@@ -144,8 +145,10 @@ def _spectral_subset(table_bands: BandSet, spec: str):
     for c in wanted.centre_nm:
         hit = np.nonzero(np.abs(table_bands.centre_nm - c) < 1e-6)[0]
         if hit.size == 0:
-            raise BandError(f"outputs.spectral_bands lists {c:g} nm, which is no band centre of the table "
-                            f"(table bands {table_bands.centre_nm[0]:g}-{table_bands.centre_nm[-1]:g} nm)")
+            raise BandError(
+                f"outputs.spectral_bands lists {c:g} nm, which is no band centre of the table "
+                f"(table bands {table_bands.centre_nm[0]:g}-{table_bands.centre_nm[-1]:g} nm)"
+            )
         idx.append(int(hit[0]))
     idx = np.array(idx, dtype=np.int64)
     return idx, table_bands.subset(idx)
@@ -188,27 +191,38 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
     ------
     ConfigError, ImageError, BandError
         Naming the parameter, file, tile or band at fault.
+
     """
     axis_names = [a.name for a in table.axes]
     given = [p.name for p in config.parameters]
     extra = [n for n in given if n not in axis_names]
     if extra:
-        raise ConfigError(f"parameters {extra} are not axes of the table (its axes: {axis_names}); a table only "
-                          "varies along its axes")
+        raise ConfigError(
+            f"parameters {extra} are not axes of the table (its axes: {axis_names}); a table only "
+            "varies along its axes"
+        )
     missing = [n for n in axis_names if n not in given]
     if missing:
-        raise ConfigError(f"the config gives no map or value for table axes {missing}; add "
-                          f"[parameters.{missing[0]}] with map = ... or value = ...")
+        raise ConfigError(
+            f"the config gives no map or value for table axes {missing}; add "
+            f"[parameters.{missing[0]}] with map = ... or value = ..."
+        )
     sources = tuple(config.parameter(n) for n in axis_names)
     for ax, src in zip(table.axes, sources, strict=True):
         if src.value is not None and not (ax.values[0] <= src.value <= ax.values[-1]):
-            raise ConfigError(f"parameters.{ax.name}.value = {src.value} lies outside the table axis "
-                              f"[{ax.values[0]:g}, {ax.values[-1]:g}]")
-    for what, want, have in (("working_space", config.working_space, table.working_space),
-                             ("illuminant", config.illuminant, table.illuminant)):
+            raise ConfigError(
+                f"parameters.{ax.name}.value = {src.value} lies outside the table axis "
+                f"[{ax.values[0]:g}, {ax.values[-1]:g}]"
+            )
+    for what, want, have in (
+        ("working_space", config.working_space, table.working_space),
+        ("illuminant", config.illuminant, table.illuminant),
+    ):
         if want is not None and want != have:
-            raise ConfigError(f"scene.{what} is '{want}' but the table's RGB quantities are in '{have}'; use a "
-                              f"table built for '{want}' or set scene.{what} = '{have}'")
+            raise ConfigError(
+                f"scene.{what} is '{want}' but the table's RGB quantities are in '{have}'; use a "
+                f"table built for '{want}' or set scene.{what} = '{have}'"
+            )
     # tiles
     udim = [p for p in config.map_parameters if p.is_udim]
     if udim:
@@ -217,8 +231,9 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         else:
             tiles = discover_tiles(udim[0].map_pattern)
             if not tiles:
-                raise ImageError(f"no UDIM tiles found for {udim[0].map_pattern} (map of parameter "
-                                 f"'{udim[0].name}')")
+                raise ImageError(
+                    f"no UDIM tiles found for {udim[0].map_pattern} (map of parameter '{udim[0].name}')"
+                )
         check_udim_tiles(len(tiles), str(udim[0].map_pattern))
         if tile is not None:
             if tile not in tiles:
@@ -234,17 +249,21 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         for p in config.map_parameters:
             path = tile_path(p.map_pattern, t)
             if p.is_udim and not path.is_file():
-                raise ImageError(f"UDIM tile {t} of the map of parameter '{p.name}' is missing: {path} does not "
-                                 "exist (every UDIM map must have every tile of the set)")
-            infos[p.name] = map_info(path, t if p.is_udim else None, channel=p.channel,
-                                     what=f"map of parameter '{p.name}'")
+                raise ImageError(
+                    f"UDIM tile {t} of the map of parameter '{p.name}' is missing: {path} does not "
+                    "exist (every UDIM map must have every tile of the set)"
+                )
+            infos[p.name] = map_info(
+                path, t if p.is_udim else None, channel=p.channel, what=f"map of parameter '{p.name}'"
+            )
         first = max(infos.values(), key=lambda i: i.width * i.height)  # resampling goes to the largest map
         for name, info in infos.items():
             if (info.width, info.height) != (first.width, first.height) and config.resample == "error":
                 raise ImageError(
                     f"map of parameter '{name}' {info.path} is {info.width} x {info.height} texels but "
                     f"{first.path} is {first.width} x {first.height}; make them equal or set "
-                    "input.resample = \"bilinear\"")
+                    'input.resample = "bilinear"'
+                )
         tile_inputs.append(TileInputs(t, first.width, first.height, infos))
     # bands and outputs
     bands = table.bands
@@ -254,23 +273,58 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
     names = tuple(spectral_channel_name(c) for c in spectral_bands.centre_nm)
     for q in config.outputs.spectral:
         request[q] = spectral_index
-        outputs.append(OutputSpec(f"spectral/{q}", "spectral", q, names, QUANTITY_UNITS[q],
-                                  f"{q} per band ({QUANTITY_UNITS[q]})", tuple(spectral_bands.centre_nm.tolist())))
+        outputs.append(
+            OutputSpec(
+                f"spectral/{q}",
+                "spectral",
+                q,
+                names,
+                QUANTITY_UNITS[q],
+                f"{q} per band ({QUANTITY_UNITS[q]})",
+                tuple(spectral_bands.centre_nm.tolist()),
+            )
+        )
     for q in config.outputs.rgb:
         request[f"rgb_{q}"] = None
-        outputs.append(OutputSpec(f"rgb/{q}", "rgb", f"rgb_{q}", ("R", "G", "B"), QUANTITY_UNITS[q],
-                                  f"{q} per channel of {table.working_space} ({QUANTITY_UNITS[q]})"))
+        outputs.append(
+            OutputSpec(
+                f"rgb/{q}",
+                "rgb",
+                f"rgb_{q}",
+                ("R", "G", "B"),
+                QUANTITY_UNITS[q],
+                f"{q} per channel of {table.working_space} ({QUANTITY_UNITS[q]})",
+            )
+        )
     if {"openpbr", "standard_surface"} & set(config.outputs.targets):  # both read the same maps
         request["rgb_albedo_single"] = None
         request["rgb_mean_free_path_mm"] = None
         outputs += [
-            OutputSpec("openpbr/subsurface_color", "target", "subsurface_color", ("R", "G", "B"), "1",
-                       f"OpenPBR subsurface_color in {table.working_space}: van de Hulst's A of the effective "
-                       "single-scattering albedo, so that OpenPBR's inversion returns it"),
-            OutputSpec("openpbr/subsurface_radius", "target", "subsurface_radius", ("Y",), "scene_unit",
-                       "OpenPBR subsurface_radius: largest channel mean free path, scene units"),
-            OutputSpec("openpbr/subsurface_radius_scale", "target", "subsurface_radius_scale", ("R", "G", "B"),
-                       "1", "OpenPBR subsurface_radius_scale: per-channel mean free path / subsurface_radius"),
+            OutputSpec(
+                "openpbr/subsurface_color",
+                "target",
+                "subsurface_color",
+                ("R", "G", "B"),
+                "1",
+                f"OpenPBR subsurface_color in {table.working_space}: van de Hulst's A of the effective "
+                "single-scattering albedo, so that OpenPBR's inversion returns it",
+            ),
+            OutputSpec(
+                "openpbr/subsurface_radius",
+                "target",
+                "subsurface_radius",
+                ("Y",),
+                "scene_unit",
+                "OpenPBR subsurface_radius: largest channel mean free path, scene units",
+            ),
+            OutputSpec(
+                "openpbr/subsurface_radius_scale",
+                "target",
+                "subsurface_radius_scale",
+                ("R", "G", "B"),
+                "1",
+                "OpenPBR subsurface_radius_scale: per-channel mean free path / subsurface_radius",
+            ),
         ]
         # one scalar g per texel, the A-weighted mean over the table's bands as in
         # matgen.fit.targets.EffectiveMedium.from_summary; numerator and denominator are linear in the grid
@@ -279,31 +333,65 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         g = np.asarray(table.quantities["anisotropy"], dtype=np.float64)
         derived["openpbr_g_num"] = np.sum(a * g, axis=-1, keepdims=True)
         derived["openpbr_g_den"] = np.sum(a, axis=-1, keepdims=True)
-        outputs.append(OutputSpec("openpbr/subsurface_scatter_anisotropy", "target",
-                                  "subsurface_scatter_anisotropy", ("Y",), "1",
-                                  "OpenPBR subsurface_scatter_anisotropy: albedo-weighted mean g over the table's "
-                                  "bands"))
+        outputs.append(
+            OutputSpec(
+                "openpbr/subsurface_scatter_anisotropy",
+                "target",
+                "subsurface_scatter_anisotropy",
+                ("Y",),
+                "1",
+                "OpenPBR subsurface_scatter_anisotropy: albedo-weighted mean g over the table's bands",
+            )
+        )
     for name in passes:
         # w @ A is linear in the grid values, so it is formed on the grid once and interpolated like A
         a = np.asarray(table.quantities["albedo_multiple"], dtype=np.float64)
         derived[f"pass_{name}"] = (a @ passes[name])[..., None]
-        outputs.append(OutputSpec(f"passes/{name}", "pass", name, ("Y",), "1",
-                                  f"camera pass '{name}': response-weighted multiple-scattering albedo"))
+        outputs.append(
+            OutputSpec(
+                f"passes/{name}",
+                "pass",
+                name,
+                ("Y",),
+                "1",
+                f"camera pass '{name}': response-weighted multiple-scattering albedo",
+            )
+        )
     if config.outputs.mitsuba_scene:
         need = {"albedo_single", "mean_free_path_mm"} - set(config.outputs.spectral)
         if need or not {"openpbr", "standard_surface"} & set(config.outputs.targets):
-            raise ConfigError("outputs.mitsuba_scene needs spectral stacks albedo_single and mean_free_path_mm "
-                              f"(missing: {sorted(need)}) and a target (openpbr) for the anisotropy")
+            raise ConfigError(
+                "outputs.mitsuba_scene needs spectral stacks albedo_single and mean_free_path_mm "
+                f"(missing: {sorted(need)}) and a target (openpbr) for the anisotropy"
+            )
     if config.outputs.qa:
         chans = ["table_clamped", "encoding_clamped"]
         if "rgb_fit_residual" in table.quantities:
             request["rgb_fit_residual"] = None
             chans.append("fit_residual")
-        outputs.append(OutputSpec("qa/qa", "qa", "qa", tuple(chans), "1",
-                                  "QA: 1 where a parameter was clamped to the table / encoding range; "
-                                  "largest RGB fit residual"))
-    return BakePlan(config, table, sources, tile_inputs, outputs, spectral_index, spectral_bands, passes,
-                    request, derived, single_tile=tile)
+        outputs.append(
+            OutputSpec(
+                "qa/qa",
+                "qa",
+                "qa",
+                tuple(chans),
+                "1",
+                "QA: 1 where a parameter was clamped to the table / encoding range; largest RGB fit residual",
+            )
+        )
+    return BakePlan(
+        config,
+        table,
+        sources,
+        tile_inputs,
+        outputs,
+        spectral_index,
+        spectral_bands,
+        passes,
+        request,
+        derived,
+        single_tile=tile,
+    )
 
 
 @dataclass
@@ -319,9 +407,15 @@ class InputReport:
 
 
 def _readers(plan: BakePlan, ti: TileInputs) -> dict:
-    return {name: MapReader(info, plan.config.parameter(name).channel, (ti.width, ti.height),
-                            what=f"map of parameter '{name}'")
-            for name, info in ti.maps.items()}
+    return {
+        name: MapReader(
+            info,
+            plan.config.parameter(name).channel,
+            (ti.width, ti.height),
+            what=f"map of parameter '{name}'",
+        )
+        for name, info in ti.maps.items()
+    }
 
 
 def check_inputs(plan: BakePlan) -> InputReport:
@@ -331,6 +425,7 @@ def check_inputs(plan: BakePlan) -> InputReport:
     ------
     ImageError
         Naming the file, tile, number of bad texels and the first one (x, y).
+
     """
     report = InputReport()
     for ti in plan.tiles:
@@ -340,15 +435,20 @@ def check_inputs(plan: BakePlan) -> InputReport:
             where = f"{reader.info.path}" + (f" (UDIM tile {ti.tile})" if ti.tile is not None else "")
             if stats.nonfinite:
                 x, y = stats.first_nonfinite
-                raise ImageError(f"map of parameter '{name}' {where}: {stats.nonfinite} texel(s) are NaN or "
-                                 f"infinite, the first at texel (x={x}, y={y}); fix the map")
+                raise ImageError(
+                    f"map of parameter '{name}' {where}: {stats.nonfinite} texel(s) are NaN or "
+                    f"infinite, the first at texel (x={x}, y={y}); fix the map"
+                )
             if stats.out_of_range:
                 x, y = stats.first_out_of_range
-                msg = (f"map of parameter '{name}' {where}: {stats.out_of_range} texel(s) lie outside the encoding "
-                       f"range [0, 1] (values {stats.minimum:g}..{stats.maximum:g}), the first at texel "
-                       f"(x={x}, y={y})")
+                msg = (
+                    f"map of parameter '{name}' {where}: {stats.out_of_range} texel(s) lie outside the "
+                    "encoding "
+                    f"range [0, 1] (values {stats.minimum:g}..{stats.maximum:g}), the first at texel "
+                    f"(x={x}, y={y})"
+                )
                 if plan.config.out_of_range == "error":
-                    raise ImageError(msg + "; fix the map or set input.out_of_range = \"clamp\"")
+                    raise ImageError(msg + '; fix the map or set input.out_of_range = "clamp"')
                 warnings.warn(msg + "; clamped", ClampWarning, stacklevel=2)
                 report.clamped[(name, ti.tile)] = stats.out_of_range
     return report
@@ -407,13 +507,20 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
     return out, int(clamped.sum())
 
 
-def iter_strips(plan: BakePlan, tile: int | None, *, lookup: TexelLookup | None = None,
-                memory_budget_bytes: int = 256 << 20, rows: int | None = None):
+def iter_strips(
+    plan: BakePlan,
+    tile: int | None,
+    *,
+    lookup: TexelLookup | None = None,
+    memory_budget_bytes: int = 256 << 20,
+    rows: int | None = None,
+):
     """Compute one tile's outputs strip by strip.
 
     Parameters
     ----------
     plan : BakePlan
+        The checked plan (:func:`plan_bake`).
     tile : int or None
         UDIM tile (None for a single texture).
     lookup : TexelLookup, optional
@@ -426,6 +533,7 @@ def iter_strips(plan: BakePlan, tile: int | None, *, lookup: TexelLookup | None 
     Yields
     ------
     Strip
+
     """
     ti = plan.tile_inputs(tile)
     lookup = lookup or TexelLookup(plan.table, plan.request, derived=plan.derived)
@@ -447,15 +555,19 @@ def iter_strips(plan: BakePlan, tile: int | None, *, lookup: TexelLookup | None 
                 raw = readers[src.name].read_rows(y0, y1).reshape(-1)
                 if not np.all(np.isfinite(raw)):
                     bad = np.argwhere(~np.isfinite(raw))[0][0]
-                    raise ImageError(f"map of parameter '{src.name}' {readers[src.name].info.path}: texel "
-                                     f"(x={bad % ti.width}, y={y0 + bad // ti.width}) is not finite")
+                    raise ImageError(
+                        f"map of parameter '{src.name}' {readers[src.name].info.path}: texel "
+                        f"(x={bad % ti.width}, y={y0 + bad // ti.width}) is not finite"
+                    )
                 outside = (raw < 0.0) | (raw > 1.0)
                 if outside.any():
                     if plan.config.out_of_range == "error":
                         bad = int(np.argmax(outside))
-                        raise ImageError(f"map of parameter '{src.name}' {readers[src.name].info.path}: texel "
-                                         f"(x={bad % ti.width}, y={y0 + bad // ti.width}) = {raw[bad]:g} lies "
-                                         "outside the encoding range [0, 1]")
+                        raise ImageError(
+                            f"map of parameter '{src.name}' {readers[src.name].info.path}: texel "
+                            f"(x={bad % ti.width}, y={y0 + bad // ti.width}) = {raw[bad]:g} lies "
+                            "outside the encoding range [0, 1]"
+                        )
                     enc |= outside
                     raw = np.clip(raw, 0.0, 1.0)
                 params[:, i] = src.decode(raw)

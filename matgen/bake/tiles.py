@@ -33,6 +33,7 @@ def rows_per_strip(width: int, height: int, channels: int, memory_budget_bytes: 
     -------
     int
         Between 1 and ``height``.
+
     """
     if width < 1 or height < 1 or channels < 1:
         raise ParameterError(f"strip of {width} x {height} texels and {channels} channels: all must be >= 1")

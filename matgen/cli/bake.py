@@ -14,6 +14,7 @@ from matgen.tables.store import Table
 
 
 def register(sub):
+    """Add ``matgen bake`` to the subcommands."""
     p = add_command(
         sub,
         "bake",
@@ -21,26 +22,36 @@ def register(sub):
         "matgen bake scenes/low_tide_lantern/material.toml --out lowtide_bake --jobs 2",
         description=(
             "Read the pigment maps a material config names (EXR, TIFF, PNG; single files or UDIM sets), look "
-            "every texel up in the skin table, and write spectral EXR stacks (one channel per band), RGB maps in "
-            "the working space, OpenPBR subsurface maps, UV/IR pass maps, a QA map, a JSON descriptor with "
-            "checksums and a MaterialX document. Outputs appear only when the whole bake succeeded."
+            "every texel up in the skin table, and write spectral EXR stacks (one channel per band), RGB "
+            "maps in the working space, OpenPBR subsurface maps, UV/IR pass maps, a QA map, a JSON "
+            "descriptor with checksums and a MaterialX document. Outputs appear only when the whole bake succeeded."
         ),
     )
     p.add_argument("config", help="material config (TOML)")
     p.add_argument("--out", default="matgen_out", help="output folder")
     p.add_argument("--jobs", type=int, default=None, help="lookup threads (default: all cores)")
-    p.add_argument("--tile", type=int, default=None, help="bake only this UDIM tile (farm use); writes "
-                   "material.<tile>.json")
-    p.add_argument("--dry-run", action="store_true", help="check config and maps, print what would be written")
+    p.add_argument(
+        "--tile",
+        type=int,
+        default=None,
+        help="bake only this UDIM tile (farm use); writes material.<tile>.json",
+    )
+    p.add_argument(
+        "--dry-run", action="store_true", help="check config and maps, print what would be written"
+    )
     p.add_argument("--table", default=None, help="table file to use instead of the config's")
-    p.add_argument("--allow-outside", action="store_true",
-                   help="allow paths in the config that leave its folder (through '..' or absolute)")
+    p.add_argument(
+        "--allow-outside",
+        action="store_true",
+        help="allow paths in the config that leave its folder (through '..' or absolute)",
+    )
     p.add_argument("--memory-mb", type=int, default=256, help="memory budget of one strip of texels, MiB")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
+    """Run ``matgen bake``; returns the exit status."""
     config = load_config(args.config, allow_outside=args.allow_outside)
     table = Table.load(args.table) if args.table else None
     bar = None
@@ -58,9 +69,18 @@ def run(args) -> int:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", MatgenWarning)
         try:
-            result = bake(config, args.out, table=table, jobs=args.jobs, tile=args.tile, dry_run=args.dry_run,
-                          allow_outside=args.allow_outside, progress=progress,
-                          memory_budget_bytes=int(args.memory_mb) << 20)
+            result = bake(
+                config,
+                args.out,
+                table=table,
+                table_source=args.table,
+                jobs=args.jobs,
+                tile=args.tile,
+                dry_run=args.dry_run,
+                allow_outside=args.allow_outside,
+                progress=progress,
+                memory_budget_bytes=int(args.memory_mb) << 20,
+            )
         finally:
             if bar is not None:
                 bar.close()
@@ -80,6 +100,9 @@ def run(args) -> int:
     print(f"baked {result.texels} texels in {result.seconds:.1f} s ({rate:,.0f} texels/s) into {out}")
     print(f"  {len(result.files)} files; descriptor {result.descriptor}")
     if result.table_clamped or result.encoding_clamped:
-        print(f"  clamped texels: {result.table_clamped} to the table's range, {result.encoding_clamped} to the "
-              "encoding range (see qa/qa*.exr)")
+        print(
+            f"  clamped texels: {result.table_clamped} to the table's range, {result.encoding_clamped} to "
+            "the "
+            "encoding range (see qa/qa*.exr)"
+        )
     return 0

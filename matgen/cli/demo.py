@@ -16,22 +16,24 @@ from matgen.export.exr import read_exr
 from matgen.export.job import bake, load_table
 from matgen.fsutil import atomic_path
 from matgen.scenario import DEFAULT_SEED, write_scenario
-from matgen.tables.store import Table
+from matgen.tables.store import Table, default_table_path
 
 #: Percentiles that set the grey scale of the pass previews (each pass scaled on its own).
 PASS_PREVIEW_PERCENTILES = (1.0, 99.0)
 
 
 def register(sub):
+    """Add ``matgen demo`` to the subcommands."""
     p = add_command(
         sub,
         "demo",
-        "Bake the invented 'Low Tide Lantern' ferry pilot's face: maps, textures, passes, MaterialX, previews",
+        "Bake the invented 'Low Tide Lantern' pilot's face: maps, textures, passes, MaterialX, previews",
         "matgen demo --out lowtide",
         description=(
-            "Generate the invented demo scenario's pigment maps (seeded freckles, wind-reddened cheeks, a pale "
-            "scar), bake them with the shipped default table into spectral EXR stacks, ACEScg maps, a 365 nm UV "
-            "pass and an 850 nm IR pass, write the descriptor and MaterialX document, and write preview PNGs. "
+            "Generate the invented demo scenario's pigment maps (seeded freckles, wind-reddened cheeks, a "
+            "pale scar), bake them with the shipped default table into spectral EXR stacks, ACEScg maps, a "
+            "365 nm UV pass and an 850 nm IR pass, write the descriptor and MaterialX document, and write "
+            "preview PNGs. "
             "The character and scenario are invented; outputs are for imagery only."
         ),
     )
@@ -63,8 +65,9 @@ def _srgb_from_working(rgb: np.ndarray, working_space: str) -> np.ndarray:
     """Working-space linear RGB -> sRGB display values (CAT02 to D65, sRGB transfer function)."""
     import colour
 
-    return colour.RGB_to_RGB(rgb, working_space, "sRGB", chromatic_adaptation_transform="CAT02",
-                             apply_cctf_encoding=True)
+    return colour.RGB_to_RGB(
+        rgb, working_space, "sRGB", chromatic_adaptation_transform="CAT02", apply_cctf_encoding=True
+    )
 
 
 def _scaled(values: np.ndarray) -> tuple:
@@ -122,8 +125,9 @@ def _previews(out: Path, bake_dir: Path, config, table, maps) -> list:
         ax.set_title(title, fontsize=9)
         ax.set_axis_off()
     wl = table.bands.centre_nm
-    for m, colour_name, s in zip(marked, ("tab:cyan", "tab:orange", "tab:green"), spectra["albedo_multiple"],
-                                 strict=True):
+    for m, colour_name, s in zip(
+        marked, ("tab:cyan", "tab:orange", "tab:green"), spectra["albedo_multiple"], strict=True
+    ):
         axes[3].plot(wl, s, color=colour_name, label=f"{m.name} ({m.x}, {m.y})")
     for w in (365.0, 850.0):
         axes[3].axvline(w, color="0.7", lw=0.8, ls="--")
@@ -137,8 +141,9 @@ def _previews(out: Path, bake_dir: Path, config, table, maps) -> list:
         fig.savefig(tmp, dpi=90, format="png")
     written.append(preview / "overview.png")
     fig2, ax2 = plt.subplots(figsize=(6, 4))
-    for m, colour_name, s in zip(marked, ("tab:cyan", "tab:orange", "tab:green"), spectra["albedo_multiple"],
-                                 strict=True):
+    for m, colour_name, s in zip(
+        marked, ("tab:cyan", "tab:orange", "tab:green"), spectra["albedo_multiple"], strict=True
+    ):
         ax2.plot(wl, s, color=colour_name, label=f"{m.name} texel ({m.x}, {m.y})")
     ax2.set_xlabel("wavelength (nm)")
     ax2.set_ylabel("multiple-scattering albedo (diffuse reflectance)")
@@ -152,23 +157,29 @@ def _previews(out: Path, bake_dir: Path, config, table, maps) -> list:
 
 
 def run(args) -> int:
+    """Run ``matgen demo``; returns the exit status."""
     t0 = time.perf_counter()
     out = Path(args.out)
     inputs = out / "inputs"
     config_path, maps = write_scenario(inputs, size=args.size, seed=args.seed)
     config = load_config(config_path)
-    table = Table.load(args.table) if args.table else load_table(config)
+    if args.table:
+        table, source = Table.load(args.table), args.table
+    else:
+        table, source = load_table(config), default_table_path()
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", MatgenWarning)
-        result = bake(config, out / "bake", table=table, jobs=args.jobs)
+        result = bake(config, out / "bake", table=table, table_source=source, jobs=args.jobs)
     for msg in sorted({str(w.message) for w in caught}):
         print(f"matgen demo: warning: {msg}", file=sys.stderr)
     previews = _previews(out, out / "bake", config, table, maps)
     dt = time.perf_counter() - t0
     print(f"Low Tide Lantern demo (invented scenario): {args.size} x {args.size} texels baked in {dt:.1f} s")
     print(f"  pigment maps and material config: {inputs}")
-    print(f"  spectral EXR stacks ({len(config.outputs.spectral)} quantities, "
-          f"{config.outputs.spectral_bands} nm): {out / 'bake' / 'spectral'}")
+    print(
+        f"  spectral EXR stacks ({len(config.outputs.spectral)} quantities, "
+        f"{config.outputs.spectral_bands} nm): {out / 'bake' / 'spectral'}"
+    )
     print(f"  ACEScg maps: {out / 'bake' / 'rgb'}   OpenPBR maps: {out / 'bake' / 'openpbr'}")
     print(f"  UV 365 nm and IR 850 nm passes: {out / 'bake' / 'passes'}   QA map: {out / 'bake' / 'qa'}")
     print(f"  descriptor: {result.descriptor}   MaterialX: {out / 'bake' / 'material.mtlx'}")

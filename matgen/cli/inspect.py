@@ -1,4 +1,4 @@
-"""``matgen inspect DESCRIPTOR``: check a baked material's textures against their checksums and summarise it."""
+"""``matgen inspect DESCRIPTOR``: check a baked material's textures against their checksums; summarise."""
 
 from __future__ import annotations
 
@@ -9,6 +9,7 @@ from matgen.export.descriptor import inspect_descriptor, summary_lines
 
 
 def register(sub):
+    """Add ``matgen inspect`` to the subcommands."""
     p = add_command(
         sub,
         "inspect",
@@ -21,10 +22,21 @@ def register(sub):
 
 
 def run(args) -> int:
+    """Run ``matgen inspect``; 0 when every file matches, 1 otherwise."""
     rep = inspect_descriptor(args.descriptor)
     if args.json:
-        print(json.dumps({"descriptor": str(rep.path), "ok": rep.ok, "checked": rep.checked,
-                          "missing": rep.missing, "modified": rep.modified}, indent=1))
+        print(
+            json.dumps(
+                {
+                    "descriptor": str(rep.path),
+                    "ok": rep.ok,
+                    "checked": rep.checked,
+                    "missing": rep.missing,
+                    "modified": rep.modified,
+                },
+                indent=1,
+            )
+        )
     else:
         print("\n".join(summary_lines(rep)))
         print("OK: every file matches its checksum" if rep.ok else "FAILED: files missing or modified")

@@ -28,7 +28,7 @@ DESCRIPTOR_VERSION = 1
 
 
 def descriptor_schema() -> dict:
-    """The descriptor's JSON Schema (draft 2020-12), as shipped in the package."""
+    """Return the descriptor's JSON Schema (draft 2020-12), as shipped in the package."""
     text = resources.files("matgen.export").joinpath("schema", "material_descriptor.schema.json").read_text()
     return json.loads(text)
 
@@ -42,6 +42,7 @@ def validate_descriptor(doc: dict, where: str = "material descriptor") -> None:
         On a schema violation (the message names the field).
     PathError
         On an absolute path or one that leaves the folder.
+
     """
     validator = jsonschema.Draft202012Validator(descriptor_schema())
     errors = sorted(validator.iter_errors(doc), key=lambda e: list(e.absolute_path))
@@ -52,12 +53,15 @@ def validate_descriptor(doc: dict, where: str = "material descriptor") -> None:
     for tex in doc["textures"]:
         p = PurePosixPath(tex["path"])
         if p.is_absolute() or ".." in p.parts:
-            raise PathError(f"{where}: texture path '{tex['path']}' must be relative and inside the output folder")
+            raise PathError(
+                f"{where}: texture path '{tex['path']}' must be relative and inside the output folder"
+            )
 
 
-def texture_entry(spec, rel_path: str, file_path: Path, tile, width: int, height: int, pixel_type: str,
-                  tiled: bool) -> dict:
-    """The descriptor entry of one written texture (checksum computed from the file's bytes)."""
+def texture_entry(
+    spec, rel_path: str, file_path: Path, tile, width: int, height: int, pixel_type: str, tiled: bool
+) -> dict:
+    """Return the descriptor entry of one written texture (checksum computed from the file's bytes)."""
     return {
         "key": spec.key,
         "kind": spec.kind,
@@ -77,7 +81,7 @@ def texture_entry(spec, rel_path: str, file_path: Path, tile, width: int, height
 
 
 def descriptor_json(doc: dict) -> str:
-    """Validated, indented JSON text of a descriptor."""
+    """Validate a descriptor and return it as indented JSON text."""
     validate_descriptor(doc)
     return json.dumps(doc, indent=1) + "\n"
 
@@ -123,6 +127,7 @@ def inspect_descriptor(path) -> InspectReport:
     Returns
     -------
     InspectReport
+
     """
     path = Path(path)
     doc = load_descriptor(path)
@@ -151,7 +156,8 @@ def summary_lines(rep: InspectReport) -> list:
         kinds.setdefault(t["kind"], set()).add(t["key"])
     bands = d["bands"]["spectral_stacks"]["centre_nm"]
     lines = [
-        f"material '{d['name']}' ({d['format']} v{d['format_version']}, matgen {d['provenance']['matgen_version']})",
+        f"material '{d['name']}' ({d['format']} v{d['format_version']}, "
+        f"matgen {d['provenance']['matgen_version']})",
         f"  working space {d['working_space']}, illuminant {d['illuminant']}, "
         f"{d['units']['metres_per_scene_unit']:g} m per scene unit",
         f"  UDIM tiles: {', '.join(map(str, d['udim_tiles'])) if d['udim_tiles'] else 'single texture'}",
@@ -162,11 +168,15 @@ def summary_lines(rep: InspectReport) -> list:
             lines.append(f"  {kind}: {', '.join(sorted(kinds[kind]))}")
     lines.append(f"  targets: {', '.join(d['targets']) or 'none'}")
     s = d["statistics"]
-    lines.append(f"  texels {s.get('texels', 0)}, clamped to table {s.get('table_clamped_texels', 0)}, "
-                 f"clamped to encoding {s.get('encoding_clamped_texels', 0)}")
+    lines.append(
+        f"  texels {s.get('texels', 0)}, clamped to table {s.get('table_clamped_texels', 0)}, "
+        f"clamped to encoding {s.get('encoding_clamped_texels', 0)}"
+    )
     n = len(d["textures"]) + len(d.get("documents", {}))
-    lines.append(f"  files: {n} listed, {rep.checked} present, {len(rep.missing)} missing, "
-                 f"{len(rep.modified)} modified")
+    lines.append(
+        f"  files: {n} listed, {rep.checked} present, {len(rep.missing)} missing, "
+        f"{len(rep.modified)} modified"
+    )
     for p in rep.missing:
         lines.append(f"  MISSING  {p}")
     for p in rep.modified:

@@ -44,7 +44,9 @@ def _spec(width, height, channels, pixel_type, compression, attributes, tile_siz
     if pixel_type not in _PIXEL_TYPES:
         raise ImageError(f"EXR pixel type '{pixel_type}' is not one of {sorted(_PIXEL_TYPES)}")
     if compression not in LOSSLESS_COMPRESSIONS:
-        raise ImageError(f"EXR compression '{compression}' is not lossless; use one of {LOSSLESS_COMPRESSIONS}")
+        raise ImageError(
+            f"EXR compression '{compression}' is not lossless; use one of {LOSSLESS_COMPRESSIONS}"
+        )
     spec = oiio.ImageSpec(int(width), int(height), len(channels), _PIXEL_TYPES[pixel_type])
     spec.channelnames = tuple(channels)
     spec.attribute("compression", compression)
@@ -72,9 +74,12 @@ class StreamingExr:
         One of :data:`LOSSLESS_COMPRESSIONS`.
     attributes : dict, optional
         Extra header attributes (strings, ints or floats).
+
     """
 
-    def __init__(self, path, width, height, channels, *, pixel_type="half", compression="zip", attributes=None):
+    def __init__(
+        self, path, width, height, channels, *, pixel_type="half", compression="zip", attributes=None
+    ):
         self.path = Path(path)
         self.width, self.height, self.nchannels = int(width), int(height), len(channels)
         self._next_row = 0
@@ -95,18 +100,25 @@ class StreamingExr:
         y0 : int
             First row.
         rows : ndarray of float32, shape (h, width, channels)
+            The texels of those rows.
+
         """
         if self._out is None:
             raise ImageError(f"{self.path} is closed")
         if y0 != self._next_row:
-            raise ImageError(f"{self.path}: rows must be written in order; expected row {self._next_row}, got {y0}")
+            raise ImageError(
+                f"{self.path}: rows must be written in order; expected row {self._next_row}, got {y0}"
+            )
         rows = np.ascontiguousarray(rows, dtype=np.float32)
         if rows.ndim != 3 or rows.shape[1:] != (self.width, self.nchannels):
-            raise ImageError(f"{self.path}: strip of shape {rows.shape}; expected (h, {self.width}, "
-                             f"{self.nchannels})")
+            raise ImageError(
+                f"{self.path}: strip of shape {rows.shape}; expected (h, {self.width}, {self.nchannels})"
+            )
         if not self._out.write_scanlines(y0, y0 + rows.shape[0], 0, rows):
-            raise PathError(f"writing rows {y0}..{y0 + rows.shape[0] - 1} of {self.path} failed: "
-                            f"{self._out.geterror().strip()}")
+            raise PathError(
+                f"writing rows {y0}..{y0 + rows.shape[0] - 1} of {self.path} failed: "
+                f"{self._out.geterror().strip()}"
+            )
         self._next_row = y0 + rows.shape[0]
 
     def close(self) -> None:
@@ -153,7 +165,9 @@ def make_texture(src, dst, tile_size: int = 64) -> None:
     cfg.attribute("maketx:fixnan", "none")
     cfg.attribute("DateTime", FIXED_DATETIME)
     if not oiio.ImageBufAlgo.make_texture(oiio.MakeTxTexture, str(src), str(dst), cfg):
-        raise PathError(f"making a tiled mip-mapped texture {dst} from {src} failed: {oiio.geterror().strip()}")
+        raise PathError(
+            f"making a tiled mip-mapped texture {dst} from {src} failed: {oiio.geterror().strip()}"
+        )
 
 
 def read_exr(path):
@@ -163,6 +177,7 @@ def read_exr(path):
     ------
     ImageError
         If OpenImageIO cannot open or read it (missing, truncated, not an image).
+
     """
     path = Path(path)
     inp = oiio.ImageInput.open(str(path))
@@ -174,7 +189,10 @@ def read_exr(path):
         if data is None:
             raise ImageError(f"{path} cannot be read: {inp.geterror().strip()}")
         attrs = {a.name: a.value for a in spec.extra_attribs}
-        return np.asarray(data, dtype=np.float32).reshape(spec.height, spec.width, spec.nchannels), \
-            tuple(spec.channelnames), attrs
+        return (
+            np.asarray(data, dtype=np.float32).reshape(spec.height, spec.width, spec.nchannels),
+            tuple(spec.channelnames),
+            attrs,
+        )
     finally:
         inp.close()

@@ -11,6 +11,7 @@ Units: lengths in mm; renderer-target lengths in scene units.
 
 from __future__ import annotations
 
+import hashlib
 import os
 import shutil
 import time
@@ -36,20 +37,24 @@ STAGING_PREFIX = ".matgen-staging-"
 
 
 def load_table(config: BakeConfig):
-    """The table a config names: the shipped default table, or a table file."""
+    """Load the table a config names: the shipped default table, or a table file."""
     if config.table_path == "default":
         return load_default_table()
     return Table.load(config.table_path)
 
 
-def _table_identity(config: BakeConfig, table) -> tuple:
-    if config.table_path == "default":
-        path = default_table_path()
-    else:
-        path = Path(config.table_path)
-    if path.is_file():
-        return path.name, sha256_file(path)
-    return "in-memory", hash_json({"axes": [a.to_dict() for a in table.axes], "manifest": table.manifest})
+def _table_identity(table, table_source) -> tuple:
+    """(name, SHA-256) of the table used: of its file when known, else of its content (axes, quantities)."""
+    if table_source is not None and Path(table_source).is_file():
+        return Path(table_source).name, sha256_file(table_source)
+    h = hashlib.sha256()
+    for a in table.axes:
+        h.update(
+            a.name.encode() + a.spacing.encode() + np.ascontiguousarray(a.values, dtype=np.float64).tobytes()
+        )
+    for name in sorted(table.quantities):
+        h.update(name.encode() + np.ascontiguousarray(table.quantities[name], dtype=np.float32).tobytes())
+    return "in-memory table (content hash)", h.hexdigest()
 
 
 def _spectra_provenance(table) -> object:
@@ -99,7 +104,7 @@ def _process_alive(pid: int) -> bool:
 def _remove_stale_staging(out_dir: Path) -> None:
     for entry in out_dir.glob(STAGING_PREFIX + "*"):
         try:
-            pid = int(entry.name[len(STAGING_PREFIX):].split("-")[0])
+            pid = int(entry.name[len(STAGING_PREFIX) :].split("-")[0])
         except ValueError:
             continue
         if not _process_alive(pid) or pid == os.getpid():
@@ -127,32 +132,53 @@ def _openpbr_inputs(plan: BakePlan, spec_ior: float) -> dict:
     for spec in plan.outputs:
         if spec.kind == "target":
             path = f"{spec.key}.<UDIM>.exr" if udim else f"{spec.key}.exr"
-            inputs[spec.quantity] = {"texture": path, "unit": spec.unit,
-                                     "type": "color3" if len(spec.channels) == 3 else "float"}
+            inputs[spec.quantity] = {
+                "texture": path,
+                "unit": spec.unit,
+                "type": "color3" if len(spec.channels) == 3 else "float",
+            }
     if spec_ior is not None:  # the table's boundary index (mean over its grid)
         inputs["specular_ior"] = {"value": spec_ior, "type": "float", "unit": "1"}
     return inputs
 
 
 def _standard_surface_inputs(plan: BakePlan, spec_ior: float) -> dict:
-    """Standard Surface reads the OpenPBR maps: its RGB radius is OpenPBR's radius scale, its scale the radius."""
+    """Map Standard Surface inputs onto the OpenPBR maps (RGB radius = radius scale, scale = radius)."""
     udim = plan.tile_numbers[0] is not None
-    rename = {"subsurface_color": "subsurface_color", "subsurface_radius_scale": "subsurface_radius",
-              "subsurface_radius": "subsurface_scale", "subsurface_scatter_anisotropy": "subsurface_anisotropy"}
+    rename = {
+        "subsurface_color": "subsurface_color",
+        "subsurface_radius_scale": "subsurface_radius",
+        "subsurface_radius": "subsurface_scale",
+        "subsurface_scatter_anisotropy": "subsurface_anisotropy",
+    }
     inputs = {"subsurface": {"value": 1.0, "type": "float"}}
     for spec in plan.outputs:
         if spec.kind == "target" and spec.quantity in rename:
             path = f"{spec.key}.<UDIM>.exr" if udim else f"{spec.key}.exr"
-            inputs[rename[spec.quantity]] = {"texture": path, "unit": spec.unit,
-                                             "type": "color3" if len(spec.channels) == 3 else "float"}
+            inputs[rename[spec.quantity]] = {
+                "texture": path,
+                "unit": spec.unit,
+                "type": "color3" if len(spec.channels) == 3 else "float",
+            }
     if spec_ior is not None:
         inputs["specular_IOR"] = {"value": spec_ior, "type": "float", "unit": "1"}
     return inputs
 
 
-def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, tile: int | None = None,
-         dry_run: bool = False, allow_outside: bool = False, progress=None,
-         memory_budget_bytes: int = 256 << 20, rows: int | None = None) -> BakeResult:
+def bake(
+    config: BakeConfig,
+    out_dir,
+    *,
+    table=None,
+    table_source=None,
+    jobs: int | None = None,
+    tile: int | None = None,
+    dry_run: bool = False,
+    allow_outside: bool = False,
+    progress=None,
+    memory_budget_bytes: int = 256 << 20,
+    rows: int | None = None,
+) -> BakeResult:
     """Bake a material config into an output folder.
 
     Parameters
@@ -163,6 +189,9 @@ def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, ti
         Output folder (created if needed).
     table : matgen.tables.store.Table, optional
         Table to use instead of the one the config names.
+    table_source : str or Path, optional
+        The file ``table`` was loaded from, for the provenance record (without it the descriptor records a
+        hash of the table's content).
     jobs : int, optional
         Threads of the per-texel lookup and of OpenImageIO's EXR compression (default: all cores).
     tile : int, optional
@@ -181,16 +210,20 @@ def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, ti
     Returns
     -------
     BakeResult
+
     """
     t_start = time.perf_counter()
     out_dir = Path(out_dir)
-    table = table if table is not None else load_table(config)
+    if table is None:
+        table = load_table(config)
+        table_source = default_table_path() if config.table_path == "default" else config.table_path
     plan = plan_bake(config, table, tile=tile, allow_outside=allow_outside)
     files = planned_files(plan, config.name)
     if dry_run:
         check_inputs(plan)
-        return BakeResult(out_dir, None, files, plan.texels, dry_run=True,
-                          seconds=time.perf_counter() - t_start)
+        return BakeResult(
+            out_dir, None, files, plan.texels, dry_run=True, seconds=time.perf_counter() - t_start
+        )
     check_writable(out_dir)
     lock_name = ".matgen-bake.lock" if tile is None else f".matgen-bake.{int(tile)}.lock"
     with FolderLock(out_dir, name=lock_name, purpose="bake"):
@@ -201,7 +234,9 @@ def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, ti
         staging = out_dir / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
         staging.mkdir()
         try:
-            result = _bake_into(plan, table, staging, progress, memory_budget_bytes, rows, report)
+            result = _bake_into(
+                plan, table, table_source, staging, progress, memory_budget_bytes, rows, report
+            )
             _commit(staging, out_dir, result.files)
         finally:
             shutil.rmtree(staging, ignore_errors=True)
@@ -211,7 +246,9 @@ def bake(config: BakeConfig, out_dir, *, table=None, jobs: int | None = None, ti
     return result
 
 
-def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, report) -> BakeResult:
+def _bake_into(
+    plan: BakePlan, table, table_source, staging: Path, progress, budget, rows, report
+) -> BakeResult:
     cfg = plan.config
     opts = cfg.outputs
     lookup = TexelLookup(table, plan.request, derived=plan.derived)
@@ -227,16 +264,24 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
             for spec in plan.outputs:
                 rel = spec.file_name(ti.tile)
                 (staging / rel).parent.mkdir(parents=True, exist_ok=True)
-                attrs = dict(base_attrs, **{"matgen:quantity": spec.quantity, "matgen:unit": spec.unit,
-                                            "matgen:kind": spec.kind})
+                attrs = dict(
+                    base_attrs,
+                    **{"matgen:quantity": spec.quantity, "matgen:unit": spec.unit, "matgen:kind": spec.kind},
+                )
                 if spec.kind == "spectral":
                     attrs["spectralLayoutVersion"] = SPECTRAL_LAYOUT_VERSION
                 if spec.kind in ("rgb", "target") and len(spec.channels) == 3:
                     attrs["matgen:working_space"] = table.working_space
                 target = staging / (rel + ".scan.exr") if opts.texture else staging / rel
-                writers[spec.key] = StreamingExr(target, ti.width, ti.height, spec.channels,
-                                                 pixel_type=opts.pixel_type, compression=opts.compression,
-                                                 attributes=attrs)
+                writers[spec.key] = StreamingExr(
+                    target,
+                    ti.width,
+                    ti.height,
+                    spec.channels,
+                    pixel_type=opts.pixel_type,
+                    compression=opts.compression,
+                    attributes=attrs,
+                )
             for strip in iter_strips(plan, ti.tile, lookup=lookup, memory_budget_bytes=budget, rows=rows):
                 for key, w in writers.items():
                     w.write_rows(strip.y0, strip.values[key])
@@ -256,26 +301,36 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
             if opts.texture:
                 make_texture(staging / (rel + ".scan.exr"), staging / rel)
                 (staging / (rel + ".scan.exr")).unlink()
-            entries.append(texture_entry(spec, rel, staging / rel, ti.tile, ti.width, ti.height, opts.pixel_type,
-                                         opts.texture))
+            entries.append(
+                texture_entry(
+                    spec, rel, staging / rel, ti.tile, ti.width, ti.height, opts.pixel_type, opts.texture
+                )
+            )
             written.append(rel)
     ior = float(np.mean(table.quantities["ior"])) if "ior" in table.quantities else None
     targets = {}
     if "openpbr" in opts.targets:
-        targets["openpbr"] = {"shading_model": "OpenPBR Surface (MaterialX 1.39 open_pbr_surface)",
-                              "albedo_convention": "spec_remap: subsurface_color is van de Hulst's A of the "
-                                                   "effective single-scattering albedo (matgen.fit.targets)",
-                              "inputs": _openpbr_inputs(plan, ior)}
+        targets["openpbr"] = {
+            "shading_model": "OpenPBR Surface (MaterialX 1.39 open_pbr_surface)",
+            "albedo_convention": "spec_remap: subsurface_color is van de Hulst's A of the "
+            "effective single-scattering albedo (matgen.fit.targets)",
+            "inputs": _openpbr_inputs(plan, ior),
+        }
     if "standard_surface" in opts.targets:
-        targets["standard_surface"] = {"shading_model": "Autodesk Standard Surface (MaterialX standard_surface)",
-                                       "inputs": _standard_surface_inputs(plan, ior)}
+        targets["standard_surface"] = {
+            "shading_model": "Autodesk Standard Surface (MaterialX standard_surface)",
+            "inputs": _standard_surface_inputs(plan, ior),
+        }
     documents = {}
     if "material.mtlx" in planned_files(plan, cfg.name):
         from matgen.export.materialx import document_text, openpbr_document
 
         inputs = targets.get("openpbr", {}).get("inputs", {"subsurface_weight": {"value": 1.0}})
-        doc = openpbr_document(cfg.name, {k: {kk: vv for kk, vv in v.items() if kk in ("texture", "value")}
-                                          for k, v in inputs.items()}, table.working_space)
+        doc = openpbr_document(
+            cfg.name,
+            {k: {kk: vv for kk, vv in v.items() if kk in ("texture", "value")} for k, v in inputs.items()},
+            table.working_space,
+        )
         (staging / "material.mtlx").write_text(document_text(doc))
         documents["materialx"] = {"path": "material.mtlx", "sha256": sha256_file(staging / "material.mtlx")}
         written.append("material.mtlx")
@@ -285,22 +340,33 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
         if ior is None:
             raise DataError("the preview scene needs the table's boundary refractive index (quantity 'ior')")
         mean = {k: v / max(total, 1) for k, v in sums.items()}
-        xml = mitsuba_scene_xml(plan.spectral_bands.centre_nm, mean["spectral/albedo_single"],
-                                mean["spectral/mean_free_path_mm"],
-                                float(mean["openpbr/subsurface_scatter_anisotropy"][0]), ior,
-                                cfg.metres_per_scene_unit, name=cfg.name)
+        xml = mitsuba_scene_xml(
+            plan.spectral_bands.centre_nm,
+            mean["spectral/albedo_single"],
+            mean["spectral/mean_free_path_mm"],
+            float(mean["openpbr/subsurface_scatter_anisotropy"][0]),
+            ior,
+            cfg.metres_per_scene_unit,
+            name=cfg.name,
+        )
         (staging / "scene_mitsuba.xml").write_text(xml)
-        documents["mitsuba_scene"] = {"path": "scene_mitsuba.xml",
-                                      "sha256": sha256_file(staging / "scene_mitsuba.xml")}
+        documents["mitsuba_scene"] = {
+            "path": "scene_mitsuba.xml",
+            "sha256": sha256_file(staging / "scene_mitsuba.xml"),
+        }
         written.append("scene_mitsuba.xml")
-    table_name, table_hash = _table_identity(cfg, table)
+    table_name, table_hash = _table_identity(table, table_source)
     source = {k: v for k, v in cfg.source.items()}
     desc = {
         "format": DESCRIPTOR_FORMAT,
         "format_version": DESCRIPTOR_VERSION,
         "name": cfg.name,
-        "units": {"wavelength": "nm", "length": "mm", "scene_length": "scene_unit",
-                  "metres_per_scene_unit": cfg.metres_per_scene_unit},
+        "units": {
+            "wavelength": "nm",
+            "length": "mm",
+            "scene_length": "scene_unit",
+            "metres_per_scene_unit": cfg.metres_per_scene_unit,
+        },
         "bands": {"table": table.bands.to_dict(), "spectral_stacks": plan.spectral_bands.to_dict()},
         "working_space": table.working_space,
         "illuminant": table.illuminant,
@@ -313,14 +379,18 @@ def _bake_into(plan: BakePlan, table, staging: Path, progress, budget, rows, rep
             "matgen_version": __version__,
             "table": table_name,
             "table_sha256": table_hash,
-            "table_manifest": {k: v for k, v in (table.manifest or {}).items() if k in ("spec", "spec_hash",
-                                                                                        "name", "hash")},
+            "table_manifest": {
+                k: v for k, v in (table.manifest or {}).items() if k in ("spec", "spec_hash", "name", "hash")
+            },
             "spectra": _spectra_provenance(table),
             "config": source,
             "config_sha256": hash_json(source),
         },
-        "statistics": {"texels": int(plan.texels), "table_clamped_texels": int(n_table),
-                       "encoding_clamped_texels": int(n_enc)},
+        "statistics": {
+            "texels": int(plan.texels),
+            "table_clamped_texels": int(n_table),
+            "encoding_clamped_texels": int(n_enc),
+        },
     }
     name = _descriptor_name(plan)
     (staging / name).write_text(descriptor_json(desc))

@@ -14,8 +14,12 @@ from matgen._optional import require
 from matgen.errors import DataError
 
 #: matgen working-space names -> MaterialX colour-space names.
-MATERIALX_COLORSPACES = {"ACEScg": "acescg", "Rec.709": "lin_rec709", "sRGB linear": "lin_rec709",
-                         "ITU-R BT.709": "lin_rec709"}
+MATERIALX_COLORSPACES = {
+    "ACEScg": "acescg",
+    "Rec.709": "lin_rec709",
+    "sRGB linear": "lin_rec709",
+    "ITU-R BT.709": "lin_rec709",
+}
 
 #: OpenPBR input -> MaterialX type.
 OPENPBR_INPUT_TYPES = {
@@ -54,11 +58,14 @@ def openpbr_document(name: str, inputs: dict, working_space: str):
     ------
     DataError
         If the working space has no MaterialX name or the document fails MaterialX validation.
+
     """
     mx = require("MaterialX", "write MaterialX documents")
     if working_space not in MATERIALX_COLORSPACES:
-        raise DataError(f"working space '{working_space}' has no MaterialX colour-space name; known: "
-                        f"{sorted(MATERIALX_COLORSPACES)}")
+        raise DataError(
+            f"working space '{working_space}' has no MaterialX colour-space name; known: "
+            f"{sorted(MATERIALX_COLORSPACES)}"
+        )
     cs = MATERIALX_COLORSPACES[working_space]
     safe = "".join(ch if ch.isalnum() or ch == "_" else "_" for ch in name) or "material"
     if safe[0].isdigit():
@@ -69,7 +76,9 @@ def openpbr_document(name: str, inputs: dict, working_space: str):
     shader = doc.addNode("open_pbr_surface", f"{safe}_shader", "surfaceshader")
     for key, entry in inputs.items():
         if key not in OPENPBR_INPUT_TYPES:
-            raise DataError(f"'{key}' is not an OpenPBR input matgen writes; known: {sorted(OPENPBR_INPUT_TYPES)}")
+            raise DataError(
+                f"'{key}' is not an OpenPBR input matgen writes; known: {sorted(OPENPBR_INPUT_TYPES)}"
+            )
         typ = OPENPBR_INPUT_TYPES[key]
         inp = shader.addInput(key, typ)
         if "texture" in entry:

@@ -43,9 +43,18 @@ def _padded(wl, values):
     return wl, values, padded
 
 
-def mitsuba_scene_xml(wavelength_nm, albedo_single, mean_free_path_mm, anisotropy: float, ior: float,
-                      metres_per_scene_unit: float, *, name: str = "material", width: int = 256,
-                      samples: int = 64) -> str:
+def mitsuba_scene_xml(
+    wavelength_nm,
+    albedo_single,
+    mean_free_path_mm,
+    anisotropy: float,
+    ior: float,
+    metres_per_scene_unit: float,
+    *,
+    name: str = "material",
+    width: int = 256,
+    samples: int = 64,
+) -> str:
     """Mitsuba 3 XML of a sphere of the given homogeneous medium.
 
     Parameters
@@ -76,6 +85,7 @@ def mitsuba_scene_xml(wavelength_nm, albedo_single, mean_free_path_mm, anisotrop
     References
     ----------
     Mitsuba 3 documentation: ``homogeneous`` medium (albedo, sigma_t), ``hg`` phase, ``dielectric`` BSDF.
+
     """
     wl = np.asarray(wavelength_nm, dtype=np.float64)
     a = np.asarray(albedo_single, dtype=np.float64)
@@ -90,7 +100,9 @@ def mitsuba_scene_xml(wavelength_nm, albedo_single, mean_free_path_mm, anisotrop
     wl_a, a_p, pad = _padded(wl, a)
     wl_s, s_p, _ = _padded(wl, sigma_t)
     radius = PREVIEW_RADIUS_M / metres_per_scene_unit
-    note = (" End values repeated at 360 and 830 nm, the range Mitsuba's spectral sensors sample." if pad else "")
+    note = (
+        " End values repeated at 360 and 830 nm, the range Mitsuba's spectral sensors sample." if pad else ""
+    )
     return f"""<?xml version="1.0" encoding="utf-8"?>
 <!-- matgen preview scene of '{name}': a sphere of the material's mean-texel homogeneous medium.
      Lengths in scene units ({metres_per_scene_unit:g} m each); sigma_t in 1/scene unit.{note} -->

@@ -36,12 +36,27 @@ def make_test_table(bands=None) -> Table:
         "fit_residual": 0.01 + 0.01 * m * np.ones_like(wl),
     }
     rgb_idx = [bands.index_of(x) for x in (610.0, 550.0, 460.0)]
-    for name in ("albedo_multiple", "shape_distance_mm", "albedo_single", "mean_free_path_mm", "fit_residual"):
+    for name in (
+        "albedo_multiple",
+        "shape_distance_mm",
+        "albedo_single",
+        "mean_free_path_mm",
+        "fit_residual",
+    ):
         q[f"rgb_{name}"] = q[name][..., rgb_idx]
     q["ior"] = 1.4 + 0.0 * m
-    q = {k: np.asarray(np.broadcast_to(v, m.shape[:-1] + (v.shape[-1],)), dtype=np.float32) for k, v in q.items()}
-    return Table(axes=axes, bands=bands, quantities=q, working_space="ACEScg", illuminant="D65",
-                 manifest={"name": "bake-test-table", "note": "test data: smooth invented functions"})
+    q = {
+        k: np.asarray(np.broadcast_to(v, m.shape[:-1] + (v.shape[-1],)), dtype=np.float32)
+        for k, v in q.items()
+    }
+    return Table(
+        axes=axes,
+        bands=bands,
+        quantities=q,
+        working_space="ACEScg",
+        illuminant="D65",
+        manifest={"name": "bake-test-table", "note": "test data: smooth invented functions"},
+    )
 
 
 def write_map(path, values, pixel_type=oiio.FLOAT, channels=None):
@@ -105,7 +120,7 @@ passes = []
 
 
 def make_project(root, h=32, w=32, tiles=None, extra="", pixel_type="float", seed=0):
-    """A config folder with a table file and maps (single texture, or UDIM ``tiles``); returns the config path."""
+    """A config folder with a table file and maps (single texture, or UDIM ``tiles``); returns the config."""
     (root / "maps").mkdir(parents=True, exist_ok=True)
     make_test_table().save(root / "table.npz")
     for i, t in enumerate(tiles or [None]):

@@ -1,4 +1,4 @@
-"""Bad input: each gives one clear message (file, tile, texel), exit status 2, and no output written or left."""
+"""Bad input: each gives one clear message (file, tile, texel), exit status 2, and no output left."""
 
 import json
 import os
@@ -11,19 +11,22 @@ import time
 import numpy as np
 import pytest
 
+from matgen.bake.config import load_config
 from matgen.cli import main
 from matgen.errors import ImageError
 from matgen.export import exr as exr_module
 from matgen.export.job import bake
-from matgen.bake.config import load_config
 from matgen.fsutil import StaleLockWarning
 
 
 def _visible_files(folder):
     if not folder.exists():
         return []
-    return sorted(str(p.relative_to(folder)) for p in folder.rglob("*")
-                  if p.is_file() and not any(part.startswith(".") for part in p.relative_to(folder).parts))
+    return sorted(
+        str(p.relative_to(folder))
+        for p in folder.rglob("*")
+        if p.is_file() and not any(part.startswith(".") for part in p.relative_to(folder).parts)
+    )
 
 
 def _all_entries(folder):
@@ -131,10 +134,17 @@ def test_second_bake_into_locked_folder_refuses_naming_lock(tmp_path, kit, capsy
     cfg = kit.make_project(tmp_path / "p", 8, 8)
     out = tmp_path / "out"
     out.mkdir()
-    holder = subprocess.Popen([sys.executable, "-c",
-                               "import sys, time\nfrom matgen.fsutil import FolderLock\n"
-                               f"l = FolderLock({str(out)!r}, name='.matgen-bake.lock'); l.acquire()\n"
-                               "print('held', flush=True); time.sleep(60)"], stdout=subprocess.PIPE, text=True)
+    holder = subprocess.Popen(
+        [
+            sys.executable,
+            "-c",
+            "import sys, time\nfrom matgen.fsutil import FolderLock\n"
+            f"l = FolderLock({str(out)!r}, name='.matgen-bake.lock'); l.acquire()\n"
+            "print('held', flush=True); time.sleep(60)",
+        ],
+        stdout=subprocess.PIPE,
+        text=True,
+    )
     try:
         assert holder.stdout.readline().strip() == "held"
         err = _fails(capsys, ["bake", str(cfg), "--out", str(out), "--quiet"])
@@ -166,8 +176,11 @@ def test_failure_part_way_leaves_no_output(tmp_path, kit, monkeypatch):
 def test_killed_bake_leaves_no_partial_output_and_rerun_completes(tmp_path, kit):
     cfg = kit.make_project(tmp_path / "p", 256, 256)
     out = tmp_path / "out"
-    proc = subprocess.Popen([sys.executable, "-m", "matgen", "bake", str(cfg), "--out", str(out), "--quiet",
-                             "--memory-mb", "1"], stderr=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "matgen", "bake", str(cfg), "--out", str(out), "--quiet", "--memory-mb", "1"],
+        stderr=subprocess.PIPE,
+        text=True,
+    )
     deadline = time.monotonic() + 120
     killed = False
     while time.monotonic() < deadline and proc.poll() is None:

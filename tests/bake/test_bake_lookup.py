@@ -30,8 +30,9 @@ def _expected_params(root, table, tile=None):
     mel = _read_map(root / "maps" / f"melanin{sfx}.exr")
     eu = _read_map(root / "maps" / f"eumelanin{sfx}.exr")
     blood = _read_map(root / "maps" / f"blood{sfx}.png")
-    pts = np.stack([0.005 + mel * (0.45 - 0.005), eu, 0.002 + blood * (0.1 - 0.002), np.full_like(mel, 0.75)],
-                   axis=-1)
+    pts = np.stack(
+        [0.005 + mel * (0.45 - 0.005), eu, 0.002 + blood * (0.1 - 0.002), np.full_like(mel, 0.75)], axis=-1
+    )
     return pts
 
 
@@ -43,8 +44,18 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
     pts = _expected_params(tmp_path / "p", table)
     rng = np.random.default_rng(3)
     ys, xs = rng.integers(0, 24, 40), rng.integers(0, 40, 40)
-    ref, _ = table.lookup(pts[ys, xs], ["albedo_multiple", "mean_free_path_mm", "rgb_albedo_multiple",
-                                        "rgb_mean_free_path_mm", "rgb_albedo_single", "anisotropy", "ior"])
+    ref, _ = table.lookup(
+        pts[ys, xs],
+        [
+            "albedo_multiple",
+            "mean_free_path_mm",
+            "rgb_albedo_multiple",
+            "rgb_mean_free_path_mm",
+            "rgb_albedo_single",
+            "anisotropy",
+            "ior",
+        ],
+    )
     band_idx = [table.bands.index_of(c) for c in (400, 450, 500, 550, 600, 650, 700)]
     pix, chans, attrs = read_exr(out / "spectral" / "albedo_multiple.exr")
     order = [chans.index(f"T.{c},000000nm") for c in (400, 450, 500, 550, 600, 650, 700)]
@@ -57,20 +68,34 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
     np.testing.assert_array_equal(pix[ys, xs], ref["rgb_albedo_multiple"])
     # OpenPBR maps equal matgen.fit.targets' OpenPBR convention applied to the looked-up effective medium
     target = get_target("openpbr")
-    maps = {k: read_exr(out / "openpbr" / f"{k}.exr")[0][ys, xs] for k in
-            ("subsurface_color", "subsurface_radius", "subsurface_radius_scale", "subsurface_scatter_anisotropy")}
+    maps = {
+        k: read_exr(out / "openpbr" / f"{k}.exr")[0][ys, xs]
+        for k in (
+            "subsurface_color",
+            "subsurface_radius",
+            "subsurface_radius_scale",
+            "subsurface_scatter_anisotropy",
+        )
+    }
     for i in range(len(ys)):
         a = ref["albedo_multiple"][i].astype(np.float64)
         g = float(np.sum(a * ref["anisotropy"][i]) / np.sum(a))  # A-weighted mean g, as from_summary
-        medium = EffectiveMedium(ref["rgb_albedo_single"][i], ref["rgb_mean_free_path_mm"][i], np.full(3, g),
-                                 ior=float(ref["ior"][i, 0]))
+        medium = EffectiveMedium(
+            ref["rgb_albedo_single"][i],
+            ref["rgb_mean_free_path_mm"][i],
+            np.full(3, g),
+            ior=float(ref["ior"][i, 0]),
+        )
         inputs = target.to_inputs(medium, metres_per_scene_unit=0.01)
         np.testing.assert_allclose(maps["subsurface_color"][i], inputs["subsurface_color"], rtol=1e-6)
         np.testing.assert_allclose(maps["subsurface_radius"][i, 0], inputs["subsurface_radius"], rtol=1e-6)
-        np.testing.assert_allclose(maps["subsurface_radius_scale"][i], inputs["subsurface_radius_scale"], rtol=1e-6)
+        np.testing.assert_allclose(
+            maps["subsurface_radius_scale"][i], inputs["subsurface_radius_scale"], rtol=1e-6
+        )
         # the test table's g does not vary with pigment, so blending A g and A separately is exact here
-        np.testing.assert_allclose(maps["subsurface_scatter_anisotropy"][i, 0],
-                                   inputs["subsurface_scatter_anisotropy"], rtol=1e-6)
+        np.testing.assert_allclose(
+            maps["subsurface_scatter_anisotropy"][i, 0], inputs["subsurface_scatter_anisotropy"], rtol=1e-6
+        )
     assert res.table_clamped == 0 and res.texels == 40 * 24
 
 
@@ -87,8 +112,14 @@ def test_half_float_output_within_half_precision(tmp_path, kit):
 
 def test_texel_lookup_kernel_and_python_twin_agree(test_table):
     rng = np.random.default_rng(0)
-    pts = np.column_stack([rng.uniform(0.001, 0.6, 50), rng.uniform(-0.1, 1.1, 50), rng.uniform(0.001, 0.2, 50),
-                           rng.uniform(0.4, 1.0, 50)])
+    pts = np.column_stack(
+        [
+            rng.uniform(0.001, 0.6, 50),
+            rng.uniform(-0.1, 1.1, 50),
+            rng.uniform(0.001, 0.2, 50),
+            rng.uniform(0.4, 1.0, 50),
+        ]
+    )
     req = {"albedo_multiple": np.array([10, 25]), "rgb_fit_residual": None}
     a, ca = TexelLookup(test_table, req)(pts)
     b, cb = TexelLookup(test_table, req, backend="python")(pts)
@@ -149,7 +180,7 @@ def test_resolution_mismatch_error_or_resample(tmp_path, kit):
     kit.write_map(tmp_path / "p" / "maps" / "melanin.exr", mel)
     with pytest.raises(Exception, match=r"8 x 8.*16 x 16|resample"):
         plan_bake(load_config(cfg), kit.make_test_table())
-    text = cfg.read_text().replace("passes = []", 'passes = []\n') + '\n[input]\nresample = "bilinear"\n'
+    text = cfg.read_text().replace("passes = []", "passes = []\n") + '\n[input]\nresample = "bilinear"\n'
     cfg.write_text(text)
     res = bake(load_config(cfg), tmp_path / "out")
     assert res.texels == 256

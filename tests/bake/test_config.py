@@ -1,4 +1,4 @@
-"""Material config: schema checks name the field; constants, encodings and axes are checked against the table."""
+"""Material config: schema checks name the field; constants, encodings and axes checked against the table."""
 
 import re
 
@@ -18,7 +18,10 @@ def _base():
     [
         (lambda d: d.update(format_version=2), "format_version"),
         (lambda d: d.update(colour="red"), "(top level)"),
-        (lambda d: d["parameters"]["melanin_fraction"].update(encoding="gamma"), "parameters.melanin_fraction"),
+        (
+            lambda d: d["parameters"]["melanin_fraction"].update(encoding="gamma"),
+            "parameters.melanin_fraction",
+        ),
         (lambda d: d.update(outputs={"spectral": ["albedo_multipel"]}), "outputs.spectral.0"),
         (lambda d: d.update(scene={"metres_per_scene_unit": 0}), "scene.metres_per_scene_unit"),
         (lambda d: d.update(outputs={"exr": {"compression": "dwaa"}}), "outputs.exr.compression"),
@@ -78,7 +81,10 @@ def test_example_scene_config_is_valid():
     from pathlib import Path
 
     cfg = load_config(Path(__file__).parents[2] / "scenes" / "low_tide_lantern" / "material.toml")
-    assert cfg.is_udim is False and {p.name for p in cfg.map_parameters} >= {"melanin_fraction", "blood_fraction"}
+    assert cfg.is_udim is False and {p.name for p in cfg.map_parameters} >= {
+        "melanin_fraction",
+        "blood_fraction",
+    }
 
 
 def test_readme_config_example_is_valid(tmp_path):

@@ -18,9 +18,17 @@ def _check_demo_folder(out, size):
     desc = json.loads((out / "bake" / "material.json").read_text())
     assert desc["name"] == "ferry_pilot_face" and desc["working_space"] == "ACEScg"
     assert {t["key"] for t in desc["textures"]} >= {
-        "spectral/albedo_multiple", "spectral/albedo_single", "spectral/mean_free_path_mm",
-        "spectral/shape_distance_mm", "spectral/fit_residual", "rgb/albedo_multiple", "passes/uv365",
-        "passes/nir850", "openpbr/subsurface_color", "qa/qa"}
+        "spectral/albedo_multiple",
+        "spectral/albedo_single",
+        "spectral/mean_free_path_mm",
+        "spectral/shape_distance_mm",
+        "spectral/fit_residual",
+        "rgb/albedo_multiple",
+        "passes/uv365",
+        "passes/nir850",
+        "openpbr/subsurface_color",
+        "qa/qa",
+    }
     assert len(desc["bands"]["spectral_stacks"]["centre_nm"]) == 31
     for name in ("swatch_srgb.png", "uv365.png", "nir850.png", "spectra.png", "overview.png"):
         inp = oiio.ImageInput.open(str(out / "preview" / name))
@@ -41,8 +49,10 @@ def test_demo_end_to_end_with_a_test_table(tmp_path, kit, capsys):
     _check_demo_folder(out, 64)
 
 
-@pytest.mark.skipif(not default_table_path().is_file(), reason="the shipped default table lut/default.npz is "
-                    "not built in this checkout")
+@pytest.mark.skipif(
+    not default_table_path().is_file(),
+    reason="the shipped default table lut/default.npz is not built in this checkout",
+)
 def test_demo_end_to_end_with_the_default_table(tmp_path, capsys):
     out = tmp_path / "lowtide"
     assert main(["demo", "--out", str(out), "--size", "64"]) == 0

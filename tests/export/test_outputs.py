@@ -29,6 +29,7 @@ PASSES_EXTRA = 'passes = ["uv365", "nir850"]\n'
 
 def _texel_points(project):
     """Every texel's parameters in table-axis order, decoded as the test config does (row-major)."""
+
     def read(name):
         inp = oiio.ImageInput.open(str(project / "maps" / name))
         a = inp.read_image(oiio.FLOAT)[..., 0].astype(np.float64)
@@ -50,7 +51,7 @@ def baked(tmp_path_factory, kit):
 
 
 def test_spectral_exr_layout_read_by_colour_science(baked):
-    """colour-science 0.4.7 read_spectral_image_Fichet2021 finds the reflective component 'T' and its bands."""
+    """colour-science 0.4.7 read_spectral_image_Fichet2021 finds the reflective component 'T', its bands."""
     _, out, _ = baked
     path = out / "spectral" / "albedo_multiple.exr"
     components, spec = colour.io.read_spectral_image_Fichet2021(str(path), additional_data=True)
@@ -67,8 +68,14 @@ def test_spectral_exr_layout_read_by_colour_science(baked):
 
 def test_exr_round_trip_header_and_compression(tmp_path):
     pix = np.random.default_rng(0).uniform(0, 1, (5, 7, 2)).astype(np.float32)
-    write_exr(tmp_path / "a.exr", pix, ("T.400,000000nm", "T.410,000000nm"), pixel_type="float",
-              compression="piz", attributes={"spectralLayoutVersion": "1.0"})
+    write_exr(
+        tmp_path / "a.exr",
+        pix,
+        ("T.400,000000nm", "T.410,000000nm"),
+        pixel_type="float",
+        compression="piz",
+        attributes={"spectralLayoutVersion": "1.0"},
+    )
     back, chans, attrs = read_exr(tmp_path / "a.exr")
     np.testing.assert_array_equal(back, pix)
     assert attrs["compression"] == "piz" and attrs["spectralLayoutVersion"] == "1.0"
@@ -103,7 +110,10 @@ def test_descriptor_validates_and_paths_are_relative_with_checksums(baked):
         assert not t["path"].startswith("/") and ".." not in t["path"]
         assert (out / t["path"]).is_file()
     assert doc["documents"]["materialx"]["path"] == "material.mtlx"
-    assert doc["provenance"]["table_sha256"] == json.loads((baked[0] / "p" / "table.json").read_text())["npz_sha256"]
+    assert (
+        doc["provenance"]["table_sha256"]
+        == json.loads((baked[0] / "p" / "table.json").read_text())["npz_sha256"]
+    )
     bad = json.loads(json.dumps(doc))
     bad["textures"][0]["path"] = "../elsewhere.exr"
     with pytest.raises(ConfigError, match="textures.0.path"):
@@ -136,8 +146,14 @@ def test_materialx_document_passes_materialx_validation(baked):
     ok, msg = validate_file(out / "material.mtlx")
     assert ok, msg
     text = (out / "material.mtlx").read_text()
-    for name in ("subsurface_color", "subsurface_radius", "subsurface_radius_scale",
-                 "subsurface_scatter_anisotropy", "specular_ior", "open_pbr_surface"):
+    for name in (
+        "subsurface_color",
+        "subsurface_radius",
+        "subsurface_radius_scale",
+        "subsurface_scatter_anisotropy",
+        "specular_ior",
+        "open_pbr_surface",
+    ):
         assert name in text
     assert 'value="openpbr/subsurface_color.exr"' in text and 'colorspace="acescg"' in text
 
@@ -232,8 +248,10 @@ def test_mitsuba_preview_scene_loads_and_renders(tmp_path, kit):
     mi = pytest.importorskip("mitsuba")
     mi.set_variant("scalar_spectral")
     cfg = kit.make_project(tmp_path / "p", 8, 8)
-    text = cfg.read_text().replace('spectral = ["albedo_multiple", "mean_free_path_mm"]',
-                                   'spectral = ["albedo_single", "mean_free_path_mm"]\nmitsuba_scene = true')
+    text = cfg.read_text().replace(
+        'spectral = ["albedo_multiple", "mean_free_path_mm"]',
+        'spectral = ["albedo_single", "mean_free_path_mm"]\nmitsuba_scene = true',
+    )
     cfg.write_text(text)
     res = bake(load_config(cfg), tmp_path / "out")
     assert "scene_mitsuba.xml" in res.files
@@ -264,3 +282,22 @@ def test_user_csv_pass_and_progress_bar(tmp_path, kit, capsys):
     cfg.write_text(cfg.read_text().replace('"cam.csv"', '"../cam.csv"'))
     assert main(["bake", str(cfg), "--out", str(tmp_path / "out2"), "--quiet"]) == 2
     assert "outside" in capsys.readouterr().err
+
+
+def test_provenance_names_the_table_actually_used(tmp_path, kit):
+    cfg = kit.make_project(tmp_path / "p", 4, 4)
+    other = kit.make_test_table()
+    other.quantities["albedo_multiple"] *= 0.5
+    other.save(tmp_path / "other.npz")
+    res = bake(
+        load_config(cfg),
+        tmp_path / "a",
+        table=Table.load(tmp_path / "other.npz"),
+        table_source=tmp_path / "other.npz",
+    )
+    prov = json.loads(res.descriptor.read_text())["provenance"]
+    assert prov["table"] == "other.npz"
+    assert prov["table_sha256"] == json.loads((tmp_path / "other.json").read_text())["npz_sha256"]
+    res2 = bake(load_config(cfg), tmp_path / "b", table=other)
+    prov2 = json.loads(res2.descriptor.read_text())["provenance"]
+    assert prov2["table"].startswith("in-memory") and prov2["table_sha256"] != prov["table_sha256"]
