@@ -137,3 +137,15 @@ def test_default_inversion_is_the_shipped_table():
     alpha, scale = default_inversion_table().invert(a, 0.8, 1.4)
     np.testing.assert_allclose(q["albedo_single"], alpha, rtol=1e-12)
     np.testing.assert_allclose(q["mean_free_path_mm"], scale * d, rtol=1e-6)
+
+
+def test_pass_value_is_weighted_band_albedo():
+    from matgen.color import pass_weights
+    from matgen.fit.channels import pass_value
+    from matgen.spectra.bands import default_bands
+
+    b = default_bands()
+    a = np.linspace(0.1, 0.6, len(b))
+    v = pass_value("nir850", b, a)
+    assert v == pytest.approx(float(pass_weights("nir850", b) @ a))
+    assert 0.1 < v < 0.6
