@@ -7,9 +7,10 @@ pool workers die too). After each kill the output is checked:
 
 * every visible file (name not starting with ``.``) is complete: byte-identical to the same file of an
   uninterrupted reference run (so neither partial nor corrupt);
-* hidden leftovers are only temporary files of interrupted atomic writes, staging folders and lock files
-  of the dead process; they are counted and must not be taken for outputs by a rerun;
-* a rerun after the last kill completes and gives files byte-identical to the uninterrupted run.
+* leftovers are only hidden temporary files of interrupted atomic writes, hidden staging folders and lock
+  files of the dead process; they are counted and must not be taken for outputs by a rerun;
+* a rerun after the last kill completes, takes over the stale locks (none is left after it) and gives files
+  byte-identical to the uninterrupted run.
 """
 
 from __future__ import annotations
@@ -89,24 +90,29 @@ def _reap_group(pgid: int, wait_s: float = 10.0) -> None:
         time.sleep(0.05)
 
 
+def _is_leftover(rel: Path) -> bool:
+    """Hidden entries (temporaries, staging folders) and lock files are not outputs."""
+    return any(part.startswith(".") for part in rel.parts) or rel.name.endswith(".lock")
+
+
 def digest_tree(folder: Path) -> dict:
-    """SHA-256 of every visible file under ``folder`` (relative path -> hex); hidden entries are skipped."""
+    """SHA-256 of every output file under ``folder`` (relative path -> hex); leftovers are skipped."""
     out = {}
     if not folder.exists():
         return out
     for p in sorted(folder.rglob("*")):
         rel = p.relative_to(folder)
-        if any(part.startswith(".") for part in rel.parts) or not p.is_file():
+        if _is_leftover(rel) or not p.is_file():
             continue
         out[str(rel)] = hashlib.sha256(p.read_bytes()).hexdigest()
     return out
 
 
 def hidden_leftovers(folder: Path) -> list:
-    """Hidden files and folders under ``folder`` (temporaries, staging folders, lock files)."""
+    """Leftovers under ``folder``: hidden temporaries and staging folders, and lock files."""
     if not folder.exists():
         return []
-    return sorted(str(p.relative_to(folder)) for p in folder.rglob(".*"))
+    return sorted(str(p.relative_to(folder)) for p in folder.rglob("*") if _is_leftover(p.relative_to(folder)))
 
 
 @dataclass
@@ -121,12 +127,14 @@ class KillReport:
     partial_or_corrupt: list = field(default_factory=list)
     leftovers_max: int = 0
     rerun_identical: bool | None = None
+    locks_after_rerun: list = field(default_factory=list)
+    leftovers_after_rerun: list = field(default_factory=list)
     rerun_seconds: float = 0.0
     differing_files: list = field(default_factory=list)
 
     @property
     def ok(self) -> bool:
-        return not self.partial_or_corrupt and bool(self.rerun_identical)
+        return not self.partial_or_corrupt and bool(self.rerun_identical) and not self.locks_after_rerun
 
 
 def kill_campaign(what: str, args_for, reference: dict, reference_seconds: float, out_dirs, kills: int,
@@ -203,4 +211,8 @@ def kill_campaign(what: str, args_for, reference: dict, reference_seconds: float
                 same = False
                 rep.differing_files.append(f"{key}/{rel}")
     rep.rerun_identical = same
+    for folder in out_dirs.values():
+        left = hidden_leftovers(folder)
+        rep.leftovers_after_rerun += left
+        rep.locks_after_rerun += [x for x in left if x.endswith(".lock")]
     return rep

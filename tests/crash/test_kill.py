@@ -33,6 +33,7 @@ def _check(rep):
     assert rep.kills and rep.finished_before_kill < rep.kills, "no kill landed inside a run: the test tested nothing"
     assert not rep.partial_or_corrupt, "\n".join(rep.partial_or_corrupt)
     assert rep.rerun_identical, "rerun differs from the uninterrupted run: " + "; ".join(rep.differing_files)
+    assert not rep.locks_after_rerun, f"stale locks not taken over by the rerun: {rep.locks_after_rerun}"
 
 
 def test_killed_table_build_leaves_no_partial_output_and_resumes_identically(tmp_path):
