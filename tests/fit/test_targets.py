@@ -80,3 +80,48 @@ def test_bad_scale_and_name():
         get_target("nope")
     with pytest.raises(ParameterError, match="3 RGB"):
         TARGETS["openpbr"].to_inputs(BANDS, metres_per_scene_unit=0.01)
+
+
+@pytest.mark.parametrize(
+    "name, nodedef",
+    [
+        ("openpbr", "ND_open_pbr_surface_surfaceshader"),
+        ("standard_surface", "ND_standard_surface_surfaceshader"),
+    ],
+)
+def test_input_names_and_types_match_materialx(name, nodedef):
+    """Every input the target writes exists on the MaterialX 1.39 nodedef with the matching arity
+    (color3 -> 3 values, float -> 1); MaterialX's own library is the outside reference."""
+    mx = pytest.importorskip("MaterialX")
+    lib = mx.createDocument()
+    mx.loadLibraries(mx.getDefaultDataLibraryFolders(), mx.getDefaultDataSearchPath(), lib)
+    nd = lib.getNodeDef(nodedef)
+    types = {i.getName(): i.getType() for i in nd.getActiveInputs()}
+    inputs = TARGETS[name].to_inputs(RGB, metres_per_scene_unit=0.01)
+    for key, value in inputs.items():
+        if key in ("albedo_convention", "fit_residual"):
+            continue
+        assert key in types, key
+        assert (3 if types[key] == "color3" else 1) == np.size(value), key
+
+
+def test_round_trips_through_boundary_table():
+    """reflectance_mfp with the boundary-aware table, and OpenPBR's 'observed' colour convention."""
+    from matgen.fit.inversion import has_default_table
+
+    if not has_default_table():
+        pytest.skip("inversion table not built")
+    t = TARGETS["reflectance_mfp"]
+    _close(t.from_inputs(t.to_inputs(BANDS, metres_per_scene_unit=0.01), metres_per_scene_unit=0.01), BANDS)
+    from matgen.fit.inversion import albedo_multiple
+
+    rgb = EffectiveMedium(
+        RGB.albedo_single,
+        RGB.mean_free_path_mm,
+        RGB.anisotropy,
+        RGB.ior,
+        albedo_multiple=albedo_multiple(RGB.albedo_single, RGB.anisotropy, RGB.ior),
+    )
+    o = TARGETS["openpbr"]
+    inputs = o.to_inputs(rgb, metres_per_scene_unit=0.01, albedo_convention="observed")
+    _close(o.from_inputs(inputs, metres_per_scene_unit=0.01), rgb)
