@@ -1,9 +1,11 @@
 """``matgen fit RESULT.json``: fitted profile parameters, effective medium and every target's inputs.
 
-Input: the JSON that ``matgen simulate STACK.json --profile --json`` writes, either one transport result
-(:meth:`TransportResult.to_dict`, one band) or a per-band document ``{"bands": {centre_nm, lower_nm,
-upper_nm}, "results": [one transport result per band]}``. A ``"stack"`` entry (``Stack.to_dict``), if present,
-supplies the default boundary index (its first layer's n).
+Input: the JSON that ``matgen simulate STACK.json --profile --json`` writes: one transport result
+(:meth:`TransportResult.to_dict`, one band, optionally with ``wavelength_nm``), or ``{"bands": [one result
+per band, each with wavelength_nm]}`` (bands of 10 nm around each wavelength, narrower where neighbours are
+closer). Also accepted: ``{"bands": {centre_nm, lower_nm, upper_nm}, "results": [...]}`` with explicit band
+edges. A ``"stack"`` entry (``Stack.to_dict``), if present, supplies the default boundary index (its first
+layer's n); otherwise give ``--ior`` (default 1.0, index matched).
 """
 
 from __future__ import annotations
@@ -76,7 +78,14 @@ def _read(path: Path):
     if not isinstance(doc, dict):
         raise ConfigError(f"{path.name}: expected a JSON object")
     try:
-        if "results" in doc:
+        if isinstance(doc.get("bands"), list):
+            # matgen simulate --json with wavelength_nm in STACK.json: {"bands": [result per band]}
+            results = [TransportResult.from_dict(r) for r in doc["bands"]]
+            waves = [r.get("wavelength_nm") for r in doc["bands"]]
+            bands = None
+            if all(w is not None for w in waves):
+                bands = BandSet.parse(",".join(repr(float(w)) for w in waves))
+        elif "results" in doc:
             results = [TransportResult.from_dict(r) for r in doc["results"]]
             bands = BandSet.from_dict(doc["bands"]) if "bands" in doc else None
         else:

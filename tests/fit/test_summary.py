@@ -149,3 +149,27 @@ def test_pass_value_is_weighted_band_albedo():
     v = pass_value("nir850", b, a)
     assert v == pytest.approx(float(pass_weights("nir850", b) @ a))
     assert 0.1 < v < 0.6
+
+
+def test_simulate_then_fit_end_to_end(tmp_path, capsys):
+    """`matgen simulate STACK.json --profile --json` output (three visible bands) read by `matgen fit`."""
+    stack = {
+        "n_above": 1.0,
+        "n_below": 1.4,
+        "wavelength_nm": [450.0, 550.0, 650.0],
+        "layers": [
+            {"name": "bulk", "thickness_mm": 20.0, "n": 1.4, "mu_a": [0.3, 0.1, 0.02], "mu_s": 20.0, "g": 0.8}
+        ],
+    }
+    (tmp_path / "stack.json").write_text(json.dumps(stack))
+    assert main(["simulate", str(tmp_path / "stack.json"), "--photons", "20000", "--profile", "--json"]) == 0
+    (tmp_path / "result.json").write_text(capsys.readouterr().out)
+    assert main(["fit", str(tmp_path / "result.json"), "--json", "--anisotropy", "0.8", "--ior", "1.4"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert [b["wavelength_nm"] for b in out["bands"]] == [450.0, 550.0, 650.0]
+    a = [b["albedo_multiple"] for b in out["bands"]]
+    assert a[0] < a[1] < a[2]  # less absorption, more reflectance
+    # the effective medium reproduces the stack's own albedo: same mu_a / mu_s, g and n as the table node
+    alpha_true = 20.0 / (20.0 + np.array([0.3, 0.1, 0.02]))
+    np.testing.assert_allclose([b["albedo_single"] for b in out["bands"]], alpha_true, atol=0.01)
+    assert "openpbr" in out["targets"]
