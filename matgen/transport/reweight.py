@@ -34,6 +34,7 @@ References: ``Graaff1993condensed``, ``Alerstam2008white``.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numba
@@ -54,9 +55,9 @@ from matgen.transport.tallies import mean_and_stderr, projected_solid_angle_sr, 
 __all__ = ["reweight", "ReweightedResults", "PhotonRecords"]
 
 #: Photons per summation block (fixed, so sums do not depend on the thread count).
-BLOCK_PHOTONS = 65536
+BLOCK_PHOTONS = 8192
 #: Absorption sets handled per kernel call (bounds the memory of partial sums).
-SETS_PER_BATCH = 256
+SETS_PER_BATCH = 64
 
 # scalar accumulators per set
 _RD, _RD2, _TT, _TT2, _DA, _DA2, _DAW = range(7)
@@ -66,7 +67,10 @@ _NS = 7
 @njit(cache=True, parallel=True)
 def _reweight_kernel(path, wpath, weight, side, ring_bin, cos_bin, depth_frac, dmu, mu_new, launch_w, n_blocks,
                      n_rings, n_cos):
-    """Partial sums (K, n_blocks, Q) of every tally for K absorption sets; see the module docstring."""
+    """Partial sums (n_blocks, K, Q) of every tally for K absorption sets; see the module docstring.
+
+    Photon-major: each block of photons is read once and every set is applied to each photon in turn.
+    """
     n = weight.size
     n_layers = path.shape[1]
     n_sets = dmu.shape[0]
@@ -74,53 +78,60 @@ def _reweight_kernel(path, wpath, weight, side, ring_bin, cos_bin, depth_frac, d
     o_ring = o_abs + 2 * n_layers
     o_cos = o_ring + 2 * n_rings
     size = o_cos + 2 * n_cos
-    out = np.zeros((n_sets, n_blocks, size), dtype=np.float64)
-    for t in prange(n_sets * n_blocks):
-        k = t // n_blocks
-        b = t - k * n_blocks
+    out = np.zeros((n_blocks, n_sets, size), dtype=np.float64)
+    for b in prange(n_blocks):
         start = b * BLOCK_PHOTONS
         stop = min(n, start + BLOCK_PHOTONS)
-        acc = out[k, b]
+        acc = out[b]
+        lp = np.empty(n_layers)
+        lw = np.empty(n_layers)
         for i in range(start, stop):
             sd = side[i]
-            wp = 0.0
-            if sd != 0:
-                e = 0.0
-                for j in range(n_layers):
-                    e += dmu[k, j] * path[i, j]
-                wp = weight[i] * np.exp(-e)
-                if sd == 1:
-                    acc[_RD] += wp
-                    acc[_RD2] += wp * wp
-                    r = ring_bin[i]
-                    if r >= 0:
-                        acc[o_ring + r] += wp
-                        acc[o_ring + n_rings + r] += wp * wp
-                    c = cos_bin[i]
-                    if c >= 0:
-                        acc[o_cos + c] += wp
-                        acc[o_cos + n_cos + c] += wp * wp
-                    a = wp * depth_frac[i]
-                    acc[_DA] += a
-                    acc[_DA2] += a * a
-                    acc[_DAW] += a * wp
-                else:
-                    acc[_TT] += wp
-                    acc[_TT2] += wp * wp
-            a = launch_w - wp
-            if a != 0.0:
-                denom = 0.0
-                for j in range(n_layers):
-                    denom += mu_new[k, j] * wpath[i, j]
-                if denom > 0.0:
-                    f = a / denom
+            for j in range(n_layers):
+                lp[j] = path[i, j]
+                lw[j] = wpath[i, j]
+            w_ref = weight[i]
+            rb = ring_bin[i]
+            cb = cos_bin[i]
+            df = depth_frac[i]
+            for k in range(n_sets):
+                wp = 0.0
+                if sd != 0:
+                    e = 0.0
                     for j in range(n_layers):
-                        aj = f * mu_new[k, j] * wpath[i, j]
-                        acc[o_abs + j] += aj
-                        acc[o_abs + n_layers + j] += aj * aj
-                else:
-                    acc[o_abs] += a
-                    acc[o_abs + n_layers] += a * a
+                        e += dmu[k, j] * lp[j]
+                    wp = w_ref * math.exp(-e)
+                    if sd == 1:
+                        w2 = wp * wp
+                        acc[k, _RD] += wp
+                        acc[k, _RD2] += w2
+                        if rb >= 0:
+                            acc[k, o_ring + rb] += wp
+                            acc[k, o_ring + n_rings + rb] += w2
+                        if cb >= 0:
+                            acc[k, o_cos + cb] += wp
+                            acc[k, o_cos + n_cos + cb] += w2
+                        a = wp * df
+                        acc[k, _DA] += a
+                        acc[k, _DA2] += a * a
+                        acc[k, _DAW] += a * wp
+                    else:
+                        acc[k, _TT] += wp
+                        acc[k, _TT2] += wp * wp
+                a = launch_w - wp
+                if a != 0.0:
+                    denom = 0.0
+                    for j in range(n_layers):
+                        denom += mu_new[k, j] * lw[j]
+                    if denom > 0.0:
+                        f = a / denom
+                        for j in range(n_layers):
+                            aj = f * mu_new[k, j] * lw[j]
+                            acc[k, o_abs + j] += aj
+                            acc[k, o_abs + n_layers + j] += aj * aj
+                    else:
+                        acc[k, o_abs] += a
+                        acc[k, o_abs + n_layers] += a * a
     return out
 
 
@@ -252,9 +263,9 @@ def reweight(records: PhotonRecords, mu_a_sets, *, ring_edges_mm=None, exit_cos_
                                     np.ascontiguousarray(dmu[s:s + SETS_PER_BATCH]),
                                     np.ascontiguousarray(mu[s:s + SETS_PER_BATCH]), launch_w, n_blocks,
                                     n_rings, n_cos)
-            acc = np.zeros(part.shape[::2])
+            acc = np.zeros(part.shape[1:])
             for b in range(n_blocks):  # fixed order of blocks
-                acc += part[:, b, :]
+                acc += part[b]
             parts.append(acc)
     finally:
         numba.set_num_threads(old)
