@@ -456,7 +456,8 @@ def check_inputs(plan: BakePlan) -> InputReport:
 
 @dataclass
 class Strip:
-    """Rows ``y0 .. y1-1`` of one tile: every output's texels, float32 (rows, width, channels)."""
+    """Rows ``y0 .. y1-1`` of one tile: every output's texels (rows, width, channels), float16 for half
+    outputs, else float32."""
 
     tile: int | None
     y0: int
@@ -503,7 +504,9 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
             if "fit_residual" in spec.channels:
                 cols.append(vals["rgb_fit_residual"].max(axis=1))
             v = np.stack(cols, axis=1)
-        out[spec.key] = np.ascontiguousarray(np.asarray(v, dtype=np.float32).reshape(h, w, -1))
+        # half outputs are rounded here (numpy's round-to-nearest-even cast), so the writer passes them through
+        dtype = np.float16 if plan.config.outputs.pixel_type == "half" else np.float32
+        out[spec.key] = np.ascontiguousarray(np.asarray(v).reshape(h, w, -1), dtype=dtype)
     return out, int(clamped.sum())
 
 

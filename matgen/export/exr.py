@@ -99,8 +99,8 @@ class StreamingExr:
         ----------
         y0 : int
             First row.
-        rows : ndarray of float32, shape (h, width, channels)
-            The texels of those rows.
+        rows : ndarray of float16 or float32, shape (h, width, channels)
+            The texels of those rows (float16 is written as is to a half file).
 
         """
         if self._out is None:
@@ -109,7 +109,10 @@ class StreamingExr:
             raise ImageError(
                 f"{self.path}: rows must be written in order; expected row {self._next_row}, got {y0}"
             )
-        rows = np.ascontiguousarray(rows, dtype=np.float32)
+        rows = np.asarray(rows)
+        if rows.dtype not in (np.float16, np.float32):
+            rows = rows.astype(np.float32)
+        rows = np.ascontiguousarray(rows)
         if rows.ndim != 3 or rows.shape[1:] != (self.width, self.nchannels):
             raise ImageError(
                 f"{self.path}: strip of shape {rows.shape}; expected (h, {self.width}, {self.nchannels})"
