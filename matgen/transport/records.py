@@ -25,6 +25,7 @@ References: ``Alerstam2008white``, ``Graaff1993condensed``.
 from __future__ import annotations
 
 import json
+import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -99,7 +100,7 @@ class PhotonRecords:
             with np.load(p, allow_pickle=False) as z:
                 meta = json.loads(str(z["meta"]))
                 arrays = {a: z[a] for a in _ARRAYS}
-        except (OSError, KeyError, ValueError) as exc:
+        except (OSError, KeyError, ValueError, zipfile.BadZipFile, EOFError) as exc:
             raise DataError(f"photon records file '{p}' cannot be read: {exc}") from exc
         if meta.get("format") != _FORMAT:
             raise DataError(f"photon records file '{p}' has format {meta.get('format')!r}, expected {_FORMAT}")
