@@ -18,8 +18,9 @@ from matgen.fsutil import atomic_path
 from matgen.scenario import DEFAULT_SEED, write_scenario
 from matgen.tables.store import Table, default_table_path
 
-#: Percentiles that set the grey scale of the pass previews (each pass scaled on its own).
-PASS_PREVIEW_PERCENTILES = (1.0, 99.0)
+#: Percentile of each pass map shown as white in its preview (black is 0): like a camera exposed for the skin,
+#: so a pass with little contrast looks even and one with much contrast shows it.
+PASS_PREVIEW_WHITE_PERCENTILE = 99.0
 
 
 def register(sub):
@@ -71,9 +72,9 @@ def _srgb_from_working(rgb: np.ndarray, working_space: str) -> np.ndarray:
 
 
 def _scaled(values: np.ndarray) -> tuple:
-    lo, hi = np.percentile(values, PASS_PREVIEW_PERCENTILES)
-    hi = hi if hi > lo else lo + 1e-6
-    return (values - lo) / (hi - lo), float(lo), float(hi)
+    hi = float(np.percentile(values, PASS_PREVIEW_WHITE_PERCENTILE))
+    hi = hi if hi > 0 else 1.0
+    return values / hi, 0.0, hi
 
 
 def _previews(out: Path, bake_dir: Path, config, table, maps) -> list:
@@ -114,7 +115,7 @@ def _previews(out: Path, bake_dir: Path, config, table, maps) -> list:
     panels = [(srgb, "daylight (sRGB view of ACEScg albedo)", None)]
     for name, title in (("uv365", "365 nm inspection lamp"), ("nir850", "850 nm security camera")):
         v, lo, hi = scales[name]
-        panels.append((v, f"{title}\n(grey {lo:.3f}..{hi:.3f})", (lo, hi)))
+        panels.append((v, f"{title}\n(black 0, white {hi:.3f})", (lo, hi)))
     for ax, (img, title, rng) in zip(axes[:3], panels, strict=True):
         if rng is None:
             ax.imshow(np.clip(img, 0, 1))
