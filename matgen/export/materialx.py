@@ -1,5 +1,6 @@
 """MaterialX document: an OpenPBR surface whose subsurface inputs read the baked RGB maps.
 
+References: ``MaterialX139`` (the MaterialX 1.39 specification), ``OpenPBR2024`` (the surface's inputs).
 Written with the ``materialx`` package (1.39, which ships the ``open_pbr_surface`` node definition) and
 checked with its own ``Document.validate()`` against the standard data libraries before it is written, so a
 misspelt input or a wrong type is refused. Image nodes use MaterialX's ``<UDIM>`` token for UDIM sets.

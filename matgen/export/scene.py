@@ -84,7 +84,7 @@ def mitsuba_scene_xml(
 
     References
     ----------
-    Mitsuba 3 documentation: ``homogeneous`` medium (albedo, sigma_t), ``hg`` phase, ``dielectric`` BSDF.
+    ``Jakob2022mitsuba3``: the ``homogeneous`` medium (albedo, sigma_t), ``hg`` phase, ``dielectric`` BSDF.
 
     """
     wl = np.asarray(wavelength_nm, dtype=np.float64)
