@@ -1,9 +1,8 @@
 """OpenEXR texture writing through OpenImageIO: streamed rows, spectral layout, optional tiled mip-maps.
 
-Spectral stacks follow the spectral OpenEXR layout of Fichet, Pacanowski & Wilkie (2021, JCGT 10(3); bibliography
-key ``Fichet2021``): one
-channel per band named ``T.<wavelength>nm`` with a decimal comma and six decimals (``T.550,000000nm``) and
-the header attribute ``spectralLayoutVersion = "1.0"``. matgen adds its own attributes under ``matgen:``
+Spectral stacks follow the spectral OpenEXR layout of Fichet, Pacanowski & Wilkie (2021, JCGT 10(3);
+``Fichet2021``): one channel per band named ``T.<wavelength>nm`` with a decimal comma and six decimals
+(``T.550,000000nm``) and the header attribute ``spectralLayoutVersion = "1.0"``. matgen adds its own attributes under ``matgen:``
 (quantity, unit). Pixels are half float by default (float on request) with lossless compression (zip by
 default; DWA is refused because it is lossy on such data). The ``DateTime`` attribute is fixed so that the
 same texels always give the same bytes (the descriptor's checksums are then reproducible).
