@@ -174,6 +174,10 @@ def plot_radial_profiles(
             ax.plot(r[m > 0], m[m > 0], "-", color=colour, lw=1.4, label=f"{label} {name}")
     ax.set_xscale("log")
     ax.set_yscale("log")
+    data = np.concatenate([np.asarray(y, dtype=np.float64).ravel() for y in profiles.values()])
+    data = data[data > 0]
+    if data.size:  # frame the Monte Carlo data; model tails far below it say nothing
+        ax.set_ylim(0.3 * data.min(), 3.0 * data.max())
     ax.set_xlabel("radius r (mm)")
     ax.set_ylabel("radial reflectance R(r) (mm$^{-2}$)")
     ax.set_title(title)
