@@ -1,5 +1,7 @@
 """Closed-form albedo inversions and the exact isotropic half-space reference."""
 
+import functools
+
 import numpy as np
 import pytest
 
@@ -14,7 +16,8 @@ from matgen.fit.inversion import (
 )
 
 
-def h_function(albedo, mu, nodes=400):
+@functools.lru_cache(maxsize=None)
+def h_function(albedo, mu, nodes=200):
     """Chandrasekhar's H-function for isotropic scattering, by iterating
     1/H(mu) = sqrt(1 - a) + (a/2) int_0^1 mu' H(mu') / (mu + mu') dmu' (Chandrasekhar 1960, Ch. V)
     on Gauss-Legendre nodes. A slow literal reference, not matgen code."""
