@@ -46,4 +46,15 @@ FINDINGS = [
     {"target": "map_exr", "input": "EXR with attribute type 'chlist' overwritten by b'ch\\xc9ist'",
      "escaped": "UnicodeDecodeError from oiio.geterror()", "where": "matgen/bake/maps.py map_info",
      "status": "open", "test": "test_found_inputs.py::test_exr_with_non_utf8_attribute_type_is_image_error"},
+    {"target": "photon_records", "input": "one stored byte of 'weight.npy' flipped (bad CRC)",
+     "escaped": "zipfile.BadZipFile", "where": "matgen/transport/records.py PhotonRecords.load", "status": "fixed",
+     "test": "test_found_inputs.py::test_records_file_with_bad_crc_is_data_error"},
+    {"target": "photon_records", "input": "'weight.npy' declaring shape (10**11,) with 16 bytes of data",
+     "escaped": "numpy _ArrayMemoryError (373 GiB requested)", "where": "matgen/transport/records.py "
+     "PhotonRecords.load", "status": "open",
+     "test": "test_found_inputs.py::test_records_file_declaring_huge_arrays_is_refused_before_allocation"},
+    {"target": "crash_safety", "input": "np.savez failing midway in PhotonRecords.save",
+     "escaped": "partial rec.npz left at the destination", "where": "matgen/transport/records.py "
+     "PhotonRecords.save", "status": "open",
+     "test": "test_found_inputs.py::test_records_save_failing_midway_leaves_no_partial_file"},
 ]

@@ -73,6 +73,19 @@ class Target:
     time_budget_s: float = 10.0
     notes: str = ""
     _seed_cache: list = field(default_factory=list, repr=False)
+    _warm: bool = field(default=False, repr=False)
+
+    def warm_up(self) -> None:
+        """Run each seed once without a time budget, so kernel compilation and first imports are not hangs."""
+        if self._warm:
+            return
+        self._warm = True
+        for seed in self.seed_corpus():
+            with tempfile.TemporaryDirectory(prefix="matgen-warm-") as d:
+                try:
+                    self.run(seed, Path(d))
+                except Exception:  # noqa: BLE001 - judged later, with the budget, by run_case
+                    pass
 
     def available(self) -> tuple[bool, str]:
         """Whether the modules the target needs import, and why not."""
@@ -130,6 +143,7 @@ def run_case(target: Target, data: bytes, scratch: Path | None = None) -> str:
     Failure
         Another exception type, an empty message, a hang, or a partial output.
     """
+    target.warm_up()
     own = scratch is None
     scratch = Path(tempfile.mkdtemp(prefix="matgen-fuzz-")) if own else Path(scratch)
     try:

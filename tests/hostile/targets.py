@@ -242,6 +242,7 @@ KNOWN_OPEN: dict[str, list[tuple[str, str]]] = {
         (r"^AttributeError: '\w+' object has no attribute 'get'", "Table.load: manifest not a JSON object"),
     ],
     "table_declared_shape": [(r"^TokenError", "numpy .npy header TokenError escapes Table.load")],
+    "photon_records": [(r"^(_ArrayMemoryError|MemoryError)", "PhotonRecords.load checks no size ceiling")],
     "map_exr": [(r"^UnicodeDecodeError", "oiio.geterror() UnicodeDecodeError in map_info")],
     "map_png": [(r"^UnicodeDecodeError", "oiio.geterror() UnicodeDecodeError in map_info")],
     "map_tif": [(r"^UnicodeDecodeError", "oiio.geterror() UnicodeDecodeError in map_info")],
@@ -463,3 +464,53 @@ def _response_csv(data: bytes, scratch: Path):
     p.write_bytes(data)
     w = np.asarray(pass_weights(p, BandSet.regular(300.0, 1000.0, 10.0)))
     assert np.all(np.isfinite(w)) and abs(float(w.sum()) - 1.0) < 1e-6, f"weights not normalised: {w}"
+
+
+# ---------------------------------------------------------------------------------------------------------
+# transport inputs: STACK.json of `matgen simulate`, photon records files
+
+
+def _stack_json_seeds(_d: Path) -> list:
+    one = {"n_above": 1.0, "n_below": 1.0, "layers": [
+        {"thickness_mm": 0.1, "n": 1.4, "mu_a": 0.5, "mu_s": 30.0, "g": 0.8, "name": "epidermis"},
+        {"thickness_mm": 1.5, "n": 1.4, "mu_a": 0.05, "mu_s": 20.0, "g": 0.85, "name": "dermis"}]}
+    multi = {"wavelength_nm": [450.0, 650.0], "layers": [
+        {"thickness_mm": 0.2, "n": [1.4, 1.39], "mu_a": [0.9, 0.2], "mu_s": [40.0, 25.0], "g": 0.8}]}
+    return [json.dumps(one).encode(), json.dumps(multi).encode()]
+
+
+@target("stack_json", _stack_json_seeds, requires=("matgen.cli.simulate", "matgen.transport.simulate"),
+        notes="matgen simulate's STACK.json reader, then a 200-photon run of each stack read")
+def _stack_json(data: bytes, scratch: Path):
+    from matgen.cli.simulate import load_stacks
+    from matgen.transport.simulate import simulate
+
+    p = scratch / "stack.json"
+    p.write_bytes(data)
+    for _wl, stack in load_stacks(p):
+        simulate(stack, 200, seed=1, threads=1)
+
+
+def _records_seeds(d: Path) -> list:
+    from matgen.transport.simulate import simulate
+    from matgen.transport.stack import Stack
+
+    stack = Stack([0.1, 1.0], [1.4, 1.4], [0.5, 0.05], [30.0, 20.0], [0.8, 0.85])
+    _, rec = simulate(stack, 300, seed=3, threads=1, records=True)
+    p = d / "rec.npz"
+    rec.save(p)
+    return [p.read_bytes()]
+
+
+@target("photon_records", _records_seeds, requires=("matgen.transport.records", "matgen.transport.reweight"),
+        notes="PhotonRecords.load on a mutated records file, then a reweighting of what loaded")
+def _photon_records(data: bytes, scratch: Path):
+    import numpy as np
+
+    from matgen.transport.records import PhotonRecords
+    from matgen.transport.reweight import reweight
+
+    p = scratch / "rec.npz"
+    p.write_bytes(data)
+    rec = PhotonRecords.load(p)
+    reweight(rec, np.array([[0.5, 0.05]]), threads=1)

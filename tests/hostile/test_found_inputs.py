@@ -242,3 +242,82 @@ def test_exr_with_non_utf8_attribute_type_is_image_error(tmp_path):
         warnings.simplefilter("ignore")
         with pytest.raises(ImageError, match="melanin"):
             bake(load_config(cfg), tmp_path / "out", jobs=1)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# photon records (matgen/transport/records.py)
+
+
+def _records_file(tmp_path):
+    from matgen.transport.simulate import simulate
+    from matgen.transport.stack import Stack
+
+    stack = Stack([0.1, 1.0], [1.4, 1.4], [0.5, 0.05], [30.0, 20.0], [0.8, 0.85])
+    _, rec = simulate(stack, 300, seed=3, threads=1, records=True)
+    p = tmp_path / "rec.npz"
+    rec.save(p)
+    return p
+
+
+def test_records_file_with_bad_crc_is_data_error(tmp_path):
+    """A records .npz with one stored byte of 'weight.npy' flipped (CRC mismatch) raised zipfile.BadZipFile."""
+    import zipfile
+
+    from matgen.errors import DataError
+    from matgen.transport.records import PhotonRecords
+
+    p = _records_file(tmp_path)
+    with zipfile.ZipFile(p) as zf:
+        info = zf.getinfo("weight.npy")
+    data = bytearray(p.read_bytes())
+    name_len = int.from_bytes(data[info.header_offset + 26:info.header_offset + 28], "little")
+    extra_len = int.from_bytes(data[info.header_offset + 28:info.header_offset + 30], "little")
+    at = info.header_offset + 30 + name_len + extra_len + info.file_size - 1  # last payload byte (stored)
+    data[at] ^= 0xFF
+    p.write_bytes(bytes(data))
+    with pytest.raises(DataError, match="rec.npz"):
+        PhotonRecords.load(p)
+
+
+@pytest.mark.xfail(strict=True, reason="open: PhotonRecords.load checks no ceiling before np.load allocates the "
+                   "declared arrays (matgen/transport/records.py)")
+def test_records_file_declaring_huge_arrays_is_refused_before_allocation(tmp_path):
+    """A records .npz whose 'weight.npy' declares shape (10**11,) with 16 bytes of data raised MemoryError."""
+    import zipfile
+
+    from targets import _npy_member
+
+    from matgen.errors import MatgenError
+    from matgen.transport.records import PhotonRecords
+
+    p = _records_file(tmp_path)
+    with zipfile.ZipFile(p) as zf:
+        members = {n: zf.read(n) for n in zf.namelist()}
+    members["weight.npy"] = _npy_member(b"(100000000000,)")
+    with zipfile.ZipFile(p, "w") as zf:
+        for n, b in members.items():
+            zf.writestr(n, b)
+    with pytest.raises(MatgenError):
+        PhotonRecords.load(p)
+
+
+@pytest.mark.xfail(strict=True, reason="open: PhotonRecords.save writes the destination in place (not through "
+                   "matgen.fsutil.atomic_path), so a failure or kill mid-write leaves a partial file")
+def test_records_save_failing_midway_leaves_no_partial_file(tmp_path, monkeypatch):
+    """np.savez failing after writing some bytes (a full disk, a kill) must not leave a partial rec.npz."""
+    import numpy as np
+
+    from matgen.transport.simulate import simulate
+    from matgen.transport.stack import Stack
+
+    stack = Stack([0.1, 1.0], [1.4, 1.4], [0.5, 0.05], [30.0, 20.0], [0.8, 0.85])
+    _, rec = simulate(stack, 300, seed=3, threads=1, records=True)
+
+    def failing_savez(fh, **arrays):
+        fh.write(b"PK\x03\x04partial")
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(np, "savez", failing_savez)
+    with pytest.raises(Exception):
+        rec.save(tmp_path / "rec.npz")
+    assert not (tmp_path / "rec.npz").exists()
