@@ -192,6 +192,7 @@ def merge(job: JobFolder) -> Table:
         "spec": spec.to_dict(),
         "provenance": {
             "code_version": plan.code_version,
+            "source_hash": plan.source_hash,
             "data_hashes": plan.data_hashes,
             "job_hash": plan.job_hash(),
             "spec_hash": spec.spec_hash(),

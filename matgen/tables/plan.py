@@ -26,6 +26,7 @@ The job folder (``plan`` writes it; executors and ``run-task`` fill it; ``merge`
 
 from __future__ import annotations
 
+import functools
 import itertools
 import json
 from dataclasses import dataclass
@@ -42,6 +43,13 @@ from matgen.tables.spec import TableSpec
 #: Version of the job-folder layout.
 JOB_FORMAT_VERSION = 1
 JOB_FILE = "job.json"
+
+#: Source folders (under the matgen package) whose code determines task outputs and merged tables.
+_RESULT_PACKAGES = ("spectra", "tissue", "transport", "color", "fit", "tables")
+#: Files of those folders that do not change results (reports, benchmarks, scheduling).
+_RESULT_NEUTRAL = {"tables/report.py", "tables/bench.py", "tables/executors.py", "tables/build.py"}
+#: Top-level modules that determine results.
+_RESULT_MODULES = ("constants.py", "units.py", "provenance.py", "limits.py")
 
 #: Fields of the scattering arrays compared when deciding whether an axis changes scattering.
 _SCATTERING_FIELDS = ("thickness_mm", "n", "mu_s", "g")
@@ -84,6 +92,34 @@ class Task:
         """Inverse of :meth:`to_dict`."""
         return cls(int(d["index"]), str(d["task_id"]), int(d["band"]), dict(d["node"]), dict(d["block"]),
                    int(d["seed"]))
+
+
+@functools.lru_cache(maxsize=1)
+def source_hash() -> str:
+    """SHA-256 over the matgen source and data files that determine a table's numbers.
+
+    The package version alone does not change when the transport, tissue model or fits are edited between
+    releases; this hash does, so a job folder planned with other code (or other shipped data, such as the fit
+    stage's inversion tables) is refused instead of being merged with mixed results. Covered: the ``.py``
+    files of the spectra, tissue, transport, color, fit and tables stages (except reporting, benchmarking and
+    scheduling modules), their ``data/`` folders, and the top-level constants, units, provenance and limits.
+    Computed once per process (the code a process runs is the code it imported).
+    """
+    import hashlib
+
+    root = Path(__file__).resolve().parents[1]
+    files = [root / m for m in _RESULT_MODULES]
+    for pkg in _RESULT_PACKAGES:
+        base = root / pkg
+        files += [p for p in base.rglob("*") if p.is_file() and "__pycache__" not in p.parts
+                  and (p.suffix == ".py" or "data" in p.relative_to(base).parts)]
+    h = hashlib.sha256()
+    for p in sorted(files, key=lambda q: q.relative_to(root).as_posix()):
+        rel = p.relative_to(root).as_posix()
+        if rel in _RESULT_NEUTRAL or not p.is_file():
+            continue
+        h.update(rel.encode() + b"\0" + hashlib.sha256(p.read_bytes()).digest())
+    return h.hexdigest()
 
 
 def task_seed(spec_seed: int, band_edges_nm, node: dict, block: dict) -> int:
@@ -187,6 +223,8 @@ class Plan:
     tasks : list of Task
     code_version : str
     data_hashes : dict
+    source_hash : str
+        :func:`source_hash` of the code that planned the job.
     """
 
     spec: TableSpec
@@ -195,6 +233,7 @@ class Plan:
     tasks: list
     code_version: str
     data_hashes: dict
+    source_hash: str = ""
 
     @property
     def pigment_axes(self) -> list:
@@ -219,8 +258,8 @@ class Plan:
 
     def job_hash(self) -> str:
         """Hash of the whole plan (spec, code version, data hashes, task ids)."""
-        return hash_json({"code": self.code_version, "data": self.data_hashes, "spec": self.spec.to_dict(),
-                          "tasks": [t.task_id for t in self.tasks]})
+        return hash_json({"code": self.code_version, "source": self.source_hash, "data": self.data_hashes,
+                          "spec": self.spec.to_dict(), "tasks": [t.task_id for t in self.tasks]})
 
     def to_dict(self) -> dict:
         """The ``job.json`` document."""
@@ -228,6 +267,7 @@ class Plan:
             "format": "matgen-table-job",
             "format_version": JOB_FORMAT_VERSION,
             "code_version": self.code_version,
+            "source_hash": self.source_hash,
             "data_hashes": self.data_hashes,
             "spec": self.spec.to_dict(),
             "spec_hash": self.spec.spec_hash(),
@@ -266,7 +306,7 @@ def make_plan(spec: TableSpec) -> Plan:
     if clash:
         raise ConfigError(f"{spec.source}: reference_split axes {clash} change scattering; they form nodes already")
     ring = resolve_ring_edges(spec)
-    version, dhash = code_version(), data_hashes()
+    version, dhash, shash = code_version(), data_hashes(), source_hash()
     by_name = {a.name: a for a in spec.axes}
     node_axes = [by_name[n] for n in scat]
     block_axes = [by_name[n] for n in spec.reference_split]
@@ -295,9 +335,9 @@ def make_plan(spec: TableSpec) -> Plan:
                     "axes_order": spec.axis_names,
                     "pigment_axes": pigment,
                 }
-                tid = hash_json({"code": version, "data": dhash, "slice": slice_, "seed": seed})
+                tid = hash_json({"code": version, "source": shash, "data": dhash, "slice": slice_, "seed": seed})
                 tasks.append(Task(len(tasks), tid, b, node, block, seed))
-    return Plan(spec, scat, ring, tasks, version, dhash)
+    return Plan(spec, scat, ring, tasks, version, dhash, shash)
 
 
 def plan_from_dict(doc: dict, source: str) -> Plan:
@@ -309,7 +349,8 @@ def plan_from_dict(doc: dict, source: str) -> Plan:
             raise TableError(f"{source} has job format {doc.get('format_version')}; this matgen uses {JOB_FORMAT_VERSION}")
         spec = TableSpec.from_dict(doc["spec"], source=source)
         plan = Plan(spec, list(doc["scattering_axes"]), np.asarray(doc["ring_edges_mm"], dtype=np.float64),
-                    [Task.from_dict(t) for t in doc["tasks"]], str(doc["code_version"]), dict(doc["data_hashes"]))
+                    [Task.from_dict(t) for t in doc["tasks"]], str(doc["code_version"]), dict(doc["data_hashes"]),
+                    str(doc["source_hash"]))
     except MatgenError:
         raise
     except (KeyError, TypeError, ValueError) as exc:
@@ -396,6 +437,11 @@ class JobFolder:
                     f"job folder {path} was planned with matgen {plan.code_version}; this is matgen "
                     f"{code_version()}: plan a new job folder"
                 )
+            if plan.source_hash != source_hash():
+                raise TableError(
+                    f"job folder {path} was planned with other matgen source code (the transport, tissue, fit or "
+                    "table code, or their data, changed since): plan a new job folder"
+                )
             if plan.data_hashes != data_hashes():
                 changed = sorted(set(plan.data_hashes.items()) ^ set(data_hashes().items()))
                 names = sorted({k for k, _ in changed})
@@ -410,6 +456,8 @@ def _mismatch(old: Plan, new: Plan, path) -> str:
     why = []
     if old.code_version != new.code_version:
         why.append(f"code version {old.code_version} vs {new.code_version}")
+    if old.source_hash != new.source_hash:
+        why.append("source code differs")
     if old.data_hashes != new.data_hashes:
         why.append("vendored data differ")
     if old.spec.spec_hash() != new.spec.spec_hash():
