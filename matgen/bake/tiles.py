@@ -13,6 +13,10 @@ from matgen.errors import ParameterError
 #: Bytes per channel value while a strip is computed (float32).
 BYTES_PER_VALUE = 4
 
+#: Strip heights are rounded down to a multiple of this many rows when the budget allows: OpenEXR compresses
+#: zip in blocks of 16 scanlines and piz in blocks of 32 (OpenEXR file-layout documentation, from memory).
+ROWS_MULTIPLE = 32
+
 #: Working copies a strip needs besides its outputs (lookup result, conversions to float64): a safety factor.
 STRIP_OVERHEAD_FACTOR = 3
 
@@ -32,7 +36,7 @@ def rows_per_strip(width: int, height: int, channels: int, memory_budget_bytes: 
     Returns
     -------
     int
-        Between 1 and ``height``.
+        Between 1 and ``height``; a multiple of :data:`ROWS_MULTIPLE` when at least that many rows fit.
 
     """
     if width < 1 or height < 1 or channels < 1:
@@ -40,7 +44,10 @@ def rows_per_strip(width: int, height: int, channels: int, memory_budget_bytes: 
     if memory_budget_bytes < 1:
         raise ParameterError(f"memory budget is {memory_budget_bytes} bytes; must be > 0")
     per_row = width * channels * BYTES_PER_VALUE * STRIP_OVERHEAD_FACTOR
-    return max(1, min(height, int(memory_budget_bytes // per_row)))
+    rows = max(1, min(height, int(memory_budget_bytes // per_row)))
+    if ROWS_MULTIPLE <= rows < height:
+        rows -= rows % ROWS_MULTIPLE  # whole compression blocks per write: nothing buffered between strips
+    return rows
 
 
 def strips(height: int, rows: int):

@@ -16,6 +16,7 @@ import os
 import shutil
 import time
 import uuid
+from concurrent.futures import ThreadPoolExecutor, wait
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -235,7 +236,7 @@ def bake(
         staging.mkdir()
         try:
             result = _bake_into(
-                plan, table, table_source, staging, progress, memory_budget_bytes, rows, report
+                plan, table, table_source, staging, progress, memory_budget_bytes, rows, report, jobs
             )
             _commit(staging, out_dir, result.files)
         finally:
@@ -246,8 +247,14 @@ def bake(
     return result
 
 
+def _finish(pending: list) -> None:
+    """Wait for one strip's file writes; the first failure is raised."""
+    for f in pending:
+        f.result()
+
+
 def _bake_into(
-    plan: BakePlan, table, table_source, staging: Path, progress, budget, rows, report
+    plan: BakePlan, table, table_source, staging: Path, progress, budget, rows, report, jobs=None
 ) -> BakeResult:
     cfg = plan.config
     opts = cfg.outputs
@@ -258,55 +265,70 @@ def _bake_into(
     sums = {spec.key: np.zeros(len(spec.channels)) for spec in plan.outputs}  # for the preview scene
     n_table, n_enc = 0, report.total_clamped
     base_attrs = {"matgen:version": __version__}
-    for ti in plan.tiles:
-        writers = {}
-        try:
+    # strip k is written in worker threads (OpenImageIO releases the GIL while it compresses) while strip
+    # k+1 is computed; two strips are then in flight, so each gets half the memory budget
+    with ThreadPoolExecutor(
+        max_workers=max(1, jobs or os.cpu_count() or 1), thread_name_prefix="exr"
+    ) as pool:
+        for ti in plan.tiles:
+            writers, pending = {}, []
+            try:
+                for spec in plan.outputs:
+                    rel = spec.file_name(ti.tile)
+                    (staging / rel).parent.mkdir(parents=True, exist_ok=True)
+                    attrs = dict(
+                        base_attrs,
+                        **{
+                            "matgen:quantity": spec.quantity,
+                            "matgen:unit": spec.unit,
+                            "matgen:kind": spec.kind,
+                        },
+                    )
+                    if spec.kind == "spectral":
+                        attrs["spectralLayoutVersion"] = SPECTRAL_LAYOUT_VERSION
+                    if spec.kind in ("rgb", "target") and len(spec.channels) == 3:
+                        attrs["matgen:working_space"] = table.working_space
+                    target = staging / (rel + ".scan.exr") if opts.texture else staging / rel
+                    writers[spec.key] = StreamingExr(
+                        target,
+                        ti.width,
+                        ti.height,
+                        spec.channels,
+                        pixel_type=opts.pixel_type,
+                        compression=opts.compression,
+                        attributes=attrs,
+                    )
+                strips = iter_strips(plan, ti.tile, lookup=lookup, memory_budget_bytes=budget // 2, rows=rows)
+                for strip in strips:
+                    _finish(pending)  # the previous strip's writes, in row order per file
+                    pending = [
+                        pool.submit(w.write_rows, strip.y0, strip.values[key]) for key, w in writers.items()
+                    ]
+                    for key in writers:
+                        sums[key] += strip.values[key].sum(axis=(0, 1), dtype=np.float64)
+                    n_table += strip.table_clamped
+                    done += (strip.y1 - strip.y0) * ti.width
+                    if progress is not None:
+                        progress(done, total)
+                _finish(pending)
+                for w in writers.values():
+                    w.close()
+            except BaseException:
+                wait(pending)
+                for w in writers.values():
+                    w.abort()
+                raise
             for spec in plan.outputs:
                 rel = spec.file_name(ti.tile)
-                (staging / rel).parent.mkdir(parents=True, exist_ok=True)
-                attrs = dict(
-                    base_attrs,
-                    **{"matgen:quantity": spec.quantity, "matgen:unit": spec.unit, "matgen:kind": spec.kind},
+                if opts.texture:
+                    make_texture(staging / (rel + ".scan.exr"), staging / rel)
+                    (staging / (rel + ".scan.exr")).unlink()
+                entries.append(
+                    texture_entry(
+                        spec, rel, staging / rel, ti.tile, ti.width, ti.height, opts.pixel_type, opts.texture
+                    )
                 )
-                if spec.kind == "spectral":
-                    attrs["spectralLayoutVersion"] = SPECTRAL_LAYOUT_VERSION
-                if spec.kind in ("rgb", "target") and len(spec.channels) == 3:
-                    attrs["matgen:working_space"] = table.working_space
-                target = staging / (rel + ".scan.exr") if opts.texture else staging / rel
-                writers[spec.key] = StreamingExr(
-                    target,
-                    ti.width,
-                    ti.height,
-                    spec.channels,
-                    pixel_type=opts.pixel_type,
-                    compression=opts.compression,
-                    attributes=attrs,
-                )
-            for strip in iter_strips(plan, ti.tile, lookup=lookup, memory_budget_bytes=budget, rows=rows):
-                for key, w in writers.items():
-                    w.write_rows(strip.y0, strip.values[key])
-                    sums[key] += strip.values[key].sum(axis=(0, 1), dtype=np.float64)
-                n_table += strip.table_clamped
-                done += (strip.y1 - strip.y0) * ti.width
-                if progress is not None:
-                    progress(done, total)
-            for w in writers.values():
-                w.close()
-        except BaseException:
-            for w in writers.values():
-                w.abort()
-            raise
-        for spec in plan.outputs:
-            rel = spec.file_name(ti.tile)
-            if opts.texture:
-                make_texture(staging / (rel + ".scan.exr"), staging / rel)
-                (staging / (rel + ".scan.exr")).unlink()
-            entries.append(
-                texture_entry(
-                    spec, rel, staging / rel, ti.tile, ti.width, ti.height, opts.pixel_type, opts.texture
-                )
-            )
-            written.append(rel)
+                written.append(rel)
     ior = float(np.mean(table.quantities["ior"])) if "ior" in table.quantities else None
     targets = {}
     if "openpbr" in opts.targets:
