@@ -65,73 +65,90 @@ _NS = 7
 
 
 @njit(cache=True, parallel=True)
-def _reweight_kernel(path, wpath, weight, side, ring_bin, cos_bin, depth_frac, dmu, mu_new, launch_w, n_blocks,
+def _reweight_kernel(path, wpath, weight, side, ring_bin, cos_bin, depth_frac, dmu_t, mu_t, launch_w, n_blocks,
                      n_rings, n_cos):
-    """Partial sums (n_blocks, K, Q) of every tally for K absorption sets; see the module docstring.
+    """Partial sums (n_blocks, Q, K) of every tally for K absorption sets; see the module docstring.
 
-    Photon-major: each block of photons is read once and every set is applied to each photon in turn.
+    Photon-major: each block of photons is read once and all K sets are applied to each photon in
+    loops over k that run over contiguous memory (``dmu_t`` and ``mu_t`` are (L, K); sums are (Q, K)).
     """
     n = weight.size
     n_layers = path.shape[1]
-    n_sets = dmu.shape[0]
+    n_sets = dmu_t.shape[1]
     o_abs = _NS
     o_ring = o_abs + 2 * n_layers
     o_cos = o_ring + 2 * n_rings
     size = o_cos + 2 * n_cos
-    out = np.zeros((n_blocks, n_sets, size), dtype=np.float64)
+    out = np.zeros((n_blocks, size, n_sets), dtype=np.float64)
     for b in prange(n_blocks):
         start = b * BLOCK_PHOTONS
         stop = min(n, start + BLOCK_PHOTONS)
         acc = out[b]
-        lp = np.empty(n_layers)
-        lw = np.empty(n_layers)
+        e = np.empty(n_sets)
+        wp = np.empty(n_sets)
+        f = np.empty(n_sets)
         for i in range(start, stop):
             sd = side[i]
-            for j in range(n_layers):
-                lp[j] = path[i, j]
-                lw[j] = wpath[i, j]
-            w_ref = weight[i]
-            rb = ring_bin[i]
-            cb = cos_bin[i]
-            df = depth_frac[i]
+            if sd != 0:
+                for k in range(n_sets):
+                    e[k] = 0.0
+                for j in range(n_layers):
+                    lj = np.float64(path[i, j])
+                    for k in range(n_sets):
+                        e[k] += dmu_t[j, k] * lj
+                w_ref = np.float64(weight[i])
+                for k in range(n_sets):
+                    wp[k] = w_ref * math.exp(-e[k])
+                if sd == 1:
+                    rb = ring_bin[i]
+                    cb = cos_bin[i]
+                    df = np.float64(depth_frac[i])
+                    for k in range(n_sets):
+                        v = wp[k]
+                        v2 = v * v
+                        acc[_RD, k] += v
+                        acc[_RD2, k] += v2
+                        a = v * df
+                        acc[_DA, k] += a
+                        acc[_DA2, k] += a * a
+                        acc[_DAW, k] += a * v
+                    if rb >= 0:
+                        for k in range(n_sets):
+                            acc[o_ring + rb, k] += wp[k]
+                            acc[o_ring + n_rings + rb, k] += wp[k] * wp[k]
+                    if cb >= 0:
+                        for k in range(n_sets):
+                            acc[o_cos + cb, k] += wp[k]
+                            acc[o_cos + n_cos + cb, k] += wp[k] * wp[k]
+                else:
+                    for k in range(n_sets):
+                        acc[_TT, k] += wp[k]
+                        acc[_TT2, k] += wp[k] * wp[k]
+            else:
+                for k in range(n_sets):
+                    wp[k] = 0.0
+            # absorbed weight a = w_launch - w', split over layers in proportion to mu_a,j Lambda_j
             for k in range(n_sets):
-                wp = 0.0
-                if sd != 0:
-                    e = 0.0
-                    for j in range(n_layers):
-                        e += dmu[k, j] * lp[j]
-                    wp = w_ref * math.exp(-e)
-                    if sd == 1:
-                        w2 = wp * wp
-                        acc[k, _RD] += wp
-                        acc[k, _RD2] += w2
-                        if rb >= 0:
-                            acc[k, o_ring + rb] += wp
-                            acc[k, o_ring + n_rings + rb] += w2
-                        if cb >= 0:
-                            acc[k, o_cos + cb] += wp
-                            acc[k, o_cos + n_cos + cb] += w2
-                        a = wp * df
-                        acc[k, _DA] += a
-                        acc[k, _DA2] += a * a
-                        acc[k, _DAW] += a * wp
-                    else:
-                        acc[k, _TT] += wp
-                        acc[k, _TT2] += wp * wp
-                a = launch_w - wp
-                if a != 0.0:
-                    denom = 0.0
-                    for j in range(n_layers):
-                        denom += mu_new[k, j] * lw[j]
-                    if denom > 0.0:
-                        f = a / denom
-                        for j in range(n_layers):
-                            aj = f * mu_new[k, j] * lw[j]
-                            acc[k, o_abs + j] += aj
-                            acc[k, o_abs + n_layers + j] += aj * aj
-                    else:
-                        acc[k, o_abs] += a
-                        acc[k, o_abs + n_layers] += a * a
+                f[k] = 0.0
+            for j in range(n_layers):
+                lw = np.float64(wpath[i, j])
+                for k in range(n_sets):
+                    f[k] += mu_t[j, k] * lw
+            for k in range(n_sets):
+                d = f[k]
+                a = launch_w - wp[k]
+                if d > 0.0:
+                    f[k] = a / d
+                else:  # no absorbing path: all of it to the top layer
+                    f[k] = 0.0
+                    acc[o_abs, k] += a
+                    acc[o_abs + n_layers, k] += a * a
+            for j in range(n_layers):
+                lw = np.float64(wpath[i, j])
+                for k in range(n_sets):
+                    aj = f[k] * mu_t[j, k] * lw
+                    acc[o_abs + j, k] += aj
+                    acc[o_abs + n_layers + j, k] += aj * aj
     return out
 
 
@@ -259,14 +276,15 @@ def reweight(records: PhotonRecords, mu_a_sets, *, ring_edges_mm=None, exit_cos_
     numba.set_num_threads(nthreads)
     try:
         for s in range(0, mu.shape[0], SETS_PER_BATCH):
-            part = _reweight_kernel(records.path_mm, records.weighted_path_mm, records.weight, records.side, ring_bin, cos_bin, depth_frac,
-                                    np.ascontiguousarray(dmu[s:s + SETS_PER_BATCH]),
-                                    np.ascontiguousarray(mu[s:s + SETS_PER_BATCH]), launch_w, n_blocks,
+            part = _reweight_kernel(records.path_mm, records.weighted_path_mm, records.weight, records.side,
+                                    ring_bin, cos_bin, depth_frac,
+                                    np.ascontiguousarray(dmu[s:s + SETS_PER_BATCH].T),
+                                    np.ascontiguousarray(mu[s:s + SETS_PER_BATCH].T), launch_w, n_blocks,
                                     n_rings, n_cos)
             acc = np.zeros(part.shape[1:])
             for b in range(n_blocks):  # fixed order of blocks
                 acc += part[b]
-            parts.append(acc)
+            parts.append(acc.T)
     finally:
         numba.set_num_threads(old)
     v = np.concatenate(parts, axis=0)
