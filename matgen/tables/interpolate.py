@@ -96,36 +96,41 @@ def multilinear_kernel(coords, offsets, strides, values, points, out, clamped):
     d = points.shape[1]
     n_ch = values.shape[1]
     n_blocks = (n_points + _BLOCK - 1) // _BLOCK
+    n_corners = 1 << d
     for blk in numba.prange(n_blocks):
         # scratch arrays once per block of points, not per point
-        cell = np.empty(d, dtype=np.int64)
-        frac = np.empty(d, dtype=np.float64)
+        wts = np.empty(n_corners, dtype=np.float64)
+        rows = np.empty(n_corners, dtype=np.int64)
         acc = np.empty(n_ch, dtype=np.float64)
         for p in range(blk * _BLOCK, min(n_points, (blk + 1) * _BLOCK)):
             hit = False
+            # corner weights and rows by doubling: corner bit i set = upper node along axis i; the weight is
+            # the product over axes 0..D-1 in that order
+            wts[0] = 1.0
+            rows[0] = 0
+            size = 1
             for i in range(d):
                 c, t, cl = _locate(coords, offsets[i], offsets[i + 1], points[p, i])
-                cell[i] = c
-                frac[i] = t
                 hit = hit or cl
+                for k in range(size):
+                    w = wts[k]
+                    r = rows[k]
+                    wts[k] = w * (1.0 - t)
+                    rows[k] = r + c * strides[i]
+                    wts[k + size] = w * t
+                    rows[k + size] = r + (c + 1) * strides[i]
+                size *= 2
             clamped[p] = hit
             acc[:] = 0.0
-            for corner in range(1 << d):
-                w = 1.0
-                row = 0
-                for i in range(d):
-                    if (corner >> i) & 1:
-                        w *= frac[i]
-                        row += (cell[i] + 1) * strides[i]
-                    else:
-                        w *= 1.0 - frac[i]
-                        row += cell[i] * strides[i]
+            for k in range(n_corners):
+                w = wts[k]
                 if w == 0.0:
                     continue  # exact node values; a NaN at a corner of zero weight does not leak
-                for c in range(n_ch):
-                    acc[c] += w * values[row, c]
-            for c in range(n_ch):
-                out[p, c] = acc[c]
+                row = rows[k]
+                for ch in range(n_ch):
+                    acc[ch] += w * values[row, ch]
+            for ch in range(n_ch):
+                out[p, ch] = acc[ch]
 
 
 def multilinear_python(coords, offsets, strides, values, points, out, clamped):
@@ -157,17 +162,13 @@ def multilinear_python(coords, offsets, strides, values, points, out, clamped):
             cell[i], frac[i] = c, t
             hit = hit or bool(cl)
         clamped[p] = hit
+        wts, rows = [1.0], [0]
+        for i in range(d):  # same doubling order as the kernel
+            t, c, st = frac[i], cell[i], int(strides[i])
+            wts = [w * (1.0 - t) for w in wts] + [w * t for w in wts]
+            rows = [r + c * st for r in rows] + [r + (c + 1) * st for r in rows]
         acc = [0.0] * n_ch
-        for corner in range(1 << d):
-            w = 1.0
-            row = 0
-            for i in range(d):
-                if (corner >> i) & 1:
-                    w *= frac[i]
-                    row += (cell[i] + 1) * int(strides[i])
-                else:
-                    w *= 1.0 - frac[i]
-                    row += cell[i] * int(strides[i])
+        for w, row in zip(wts, rows):
             if w == 0.0:
                 continue
             for c in range(n_ch):
