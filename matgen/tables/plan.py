@@ -343,7 +343,7 @@ def make_plan(spec: TableSpec) -> Plan:
 def plan_from_dict(doc: dict, source: str) -> Plan:
     """Rebuild a :class:`Plan` from a ``job.json`` document (without re-probing the tissue model)."""
     try:
-        if doc.get("format") != "matgen-table-job":
+        if not isinstance(doc, dict) or doc.get("format") != "matgen-table-job":
             raise TableError(f"{source} is not a matgen table job file")
         if doc.get("format_version") != JOB_FORMAT_VERSION:
             raise TableError(f"{source} has job format {doc.get('format_version')}; this matgen uses {JOB_FORMAT_VERSION}")
@@ -353,7 +353,7 @@ def plan_from_dict(doc: dict, source: str) -> Plan:
                     str(doc["source_hash"]))
     except MatgenError:
         raise
-    except (KeyError, TypeError, ValueError) as exc:
+    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as exc:
         raise TableError(f"{source} is incomplete or malformed ({type(exc).__name__}: {exc})") from exc
     if plan.job_hash() != doc.get("job_hash"):
         raise TableError(f"{source} was edited after planning: its job hash does not match its contents")

@@ -23,7 +23,9 @@ from __future__ import annotations
 import difflib
 import io
 import json
+import tokenize
 import zipfile
+import zlib
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
@@ -154,14 +156,23 @@ def read_npz_checked(path: Path, what: str) -> dict:
     """Read every array of a deterministic npz after checking its size and declared shapes against limits."""
     limits.check_file_size(path, what)
     out = {}
-    with zipfile.ZipFile(path) as zf:
-        for member in zf.namelist():
-            if not member.endswith(".npy"):
-                raise TableError(f"{what} {path} holds an unexpected member '{member}'")
-            shape = _npy_shape(zf, member)
-            limits.check_table_entries(max(1, int(np.prod(shape, dtype=np.int64))), f"{what} '{path}' array '{member}'")
-            with zf.open(member) as fh:
-                out[member[:-4]] = np.lib.format.read_array(fh, allow_pickle=False)
+    try:
+        with zipfile.ZipFile(path) as zf:
+            for member in zf.namelist():
+                if not member.endswith(".npy"):
+                    raise TableError(f"{what} {path} holds an unexpected member '{member}'")
+                shape = _npy_shape(zf, member)
+                entries = 1
+                for n in shape:
+                    entries *= max(1, int(n))  # Python ints: no overflow on hostile shapes
+                limits.check_table_entries(entries, f"{what} '{path}' array '{member}'")
+                with zf.open(member) as fh:
+                    out[member[:-4]] = np.lib.format.read_array(fh, allow_pickle=False)
+    except MatgenError:
+        raise
+    except (OSError, ValueError, KeyError, TypeError, AttributeError, IndexError, SyntaxError, EOFError,
+            NotImplementedError, RuntimeError, zipfile.BadZipFile, zlib.error, tokenize.TokenError) as exc:
+        raise TableError(f"{what} {path} is truncated or corrupt ({type(exc).__name__}: {exc})") from exc
     return out
 
 
@@ -453,6 +464,8 @@ class Table:
                 side_doc = json.loads(side.read_text())
             except (OSError, ValueError) as exc:
                 raise TableError(f"table manifest {side} is not valid JSON ({exc})") from exc
+            if not isinstance(side_doc, dict):
+                raise TableError(f"table manifest {side} must hold a JSON object, not {type(side_doc).__name__}")
             if verify and side_doc.get("npz_sha256") not in (None, sha256_file(path)):
                 raise TableError(
                     f"table file {path} does not match the SHA-256 recorded in {side.name}: "
@@ -461,8 +474,8 @@ class Table:
         try:
             z = read_npz_checked(path, "table")
             header = json.loads(bytes(z["header.json"]).decode("utf-8"))
-            if header.get("format") != "matgen-table":
-                raise TableError(f"{path} is not a matgen table file")
+            if not isinstance(header, dict) or header.get("format") != "matgen-table":
+                raise TableError(f"{path} is not a matgen table file (its header is not a matgen table header)")
             if header.get("format_version") != TABLE_FORMAT_VERSION:
                 raise TableError(
                     f"table {path} has format version {header.get('format_version')}; this matgen reads "
@@ -470,21 +483,26 @@ class Table:
                 )
             axes = [Axis(a["name"], z[f"axis_{i}"], a["spacing"]) for i, a in enumerate(header["axes"])]
             quantities = {n: z[f"q_{n}"] for n in header["quantities"]}
+            manifest = header.get("manifest", {})
+            if not isinstance(manifest, dict):
+                raise TableError(f"table {path}: the header's manifest is not a JSON object")
+            build_stats = side_doc.get("build_stats", {}) if side_doc is not None else {}
+            if not isinstance(build_stats, dict):
+                raise TableError(f"table manifest {side}: build_stats is not a JSON object")
+            return cls(
+                axes=axes,
+                bands=BandSet.from_dict(header["bands"]),
+                quantities=quantities,
+                working_space=str(header["working_space"]),
+                illuminant=str(header["illuminant"]),
+                manifest=dict(manifest),
+                build_stats=dict(build_stats),
+            )
         except MatgenError:
             raise
-        except (OSError, ValueError, KeyError, TypeError, zipfile.BadZipFile, EOFError) as exc:
+        except (OSError, ValueError, KeyError, TypeError, AttributeError, IndexError, SyntaxError, EOFError,
+                NotImplementedError, RuntimeError, zipfile.BadZipFile, zlib.error) as exc:
             raise TableError(f"table file {path} is truncated or corrupt ({type(exc).__name__}: {exc})") from exc
-        manifest = dict(header.get("manifest", {}))
-        build_stats = dict(side_doc.get("build_stats", {})) if side_doc is not None else {}
-        return cls(
-            axes=axes,
-            bands=BandSet.from_dict(header["bands"]),
-            quantities=quantities,
-            working_space=header["working_space"],
-            illuminant=header["illuminant"],
-            manifest=manifest,
-            build_stats=build_stats,
-        )
 
 
 def default_table_path() -> Path:

@@ -190,6 +190,8 @@ def task_state(job: JobFolder, index: int) -> TaskState:
         record = json.loads(rec.read_text())
     except (OSError, ValueError):
         return TaskState(index, "corrupt", "record is not valid JSON")
+    if not isinstance(record, dict):
+        return TaskState(index, "corrupt", "record is not a JSON object")
     if record.get("task_id") != task.task_id:
         return TaskState(index, "corrupt", "record belongs to another task id")
     if not out.exists():
