@@ -229,19 +229,6 @@ def _table_declared_shape(data: bytes, scratch: Path):
 # each entry has a strict-xfail test with the exact input in test_found_inputs.py and a line in the report.
 
 KNOWN_OPEN: dict[str, list[tuple[str, str]]] = {
-    "table_npz": [
-        (r"^error: Error -3 while decompressing", "Table.load lets zlib.error escape"),
-        (r"^NotImplementedError: (zip file version|That compression method)", "Table.load lets zipfile's "
-         "NotImplementedError escape"),
-    ],
-    "table_header": [
-        (r"^KeyError: '(bands|working_space|illuminant)'", "Table.load reads header keys outside its error guard"),
-        (r"^AttributeError: '\w+' object has no attribute 'get'", "Table.load: header not a JSON object"),
-    ],
-    "table_manifest": [
-        (r"^AttributeError: '\w+' object has no attribute 'get'", "Table.load: manifest not a JSON object"),
-    ],
-    "table_declared_shape": [(r"^TokenError", "numpy .npy header TokenError escapes Table.load")],
     "photon_records": [(r"^(_ArrayMemoryError|MemoryError)", "PhotonRecords.load checks no size ceiling")],
     "map_exr": [(r"^UnicodeDecodeError", "oiio.geterror() UnicodeDecodeError in map_info")],
     "map_png": [(r"^UnicodeDecodeError", "oiio.geterror() UnicodeDecodeError in map_info")],

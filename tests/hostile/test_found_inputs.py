@@ -60,7 +60,7 @@ def test_stack_names_not_a_sequence_is_stack_error():
 
 
 # ---------------------------------------------------------------------------------------------------------
-# Table.load (matgen/tables/store.py): open findings, exact inputs below
+# Table.load (matgen/tables/store.py): findings, exact inputs below (fixed in the table store)
 
 
 def _saved_table(tmp_path):
@@ -101,7 +101,6 @@ def _header_member(obj_bytes):
     return buf.getvalue()
 
 
-@pytest.mark.xfail(strict=True, reason="open: Table.load lets zlib.error escape on a corrupt deflate stream")
 def test_table_with_corrupt_deflate_stream_is_table_error(tmp_path):
     """The .npz member 'header.json.npy' with its deflated bytes overwritten by b'\\xff' * 8 raised zlib.error."""
     from matgen.errors import TableError
@@ -114,7 +113,6 @@ def test_table_with_corrupt_deflate_stream_is_table_error(tmp_path):
         Table.load(p)
 
 
-@pytest.mark.xfail(strict=True, reason="open: Table.load reads header['working_space'] outside its error guard")
 def test_table_header_without_working_space_is_table_error(tmp_path):
     """A header JSON lacking the key 'working_space' raised KeyError."""
     import json
@@ -131,7 +129,6 @@ def test_table_header_without_working_space_is_table_error(tmp_path):
         Table.load(p)
 
 
-@pytest.mark.xfail(strict=True, reason="open: Table.load calls header.get on a header that is not a JSON object")
 def test_table_header_not_an_object_is_table_error(tmp_path):
     """A header JSON '[]' raised AttributeError."""
     from matgen.errors import TableError
@@ -144,7 +141,6 @@ def test_table_header_not_an_object_is_table_error(tmp_path):
         Table.load(p)
 
 
-@pytest.mark.xfail(strict=True, reason="open: Table.load calls side_doc.get on a manifest that is not a JSON object")
 def test_table_manifest_not_an_object_is_table_error(tmp_path):
     """A manifest t.json holding '-1' beside a valid t.npz raised AttributeError."""
     from matgen.errors import TableError
@@ -156,7 +152,6 @@ def test_table_manifest_not_an_object_is_table_error(tmp_path):
         Table.load(p)
 
 
-@pytest.mark.xfail(strict=True, reason="open: tokenize.TokenError from numpy's .npy header parser escapes Table.load")
 def test_table_member_with_unparsable_shape_is_table_error(tmp_path):
     """A member 'q_albedo_multiple.npy' whose header declares shape '(2*' raised tokenize.TokenError."""
     from targets import _npy_member
@@ -199,8 +194,6 @@ def _small_header(tmp_path):
     return _small_table().header()
 
 
-@pytest.mark.xfail(strict=True, reason="open: zipfile's NotImplementedError (unknown compression method) escapes "
-                   "Table.load")
 def test_table_with_unknown_compression_method_is_table_error(tmp_path):
     """The central-directory compression method of the first member set to 99: NotImplementedError escaped."""
     from matgen.errors import TableError
