@@ -93,6 +93,15 @@ def skin_parameter_fields() -> tuple | None:
     return tuple(f.name for f in dataclasses.fields(SkinParameters))
 
 
+def renderer_targets() -> tuple | None:
+    """Names of the renderer targets of :mod:`matgen.fit.targets`, or None where it is not installed."""
+    try:
+        from matgen.fit.targets import TARGETS
+    except ImportError:
+        return None
+    return tuple(TARGETS)
+
+
 @dataclass(frozen=True)
 class TableSpec:
     """A parsed, validated table build spec (see the module docstring for the file layout).
@@ -278,6 +287,11 @@ def parse_spec(doc: dict, source: str = "<spec>") -> TableSpec:
     targets = doc.get("targets", [])
     if not isinstance(targets, list) or not all(isinstance(t, str) for t in targets):
         raise ConfigError(f"{source}: targets must be a list of target names")
+    known_targets = renderer_targets()
+    if known_targets is not None:
+        for t in targets:
+            if t not in known_targets:
+                raise ConfigError(f"{source}: unknown target '{t}' in targets{_nearest(t, known_targets)}")
 
     bands_doc = doc["bands"]
     if not isinstance(bands_doc, dict):

@@ -54,6 +54,7 @@ def test_spec_hash_changes_with_content_only():
         (_doc(photons_per_band=1.5), "whole number"),
         (_doc(transport={"reference_split": ["blood"]}), "reference_split names 'blood'"),
         ({"seed": 1}, "missing required key"),
+        (_doc(targets=["openpbrr"]), "unknown target 'openpbrr' in targets; did you mean 'openpbr'"),
     ],
 )
 def test_bad_specs_name_the_problem(doc, message):
