@@ -260,6 +260,15 @@ def parse_spec(doc: dict, source: str = "<spec>") -> TableSpec:
         Unknown keys (naming the nearest valid one), missing keys, wrong types, axes with fewer than two points
         or non-increasing values, unknown axis names.
     """
+    try:
+        return _parse_spec(doc, source)
+    except MatgenError:
+        raise
+    except (TypeError, ValueError, AttributeError, OverflowError) as exc:
+        raise ConfigError(f"{source}: malformed spec ({type(exc).__name__}: {exc})") from exc
+
+
+def _parse_spec(doc: dict, source: str) -> TableSpec:
     if not isinstance(doc, dict):
         raise ConfigError(f"{source}: a spec must be a TOML table")
     _check_keys(doc, _TOP_KEYS, "the top level", source)
