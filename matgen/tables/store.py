@@ -162,6 +162,8 @@ def read_npz_checked(path: Path, what: str) -> dict:
                 if not member.endswith(".npy"):
                     raise TableError(f"{what} {path} holds an unexpected member '{member}'")
                 shape = _npy_shape(zf, member)
+                if any(int(n) < 0 for n in shape):
+                    raise TableError(f"{what} {path} array '{member}' declares a negative dimension {shape}")
                 entries = 1
                 for n in shape:
                     entries *= max(1, int(n))  # Python ints: no overflow on hostile shapes
