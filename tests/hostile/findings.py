@@ -57,4 +57,7 @@ FINDINGS = [
      "escaped": "partial rec.npz left at the destination", "where": "matgen/transport/records.py "
      "PhotonRecords.save", "status": "open",
      "test": "test_found_inputs.py::test_records_save_failing_midway_leaves_no_partial_file"},
+    {"target": "table_declared_shape", "input": "member .npy shape (-99999999999999999999999999998999999999991, 3)",
+     "escaped": "OverflowError", "where": "matgen/tables/store.py read_npz_checked", "status": "fixed",
+     "test": "test_found_inputs.py::test_table_member_with_huge_negative_dimension_is_table_error"},
 ]

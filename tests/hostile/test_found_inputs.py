@@ -314,3 +314,17 @@ def test_records_save_failing_midway_leaves_no_partial_file(tmp_path, monkeypatc
     with pytest.raises(Exception):
         rec.save(tmp_path / "rec.npz")
     assert not (tmp_path / "rec.npz").exists()
+
+
+def test_table_member_with_huge_negative_dimension_is_table_error(tmp_path):
+    """A member declaring shape (-99999999999999999999999999998999999999991, 3) raised OverflowError in numpy."""
+    from targets import _npy_member
+
+    from matgen.errors import TableError
+    from matgen.tables.store import Table
+
+    p = _saved_table(tmp_path)
+    p.with_suffix(".json").unlink()
+    _rewrite_member(p, "q_albedo_multiple.npy", _npy_member(b"(-99999999999999999999999999998999999999991, 3)"))
+    with pytest.raises(TableError):
+        Table.load(p)
