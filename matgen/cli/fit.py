@@ -69,7 +69,7 @@ def register(sub):
 def _read(path: Path):
     try:
         text = path.read_text()
-    except OSError as exc:
+    except (OSError, UnicodeDecodeError) as exc:
         raise ConfigError(f"cannot read {path}: {exc}") from exc
     try:
         doc = json.loads(text)
