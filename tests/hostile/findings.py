@@ -60,4 +60,7 @@ FINDINGS = [
     {"target": "table_declared_shape", "input": "member .npy shape (-99999999999999999999999999998999999999991, 3)",
      "escaped": "OverflowError", "where": "matgen/tables/store.py read_npz_checked", "status": "fixed",
      "test": "test_found_inputs.py::test_table_member_with_huge_negative_dimension_is_table_error"},
+    {"target": "fit_result", "input": "result.json holding b'{\"photons\\xa2: 3000}' (not UTF-8)",
+     "escaped": "UnicodeDecodeError (traceback from matgen fit)", "where": "matgen/cli/fit.py _read",
+     "status": "fixed", "test": "test_found_inputs.py::test_fit_result_file_not_utf8_is_one_error"},
 ]

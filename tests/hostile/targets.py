@@ -501,3 +501,46 @@ def _photon_records(data: bytes, scratch: Path):
     p.write_bytes(data)
     rec = PhotonRecords.load(p)
     reweight(rec, np.array([[0.5, 0.05]]), threads=1)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# command-line entry points fed whole files: exit 0 or 2 with one message, never a traceback
+
+
+def _cli(argv) -> int:
+    import contextlib
+    import io
+
+    from matgen.cli import main
+
+    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()):
+        rc = main([str(a) for a in argv])
+    if rc not in (0, 2):
+        raise AssertionError(f"matgen {argv[0]} exited {rc}")
+    if rc == 2:
+        from matgen.errors import ConfigError
+
+        raise ConfigError("rejected by the command line (exit 2)")
+    return rc
+
+
+def _fit_seeds(d: Path) -> list:
+    import contextlib
+    import io
+
+    from matgen.cli import main
+
+    stack = d / "stack.json"
+    stack.write_bytes(_stack_json_seeds(d)[0])
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        main(["simulate", str(stack), "--photons", "3000", "--seed", "1", "--threads", "1", "--json", "--profile"])
+    return [buf.getvalue().encode()]
+
+
+@target("fit_result", _fit_seeds, requires=("matgen.cli.fit", "matgen.cli.simulate"), time_budget_s=30.0,
+        notes="matgen fit on a mutated transport result JSON (from matgen simulate --json --profile)")
+def _fit_result(data: bytes, scratch: Path):
+    p = scratch / "result.json"
+    p.write_bytes(data)
+    _cli(["fit", p, "--json"])

@@ -328,3 +328,13 @@ def test_table_member_with_huge_negative_dimension_is_table_error(tmp_path):
     _rewrite_member(p, "q_albedo_multiple.npy", _npy_member(b"(-99999999999999999999999999998999999999991, 3)"))
     with pytest.raises(TableError):
         Table.load(p)
+
+
+def test_fit_result_file_not_utf8_is_one_error(tmp_path, capsys):
+    """`matgen fit result.json` on a file holding b'{"photons\\xa2: 3000}' raised UnicodeDecodeError (a traceback)."""
+    from matgen.cli import main
+
+    p = tmp_path / "result.json"
+    p.write_bytes(b'{"photons\xa2: 3000}')
+    assert main(["fit", str(p)]) == 2
+    assert "result.json" in capsys.readouterr().err
