@@ -98,6 +98,7 @@ def get_limit(name: str) -> int:
     ------
     ConfigError
         If the environment variable is set but is not a positive whole number.
+
     """
     _check_name(name)
     if name in _overrides:
@@ -115,11 +116,15 @@ def get_limit(name: str) -> int:
         except ValueError:
             f = float("nan")
         if not (f == f and f.is_integer()):
-            raise ConfigError(f"environment variable {env}={raw!r} is not a whole number; unset it or give "
-                              f"a positive integer (default {default})") from None
+            raise ConfigError(
+                f"environment variable {env}={raw!r} is not a whole number; unset it or give "
+                f"a positive integer (default {default})"
+            ) from None
         v = int(f)
     if v < 1:
-        raise ConfigError(f"environment variable {env}={raw!r} must be a positive integer (default {default})")
+        raise ConfigError(
+            f"environment variable {env}={raw!r} must be a positive integer (default {default})"
+        )
     return v
 
 
@@ -132,6 +137,7 @@ def set_limit(name: str, value: int | None) -> None:
         One of the keys of :data:`DEFAULTS`.
     value : int or None
         New ceiling (>= 1), in the unit of that limit, or ``None`` to fall back to the environment / default.
+
     """
     _check_name(name)
     if value is None:
@@ -148,6 +154,7 @@ def override(**limits):
     --------
     >>> with override(image_pixels=4096 * 4096, photons=10**6):
     ...     check_photons(10**6)
+
     """
     for name in limits:
         _check_name(name)
@@ -175,7 +182,9 @@ def _exceeds(name: str, value: int, what: str) -> None:
     ceiling = get_limit(name)
     if value > ceiling:
         unit = DEFAULTS[name][2]
-        raise LimitError(f"{what} is {value} {unit}, above the ceiling of {ceiling} {unit}; {_how_to_raise(name)}")
+        raise LimitError(
+            f"{what} is {value} {unit}, above the ceiling of {ceiling} {unit}; {_how_to_raise(name)}"
+        )
 
 
 def _where(path) -> str:
@@ -207,6 +216,7 @@ def check_image_dims(width, height, channels=1, path=None, bytes_per_channel: in
         If a dimension is not a positive whole number (zero-sized or negative declared sizes).
     LimitError
         If width, height, width x height, the channel count or the bytes to allocate exceed their ceilings.
+
     """
     where = _where(path)
     try:
@@ -218,8 +228,11 @@ def check_image_dims(width, height, channels=1, path=None, bytes_per_channel: in
     _exceeds("image_side", max(w, h), f"the larger side of the image{where} ({w} x {h})")
     _exceeds("image_pixels", w * h, f"the image{where} ({w} x {h})")
     _exceeds("image_channels", c, f"the channel count of the image{where}")
-    _exceeds("image_bytes", w * h * c * int(bytes_per_channel),
-             f"the memory for the image{where} ({w} x {h} x {c} channels x {int(bytes_per_channel)} bytes)")
+    _exceeds(
+        "image_bytes",
+        w * h * c * int(bytes_per_channel),
+        f"the memory for the image{where} ({w} x {h} x {c} channels x {int(bytes_per_channel)} bytes)",
+    )
     return w * h
 
 
@@ -242,6 +255,7 @@ def check_photons(n) -> int:
         If ``n`` is not a positive whole number.
     LimitError
         If ``n`` exceeds the ``photons`` ceiling.
+
     """
     v = _positive_int(n, "photon count")
     _exceeds("photons", v, "the photon count")
@@ -269,6 +283,7 @@ def check_table_entries(n, what: str = "table") -> int:
         If ``n`` is not a positive whole number.
     LimitError
         If ``n`` exceeds the ``table_entries`` ceiling.
+
     """
     v = _positive_int(n, f"entry count of {what}")
     _exceeds("table_entries", v, f"the entry count of {what}")
@@ -289,6 +304,7 @@ def check_udim_tiles(n, what: str = "UDIM set") -> int:
     -------
     int
         ``n`` as a Python int.
+
     """
     v = _positive_int(n, f"tile count of {what}")
     _exceeds("udim_tiles", v, f"the tile count of {what}")
@@ -327,6 +343,7 @@ def check_file_size(path, what: str = "input file", text: bool = False) -> int:
         If the file does not exist or is not a regular file.
     LimitError
         If it is larger than the ceiling.
+
     """
     p = Path(path)
     try:
@@ -353,6 +370,7 @@ def read_text_limited(path, what: str = "input file") -> str:
     -------
     str
         The file's text.
+
     """
     ceiling = get_limit("text_bytes")
     check_file_size(path, what, text=True)

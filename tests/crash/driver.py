@@ -17,8 +17,9 @@ def main(argv):
         from matgen.tables.build import build_table
 
         def job():
-            build_table(src, out, executor="serial" if workers is None else "local", workers=workers,
-                        progress=False)
+            build_table(
+                src, out, executor="serial" if workers is None else "local", workers=workers, progress=False
+            )
     elif kind == "bake":
         from matgen.bake.config import load_config
         from matgen.export.job import bake

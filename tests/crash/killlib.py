@@ -50,8 +50,14 @@ class Run:
 
 def run_child(args: list, kill_after_s: float | None = None, timeout_s: float = 300.0) -> Run:
     """Run ``driver.py ARGS``; SIGKILL its process group ``kill_after_s`` seconds after READY (None: never)."""
-    proc = subprocess.Popen([sys.executable, str(DRIVER), *map(str, args)], stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True, env=_env(), start_new_session=True)
+    proc = subprocess.Popen(
+        [sys.executable, str(DRIVER), *map(str, args)],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        env=_env(),
+        start_new_session=True,
+    )
     try:
         line = proc.stdout.readline()
         if line.strip() != "READY":
@@ -112,7 +118,9 @@ def hidden_leftovers(folder: Path) -> list:
     """Leftovers under ``folder``: hidden temporaries and staging folders, and lock files."""
     if not folder.exists():
         return []
-    return sorted(str(p.relative_to(folder)) for p in folder.rglob("*") if _is_leftover(p.relative_to(folder)))
+    return sorted(
+        str(p.relative_to(folder)) for p in folder.rglob("*") if _is_leftover(p.relative_to(folder))
+    )
 
 
 @dataclass
@@ -137,8 +145,17 @@ class KillReport:
         return not self.partial_or_corrupt and bool(self.rerun_identical) and not self.locks_after_rerun
 
 
-def kill_campaign(what: str, args_for, reference: dict, reference_seconds: float, out_dirs, kills: int,
-                  seed: int = 0, ignore=(), rerun=None) -> KillReport:
+def kill_campaign(
+    what: str,
+    args_for,
+    reference: dict,
+    reference_seconds: float,
+    out_dirs,
+    kills: int,
+    seed: int = 0,
+    ignore=(),
+    rerun=None,
+) -> KillReport:
     """Kill ``kills`` successive runs of the same job at random points, checking after each; then rerun.
 
     Parameters
@@ -166,6 +183,7 @@ def kill_campaign(what: str, args_for, reference: dict, reference_seconds: float
 
     def ignored(rel):
         return any(fnmatch.fnmatch(rel, pat) for pat in ignore)
+
     for _ in range(kills):
         delay = rng.uniform(0.0, 1.1 * reference_seconds)
         run = run_child(args_for(), kill_after_s=delay)
@@ -181,8 +199,10 @@ def kill_campaign(what: str, args_for, reference: dict, reference_seconds: float
                 if want is None:
                     rep.partial_or_corrupt.append(f"after kill at {delay:.2f} s: unexpected file {key}/{rel}")
                 elif h != want:
-                    rep.partial_or_corrupt.append(f"after kill at {delay:.2f} s: {key}/{rel} differs from the "
-                                                  "uninterrupted run (partial or corrupt)")
+                    rep.partial_or_corrupt.append(
+                        f"after kill at {delay:.2f} s: {key}/{rel} differs from the "
+                        "uninterrupted run (partial or corrupt)"
+                    )
             rep.leftovers_max = max(rep.leftovers_max, len(hidden_leftovers(folder)))
     if rerun is not None:
         t0 = time.perf_counter()

@@ -19,8 +19,10 @@ TABLE_IGNORE = ("t.json", "t.job/tasks/*.json")  # wall times, host and PID: run
 def _tiny_spec(tmp_path, photons=1500) -> Path:
     """lut/specs/tiny.toml with fewer photons and two bands (the kill test needs a real build, not accuracy)."""
     text = resources.files("matgen.lut").joinpath("specs", "tiny.toml").read_text()
-    for old, new in (("photons_per_band = 4000", f"photons_per_band = {photons}"),
-                     ("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [450.0, 650.0]")):
+    for old, new in (
+        ("photons_per_band = 4000", f"photons_per_band = {photons}"),
+        ("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [450.0, 650.0]"),
+    ):
         assert old in text, old
         text = text.replace(old, new)
     p = tmp_path / "spec.toml"
@@ -29,7 +31,9 @@ def _tiny_spec(tmp_path, photons=1500) -> Path:
 
 
 def _check(rep):
-    assert rep.kills and rep.finished_before_kill < rep.kills, "no kill landed inside a run: the test tested nothing"
+    assert rep.kills and rep.finished_before_kill < rep.kills, (
+        "no kill landed inside a run: the test tested nothing"
+    )
     assert not rep.partial_or_corrupt, "\n".join(rep.partial_or_corrupt)
     assert rep.rerun_identical, "rerun differs from the uninterrupted run: " + "; ".join(rep.differing_files)
     assert not rep.locks_after_rerun, f"stale locks not taken over by the rerun: {rep.locks_after_rerun}"
@@ -51,8 +55,17 @@ def test_killed_table_build_leaves_no_partial_output_and_resumes_identically(tmp
             warnings.simplefilter("ignore")  # stale locks of the killed runs are reported as warnings
             build_table(spec, tmp_path / "run" / "t.npz", executor="serial", progress=False)
 
-    rep = kill_campaign("table build (serial)", lambda: ["table", spec, tmp_path / "run" / "t.npz"], reference,
-                        ref.seconds, {"run": tmp_path / "run"}, kills=2, seed=11, ignore=TABLE_IGNORE, rerun=rerun)
+    rep = kill_campaign(
+        "table build (serial)",
+        lambda: ["table", spec, tmp_path / "run" / "t.npz"],
+        reference,
+        ref.seconds,
+        {"run": tmp_path / "run"},
+        kills=2,
+        seed=11,
+        ignore=TABLE_IGNORE,
+        rerun=rerun,
+    )
     _check(rep)
     from matgen.tables.store import Table
 
@@ -76,8 +89,16 @@ def test_killed_bake_leaves_no_partial_output_and_rerun_is_identical(tmp_path):
             warnings.simplefilter("ignore")
             bake(load_config(cfg), tmp_path / "out", jobs=1)
 
-    rep = kill_campaign("bake (4 UDIM tiles)", lambda: ["bake", cfg, tmp_path / "out"], reference, ref.seconds,
-                        {"out": tmp_path / "out"}, kills=4, seed=5, rerun=rerun)
+    rep = kill_campaign(
+        "bake (4 UDIM tiles)",
+        lambda: ["bake", cfg, tmp_path / "out"],
+        reference,
+        ref.seconds,
+        {"out": tmp_path / "out"},
+        kills=4,
+        seed=5,
+        rerun=rerun,
+    )
     _check(rep)
     from matgen.export.descriptor import inspect_descriptor
 

@@ -48,7 +48,9 @@ def held_lock(tmp_path):
     """A live process holding the bake lock of tmp_path/out."""
     out = tmp_path / "out"
     out.mkdir()
-    proc = subprocess.Popen([sys.executable, "-c", HOLDER, str(out), BAKE_LOCK], stdout=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-c", HOLDER, str(out), BAKE_LOCK], stdout=subprocess.PIPE, text=True
+    )
     assert proc.stdout.readline().strip() == "HELD"
     yield out, proc.pid
     proc.send_signal(signal.SIGKILL)
@@ -86,7 +88,9 @@ def test_stale_bake_lock_of_a_killed_process_is_taken_over(tmp_path):
     cfg = make_project(tmp_path / "proj")
     out = tmp_path / "out"
     out.mkdir()
-    proc = subprocess.Popen([sys.executable, "-c", HOLDER, str(out), BAKE_LOCK], stdout=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-c", HOLDER, str(out), BAKE_LOCK], stdout=subprocess.PIPE, text=True
+    )
     assert proc.stdout.readline().strip() == "HELD"
     proc.send_signal(signal.SIGKILL)  # dies holding the lock: the lock file stays behind
     proc.wait()
@@ -125,8 +129,10 @@ def test_same_table_task_run_twice_at_once_is_computed_once(tmp_path):
     job = plan_job(spec, tmp_path / "job")
     env = dict(os.environ, PYTHONWARNINGS="ignore", NUMBA_NUM_THREADS="1")
     cmd = [sys.executable, "-m", "matgen", "table", "run-task", str(job.path), "0", "--threads", "1"]
-    procs = [subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
-             for _ in range(2)]
+    procs = [
+        subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+        for _ in range(2)
+    ]
     outs = [p.communicate(timeout=300) for p in procs]
     assert [p.returncode for p in procs] == [0, 0], outs
     said = sorted(o[0].strip() for o in outs)

@@ -26,8 +26,14 @@ def _sha(path) -> str:
 def _stack():
     from matgen.transport.stack import Stack
 
-    return Stack(thickness_mm=[0.1, 1.5], n=[1.4, 1.4], mu_a=[0.5, 0.05], mu_s=[30.0, 20.0], g=[0.8, 0.85],
-                 names=("epidermis", "dermis"))
+    return Stack(
+        thickness_mm=[0.1, 1.5],
+        n=[1.4, 1.4],
+        mu_a=[0.5, 0.05],
+        mu_s=[30.0, 20.0],
+        g=[0.8, 0.85],
+        names=("epidermis", "dermis"),
+    )
 
 
 #: fields that measure the run, not its result
@@ -52,12 +58,15 @@ def test_simulate_is_bit_identical_for_1_and_2_threads_and_split_ranges():
     one = simulate(stack, n, seed=42, threads=1)
     two = simulate(stack, n, seed=42, threads=2)
     _same_result(one, two)
-    parts = [simulate(stack, 2500, seed=42, threads=2, first_photon=0),
-             simulate(stack, n - 2500, seed=42, threads=1, first_photon=2500)]
+    parts = [
+        simulate(stack, 2500, seed=42, threads=2, first_photon=0),
+        simulate(stack, n - 2500, seed=42, threads=1, first_photon=2500),
+    ]
     _same_result(one, combine(parts[::-1], stack))
     other = simulate(stack, n, seed=43, threads=1)
-    assert not np.array_equal(other.extra["tally_fixed_point"], one.extra["tally_fixed_point"]), \
+    assert not np.array_equal(other.extra["tally_fixed_point"], one.extra["tally_fixed_point"]), (
         "another seed gave the same tallies: the comparison is vacuous"
+    )
 
 
 def test_reweight_is_bit_identical_for_1_and_2_threads():
@@ -69,8 +78,16 @@ def test_reweight_is_bit_identical_for_1_and_2_threads():
     mu = np.array([[0.5, 0.05], [2.0, 0.1], [0.7, 0.02]])
     a = reweight(records, mu, threads=1)
     b = reweight(records, mu, threads=2)
-    for name in ("diffuse_reflectance", "diffuse_reflectance_stderr", "transmittance", "radial_reflectance_per_mm2",
-                 "radial_stderr_per_mm2", "absorbed", "exit_angle_per_sr", "mean_penetration_depth_mm"):
+    for name in (
+        "diffuse_reflectance",
+        "diffuse_reflectance_stderr",
+        "transmittance",
+        "radial_reflectance_per_mm2",
+        "radial_stderr_per_mm2",
+        "absorbed",
+        "exit_angle_per_sr",
+        "mean_penetration_depth_mm",
+    ):
         assert np.array_equal(getattr(a, name), getattr(b, name)), name
 
 
@@ -81,8 +98,10 @@ def test_reweight_is_bit_identical_for_1_and_2_threads():
 def _spec(tmp_path) -> Path:
     """lut/specs/tiny.toml with two bands and fewer photons: a real build, small enough to run four times."""
     text = resources.files("matgen.lut").joinpath("specs", "tiny.toml").read_text()
-    for old, new in (("photons_per_band = 4000", "photons_per_band = 1500"),
-                     ("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [450.0, 650.0]")):
+    for old, new in (
+        ("photons_per_band = 4000", "photons_per_band = 1500"),
+        ("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [450.0, 650.0]"),
+    ):
         assert old in text, old
         text = text.replace(old, new)
     p = tmp_path / "spec.toml"
@@ -116,8 +135,9 @@ def test_table_is_bit_identical_across_executors_threads_and_task_order(tmp_path
     # the manifests beside them also record the same table checksum
     import json
 
-    assert {json.loads(Path(v).with_suffix(".json").read_text())["npz_sha256"] for v in files.values()} == \
-        set(digests.values())
+    assert {
+        json.loads(Path(v).with_suffix(".json").read_text())["npz_sha256"] for v in files.values()
+    } == set(digests.values())
 
 
 # ---------------------------------------------------------------------------------------------------------
@@ -142,10 +162,14 @@ def test_bake_is_bit_identical_for_1_and_2_threads_and_tile_by_tile(tmp_path):
     r1 = _bake(cfg, tmp_path / "one", jobs=1)
     _bake(cfg, tmp_path / "two", jobs=2)
     for rel in r1.files:
-        assert _sha(tmp_path / "one" / rel) == _sha(tmp_path / "two" / rel), f"{rel} differs between 1 and 2 threads"
+        assert _sha(tmp_path / "one" / rel) == _sha(tmp_path / "two" / rel), (
+            f"{rel} differs between 1 and 2 threads"
+        )
     for t in reversed(tiles):
         _bake(cfg, tmp_path / "tiles", jobs=2, tile=t)
     textures = [rel for rel in r1.files if rel.endswith(".exr")]
     assert textures and all(any(str(t) in rel for t in tiles) for rel in textures)
     for rel in textures:
-        assert _sha(tmp_path / "one" / rel) == _sha(tmp_path / "tiles" / rel), f"{rel} differs when baked alone"
+        assert _sha(tmp_path / "one" / rel) == _sha(tmp_path / "tiles" / rel), (
+            f"{rel} differs when baked alone"
+        )

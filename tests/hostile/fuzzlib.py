@@ -22,19 +22,49 @@ import struct
 import tempfile
 import time
 import traceback
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
 
 from matgen.errors import MatgenError
 
 #: Values a mutator writes over bytes: boundaries of integer widths and IEEE floats (NaN, inf, huge).
 INTERESTING = [
-    b"\x00", b"\xff", b"\x7f", b"\x80", b"\x00\x00\x00\x00", b"\xff\xff\xff\xff", b"\x7f\xff\xff\xff",
-    b"\x00\x00\x00\x80", struct.pack("<d", float("nan")), struct.pack("<d", float("inf")),
-    struct.pack("<f", float("nan")), struct.pack("<f", -float("inf")), struct.pack("<q", 2**62),
-    b"nan", b"inf", b"-1", b"1e308", b"0", b"..", b"/", b"\\", b'"', b"'", b"[", b"]", b"{", b"}", b"=",
-    b",", b"\n", b"\r\n", b"\t", b"\xc3\x28", b"9" * 40, b"../../etc/passwd",
+    b"\x00",
+    b"\xff",
+    b"\x7f",
+    b"\x80",
+    b"\x00\x00\x00\x00",
+    b"\xff\xff\xff\xff",
+    b"\x7f\xff\xff\xff",
+    b"\x00\x00\x00\x80",
+    struct.pack("<d", float("nan")),
+    struct.pack("<d", float("inf")),
+    struct.pack("<f", float("nan")),
+    struct.pack("<f", -float("inf")),
+    struct.pack("<q", 2**62),
+    b"nan",
+    b"inf",
+    b"-1",
+    b"1e308",
+    b"0",
+    b"..",
+    b"/",
+    b"\\",
+    b'"',
+    b"'",
+    b"[",
+    b"]",
+    b"{",
+    b"}",
+    b"=",
+    b",",
+    b"\n",
+    b"\r\n",
+    b"\t",
+    b"\xc3\x28",
+    b"9" * 40,
+    b"../../etc/passwd",
 ]
 
 
@@ -43,8 +73,10 @@ class Failure(AssertionError):
 
     def __init__(self, target: str, kind: str, data: bytes, detail: str):
         self.target, self.kind, self.data, self.detail = target, kind, data, detail
-        super().__init__(f"{target}: {kind} on input {data[:200]!r}{'...' if len(data) > 200 else ''} "
-                         f"({len(data)} bytes)\n{detail}")
+        super().__init__(
+            f"{target}: {kind} on input {data[:200]!r}{'...' if len(data) > 200 else ''} "
+            f"({len(data)} bytes)\n{detail}"
+        )
 
 
 @dataclass
@@ -94,7 +126,9 @@ class Target:
                 importlib.import_module(mod)
             except ImportError as exc:
                 return False, f"{mod} not importable ({exc})"
-            except Exception as exc:  # a stage that fails to import is itself a finding, reported by the caller
+            except (
+                Exception
+            ) as exc:  # a stage that fails to import is itself a finding, reported by the caller
                 return False, f"{mod} fails to import: {type(exc).__name__}: {exc}"
         return True, ""
 
@@ -160,16 +194,21 @@ def run_case(target: Target, data: bytes, scratch: Path | None = None) -> str:
                 raise Failure(target.name, f"{type(exc).__name__} with an empty message", data, "") from None
             outcome = "rejected"
         except Exception as exc:
-            raise Failure(target.name, f"{type(exc).__name__}: {exc}"[:300], data,
-                          traceback.format_exc(limit=-6)) from None
+            raise Failure(
+                target.name, f"{type(exc).__name__}: {exc}"[:300], data, traceback.format_exc(limit=-6)
+            ) from None
         leftovers = [p for p in _listing(scratch) if ".tmp" in Path(p).name]
         if leftovers:
             raise Failure(target.name, "temporary file left behind", data, ", ".join(sorted(leftovers)))
         if outcome == "rejected":
             new = _listing(out) - before
             if new:
-                raise Failure(target.name, "output written although the input was rejected", data,
-                              ", ".join(sorted(new)))
+                raise Failure(
+                    target.name,
+                    "output written although the input was rejected",
+                    data,
+                    ", ".join(sorted(new)),
+                )
         return outcome
     finally:
         if own:
@@ -195,14 +234,14 @@ def mutate(data: bytes, ops: list[tuple]) -> bytes:
             buf[pos] = a % 256
         elif kind == "interesting":
             val = INTERESTING[a % len(INTERESTING)]
-            buf[pos:pos + len(val)] = val
+            buf[pos : pos + len(val)] = val
         elif kind == "insert":
             val = INTERESTING[a % len(INTERESTING)] * (1 + b % 4)
             buf[pos:pos] = val
         elif kind == "delete":
-            del buf[pos:pos + 1 + b % 64]
+            del buf[pos : pos + 1 + b % 64]
         elif kind == "duplicate":
-            chunk = buf[pos:pos + 1 + b % 256]
+            chunk = buf[pos : pos + 1 + b % 256]
             buf[pos:pos] = chunk * (1 + a % 3)
         elif kind == "truncate":
             del buf[pos:]
@@ -226,15 +265,21 @@ OP_KINDS = ("flip", "byte", "interesting", "insert", "delete", "duplicate", "tru
 def random_ops(rng: random.Random, max_ops: int = 6) -> list[tuple]:
     """Draw mutation ops from a seeded generator (for the report's fixed-budget runs)."""
     n = rng.randint(1, max_ops)
-    return [(rng.choice(OP_KINDS), rng.random(), rng.randrange(1 << 16), rng.randrange(1 << 16)) for _ in range(n)]
+    return [
+        (rng.choice(OP_KINDS), rng.random(), rng.randrange(1 << 16), rng.randrange(1 << 16)) for _ in range(n)
+    ]
 
 
 def byte_mutations(max_ops: int = 6):
     """A hypothesis strategy of mutation op lists (shrinks toward fewer, simpler ops)."""
     from hypothesis import strategies as st
 
-    op = st.tuples(st.sampled_from(OP_KINDS), st.floats(0, 1, exclude_max=True),
-                   st.integers(0, 1 << 16), st.integers(0, 1 << 16))
+    op = st.tuples(
+        st.sampled_from(OP_KINDS),
+        st.floats(0, 1, exclude_max=True),
+        st.integers(0, 1 << 16),
+        st.integers(0, 1 << 16),
+    )
     return st.lists(op, min_size=1, max_size=max_ops)
 
 
@@ -262,7 +307,7 @@ def fuzz(target: Target, cases: int, seed: int = 0, stop_after_failures: int = 5
             base = rng.choice(seeds)
             if rng.random() < 0.1 and len(seeds) > 1:  # splice two seeds
                 other = rng.choice(seeds)
-                base = base[: rng.randrange(len(base) + 1)] + other[rng.randrange(len(other) + 1):]
+                base = base[: rng.randrange(len(base) + 1)] + other[rng.randrange(len(other) + 1) :]
             data = mutate(base, random_ops(rng))
         tally.cases += 1
         try:

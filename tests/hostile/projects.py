@@ -10,8 +10,15 @@ from pathlib import Path
 
 import numpy as np
 
-SPECTRAL = ("albedo_multiple", "albedo_multiple_stderr", "shape_distance_mm", "albedo_single", "mean_free_path_mm",
-            "anisotropy", "fit_residual")
+SPECTRAL = (
+    "albedo_multiple",
+    "albedo_multiple_stderr",
+    "shape_distance_mm",
+    "albedo_single",
+    "mean_free_path_mm",
+    "anisotropy",
+    "fit_residual",
+)
 
 
 def make_table(band_spec: str = "400:700:50"):
@@ -20,8 +27,10 @@ def make_table(band_spec: str = "400:700:50"):
     from matgen.tables.store import Axis, Table
 
     bands = BandSet.parse(band_spec)
-    axes = [Axis("melanin_fraction", np.array([0.005, 0.03, 0.1, 0.45]), "log"),
-            Axis("blood_fraction", np.array([0.002, 0.01, 0.1]), "log")]
+    axes = [
+        Axis("melanin_fraction", np.array([0.005, 0.03, 0.1, 0.45]), "log"),
+        Axis("blood_fraction", np.array([0.002, 0.01, 0.1]), "log"),
+    ]
     mesh = np.meshgrid(*[a.values for a in axes], indexing="ij")
     m, b = (x[..., None] for x in mesh)
     wl = bands.centre_nm / 1000.0
@@ -36,11 +45,22 @@ def make_table(band_spec: str = "400:700:50"):
         "fit_residual": 0.01 + 0.01 * m + 0.0 * a,
     }
     idx = [len(bands) - 1, len(bands) // 2, 0]
-    for name in ("albedo_multiple", "shape_distance_mm", "albedo_single", "mean_free_path_mm", "fit_residual"):
+    for name in (
+        "albedo_multiple",
+        "shape_distance_mm",
+        "albedo_single",
+        "mean_free_path_mm",
+        "fit_residual",
+    ):
         q[f"rgb_{name}"] = q[name][..., idx]
     q["ior"] = 1.4 + 0.0 * m
-    q = {k: np.asarray(np.broadcast_to(v, m.shape[:-1] + (v.shape[-1],)), dtype=np.float32) for k, v in q.items()}
-    return Table(axes, bands, q, manifest={"name": "hostile-test-table", "note": "test data: invented functions"})
+    q = {
+        k: np.asarray(np.broadcast_to(v, m.shape[:-1] + (v.shape[-1],)), dtype=np.float32)
+        for k, v in q.items()
+    }
+    return Table(
+        axes, bands, q, manifest={"name": "hostile-test-table", "note": "test data: invented functions"}
+    )
 
 
 def write_map(path, values, pixel_type=None) -> None:

@@ -52,11 +52,18 @@ def _band_spec(data: bytes, _scratch: Path):
 def _band_json_seeds(_d: Path):
     from matgen.spectra.bands import BandSet, default_bands
 
-    return [json.dumps(default_bands().to_dict()).encode(), json.dumps(BandSet.parse("365,550,850").to_dict()).encode()]
+    return [
+        json.dumps(default_bands().to_dict()).encode(),
+        json.dumps(BandSet.parse("365,550,850").to_dict()).encode(),
+    ]
 
 
-@target("bands_json", _band_json_seeds, requires=("matgen.spectra.bands",),
-        notes="BandSet.from_dict on decoded JSON (band tables inside descriptors, manifests, table files)")
+@target(
+    "bands_json",
+    _band_json_seeds,
+    requires=("matgen.spectra.bands",),
+    notes="BandSet.from_dict on decoded JSON (band tables inside descriptors, manifests, table files)",
+)
 def _bands_json(data: bytes, _scratch: Path):
     from matgen.spectra.bands import BandSet
 
@@ -75,8 +82,12 @@ def _path_seeds(_d: Path):
     return [b"maps/melanin.exr", b"../outside.exr", b"/etc/passwd", b"a/../../b", b"link/x.exr", b"."]
 
 
-@target("relative_path", _path_seeds, requires=("matgen.fsutil",),
-        notes="fsutil.resolve_inside on texture/table paths from configs and descriptors")
+@target(
+    "relative_path",
+    _path_seeds,
+    requires=("matgen.fsutil",),
+    notes="fsutil.resolve_inside on texture/table paths from configs and descriptors",
+)
 def _relative_path(data: bytes, scratch: Path):
     import os
 
@@ -105,8 +116,11 @@ def _small_table():
     bands = BandSet.parse("450,550,650")
     axes = [Axis("melanin_fraction", [0.01, 0.1, 0.3], "log"), Axis("blood_fraction", [0.0, 0.05], "linear")]
     rng = np.random.default_rng(7)
-    q = {"albedo_multiple": rng.random((3, 2, 3)), "rgb_albedo_multiple": rng.random((3, 2, 3)),
-         "ior": np.full((3, 2, 1), 1.4)}
+    q = {
+        "albedo_multiple": rng.random((3, 2, 3)),
+        "rgb_albedo_multiple": rng.random((3, 2, 3)),
+        "ior": np.full((3, 2, 1), 1.4),
+    }
     return Table(axes, bands, q, manifest={"spec": {"name": "hostile"}})
 
 
@@ -123,8 +137,12 @@ def _table_npz_seeds(d: Path):
     return [p.read_bytes()]
 
 
-@target("table_npz", _table_npz_seeds, requires=("matgen.tables.store",),
-        notes="Table.load on a mutated .npz (no manifest beside it, so no checksum stops the mutation)")
+@target(
+    "table_npz",
+    _table_npz_seeds,
+    requires=("matgen.tables.store",),
+    notes="Table.load on a mutated .npz (no manifest beside it, so no checksum stops the mutation)",
+)
 def _table_npz(data: bytes, scratch: Path):
     from matgen.tables.store import Table
 
@@ -155,8 +173,12 @@ def _table_header_seeds(d: Path):
     return [header]
 
 
-@target("table_header", _table_header_seeds, requires=("matgen.tables.store",),
-        notes="Table.load with a mutated JSON header inside an otherwise valid .npz")
+@target(
+    "table_header",
+    _table_header_seeds,
+    requires=("matgen.tables.store",),
+    notes="Table.load with a mutated JSON header inside an otherwise valid .npz",
+)
 def _table_header(data: bytes, scratch: Path):
     import io
     import zipfile
@@ -184,8 +206,12 @@ def _table_manifest_seeds(d: Path):
     return [(d / "t.json").read_bytes()]
 
 
-@target("table_manifest", _table_manifest_seeds, requires=("matgen.tables.store",),
-        notes="Table.load with a mutated .json manifest beside a valid .npz")
+@target(
+    "table_manifest",
+    _table_manifest_seeds,
+    requires=("matgen.tables.store",),
+    notes="Table.load with a mutated .json manifest beside a valid .npz",
+)
 def _table_manifest(data: bytes, scratch: Path):
     from matgen.tables.store import Table
 
@@ -207,8 +233,12 @@ def _table_shape_seeds(_d: Path):
     return [b"(3, 2, 3)", b"(100000, 100000, 100000)", b"(-1, 3)", b"(0, 3)", b"(2**62,)"]
 
 
-@target("table_declared_shape", _table_shape_seeds, requires=("matgen.tables.store",),
-        notes="a .npz member declaring a huge, negative or malformed shape with no data behind it")
+@target(
+    "table_declared_shape",
+    _table_shape_seeds,
+    requires=("matgen.tables.store",),
+    notes="a .npz member declaring a huge, negative or malformed shape with no data behind it",
+)
 def _table_declared_shape(data: bytes, scratch: Path):
     from matgen.tables.store import Table
 
@@ -257,8 +287,12 @@ def _lut_spec_texts() -> list:
     return [root.joinpath(n).read_bytes() for n in ("tiny.toml", "default.toml")]
 
 
-@target("table_spec", lambda d: _lut_spec_texts(), requires=("matgen.tables.spec",),
-        notes="load_spec on a mutated TOML table spec (seeds: lut/specs/*.toml)")
+@target(
+    "table_spec",
+    lambda d: _lut_spec_texts(),
+    requires=("matgen.tables.spec",),
+    notes="load_spec on a mutated TOML table spec (seeds: lut/specs/*.toml)",
+)
 def _table_spec(data: bytes, scratch: Path):
     from matgen.tables.spec import load_spec
 
@@ -285,8 +319,12 @@ def _tiny_job_text() -> bytes:
     return _TINY_JOB["text"]
 
 
-@target("job_file", lambda d: [_tiny_job_text()], requires=("matgen.tables.plan", "matgen.tissue.optics"),
-        notes="JobFolder.open on a mutated job.json")
+@target(
+    "job_file",
+    lambda d: [_tiny_job_text()],
+    requires=("matgen.tables.plan", "matgen.tissue.optics"),
+    notes="JobFolder.open on a mutated job.json",
+)
 def _job_file(data: bytes, scratch: Path):
     from matgen.tables.plan import JobFolder
 
@@ -308,13 +346,22 @@ def _task_record_seed(d: Path) -> list:
     jf = JobFolder.open(job)
     out = jf.output_path(0)
     out.write_bytes(b"task output bytes")
-    rec = {"index": 0, "task_id": jf.plan.tasks[0].task_id, "sha256": sha256_file(out), "bytes": out.stat().st_size,
-           "wall_s": 0.1}
+    rec = {
+        "index": 0,
+        "task_id": jf.plan.tasks[0].task_id,
+        "sha256": sha256_file(out),
+        "bytes": out.stat().st_size,
+        "wall_s": 0.1,
+    }
     return [json.dumps(rec, indent=1).encode()]
 
 
-@target("task_record", _task_record_seed, requires=("matgen.tables.tasks", "matgen.tissue.optics"),
-        notes="task_state (resume check) on a mutated task record JSON")
+@target(
+    "task_record",
+    _task_record_seed,
+    requires=("matgen.tables.tasks", "matgen.tissue.optics"),
+    notes="task_state (resume check) on a mutated task record JSON",
+)
 def _task_record(data: bytes, scratch: Path):
     from matgen.tables.plan import JobFolder
     from matgen.tables.tasks import task_state
@@ -358,8 +405,13 @@ def _config_seeds(d: Path) -> list:
     return [_project(d).read_bytes()]
 
 
-@target("material_config", _config_seeds, requires=_BAKE_REQ, time_budget_s=30.0,
-        notes="load_config + bake on a mutated material config TOML (valid maps and table beside it)")
+@target(
+    "material_config",
+    _config_seeds,
+    requires=_BAKE_REQ,
+    time_budget_s=30.0,
+    notes="load_config + bake on a mutated material config TOML (valid maps and table beside it)",
+)
 def _material_config(data: bytes, scratch: Path):
     cfg = _project(scratch)
     cfg.write_bytes(data)
@@ -388,7 +440,6 @@ def _map_target(kind: str):
 def _map_seeds_as(kind: str):
     def seeds(d: Path) -> list:
         import OpenImageIO as oiio
-
         from projects import pigment_maps, write_map
 
         mel, _ = pigment_maps(16, 16)
@@ -400,8 +451,14 @@ def _map_seeds_as(kind: str):
 
 
 for _kind in ("exr", "png", "tif"):
-    TARGETS[f"map_{_kind}"] = Target(f"map_{_kind}", _map_seeds_as(_kind), _map_target(_kind), _BAKE_REQ, 30.0,
-                                     f"bake with a mutated {_kind.upper()} melanin map")
+    TARGETS[f"map_{_kind}"] = Target(
+        f"map_{_kind}",
+        _map_seeds_as(_kind),
+        _map_target(_kind),
+        _BAKE_REQ,
+        30.0,
+        f"bake with a mutated {_kind.upper()} melanin map",
+    )
 
 
 def _descriptor_seeds(d: Path) -> list:
@@ -412,8 +469,13 @@ def _descriptor_seeds(d: Path) -> list:
 _BAKED: dict = {}
 
 
-@target("descriptor", _descriptor_seeds, requires=_BAKE_REQ + ("matgen.export.descriptor",), time_budget_s=30.0,
-        notes="inspect_descriptor on a mutated material.json beside its baked textures")
+@target(
+    "descriptor",
+    _descriptor_seeds,
+    requires=_BAKE_REQ + ("matgen.export.descriptor",),
+    time_budget_s=30.0,
+    notes="inspect_descriptor on a mutated material.json beside its baked textures",
+)
 def _descriptor(data: bytes, scratch: Path):
     import shutil
 
@@ -439,8 +501,12 @@ def _csv_seeds(_d: Path) -> list:
     return [root.joinpath(f"{n}.csv").read_bytes() for n in ("uv365", "nir850", "nir940")]
 
 
-@target("response_csv", _csv_seeds, requires=("matgen.color.passes",),
-        notes="pass_weights on a mutated response-curve CSV file")
+@target(
+    "response_csv",
+    _csv_seeds,
+    requires=("matgen.color.passes",),
+    notes="pass_weights on a mutated response-curve CSV file",
+)
 def _response_csv(data: bytes, scratch: Path):
     import numpy as np
 
@@ -458,16 +524,29 @@ def _response_csv(data: bytes, scratch: Path):
 
 
 def _stack_json_seeds(_d: Path) -> list:
-    one = {"n_above": 1.0, "n_below": 1.0, "layers": [
-        {"thickness_mm": 0.1, "n": 1.4, "mu_a": 0.5, "mu_s": 30.0, "g": 0.8, "name": "epidermis"},
-        {"thickness_mm": 1.5, "n": 1.4, "mu_a": 0.05, "mu_s": 20.0, "g": 0.85, "name": "dermis"}]}
-    multi = {"wavelength_nm": [450.0, 650.0], "layers": [
-        {"thickness_mm": 0.2, "n": [1.4, 1.39], "mu_a": [0.9, 0.2], "mu_s": [40.0, 25.0], "g": 0.8}]}
+    one = {
+        "n_above": 1.0,
+        "n_below": 1.0,
+        "layers": [
+            {"thickness_mm": 0.1, "n": 1.4, "mu_a": 0.5, "mu_s": 30.0, "g": 0.8, "name": "epidermis"},
+            {"thickness_mm": 1.5, "n": 1.4, "mu_a": 0.05, "mu_s": 20.0, "g": 0.85, "name": "dermis"},
+        ],
+    }
+    multi = {
+        "wavelength_nm": [450.0, 650.0],
+        "layers": [
+            {"thickness_mm": 0.2, "n": [1.4, 1.39], "mu_a": [0.9, 0.2], "mu_s": [40.0, 25.0], "g": 0.8}
+        ],
+    }
     return [json.dumps(one).encode(), json.dumps(multi).encode()]
 
 
-@target("stack_json", _stack_json_seeds, requires=("matgen.cli.simulate", "matgen.transport.simulate"),
-        notes="matgen simulate's STACK.json reader, then a 200-photon run of each stack read")
+@target(
+    "stack_json",
+    _stack_json_seeds,
+    requires=("matgen.cli.simulate", "matgen.transport.simulate"),
+    notes="matgen simulate's STACK.json reader, then a 200-photon run of each stack read",
+)
 def _stack_json(data: bytes, scratch: Path):
     from matgen.cli.simulate import load_stacks
     from matgen.transport.simulate import simulate
@@ -489,8 +568,12 @@ def _records_seeds(d: Path) -> list:
     return [p.read_bytes()]
 
 
-@target("photon_records", _records_seeds, requires=("matgen.transport.records", "matgen.transport.reweight"),
-        notes="PhotonRecords.load on a mutated records file, then a reweighting of what loaded")
+@target(
+    "photon_records",
+    _records_seeds,
+    requires=("matgen.transport.records", "matgen.transport.reweight"),
+    notes="PhotonRecords.load on a mutated records file, then a reweighting of what loaded",
+)
 def _photon_records(data: bytes, scratch: Path):
     import numpy as np
 
@@ -534,12 +617,30 @@ def _fit_seeds(d: Path) -> list:
     stack.write_bytes(_stack_json_seeds(d)[0])
     buf = io.StringIO()
     with contextlib.redirect_stdout(buf):
-        main(["simulate", str(stack), "--photons", "3000", "--seed", "1", "--threads", "1", "--json", "--profile"])
+        main(
+            [
+                "simulate",
+                str(stack),
+                "--photons",
+                "3000",
+                "--seed",
+                "1",
+                "--threads",
+                "1",
+                "--json",
+                "--profile",
+            ]
+        )
     return [buf.getvalue().encode()]
 
 
-@target("fit_result", _fit_seeds, requires=("matgen.cli.fit", "matgen.cli.simulate"), time_budget_s=30.0,
-        notes="matgen fit on a mutated transport result JSON (from matgen simulate --json --profile)")
+@target(
+    "fit_result",
+    _fit_seeds,
+    requires=("matgen.cli.fit", "matgen.cli.simulate"),
+    time_budget_s=30.0,
+    notes="matgen fit on a mutated transport result JSON (from matgen simulate --json --profile)",
+)
 def _fit_result(data: bytes, scratch: Path):
     p = scratch / "result.json"
     p.write_bytes(data)

@@ -50,7 +50,9 @@ def test_path_with_nul_byte_is_path_error(tmp_path):
         resolve_inside(tmp_path, "\x00aps/melanin.exr", "texture path")
 
 
-@pytest.mark.xfail(strict=True, reason="open: Stack.__post_init__ calls tuple(names) unguarded (matgen/transport/stack.py)")
+@pytest.mark.xfail(
+    strict=True, reason="open: Stack.__post_init__ calls tuple(names) unguarded (matgen/transport/stack.py)"
+)
 def test_stack_names_not_a_sequence_is_stack_error():
     """Stack(names=5) (a layer-name field from a hostile STACK.json) raised TypeError."""
     from matgen.transport.stack import Stack
@@ -77,10 +79,10 @@ def _rewrite_member(path, member, payload=None, raw_compressed=None):
         with zipfile.ZipFile(path) as zf:
             info = zf.getinfo(member)
         data = bytearray(path.read_bytes())
-        name_len = int.from_bytes(data[info.header_offset + 26:info.header_offset + 28], "little")
-        extra_len = int.from_bytes(data[info.header_offset + 28:info.header_offset + 30], "little")
+        name_len = int.from_bytes(data[info.header_offset + 26 : info.header_offset + 28], "little")
+        extra_len = int.from_bytes(data[info.header_offset + 28 : info.header_offset + 30], "little")
         start = info.header_offset + 30 + name_len + extra_len
-        data[start:start + len(raw_compressed)] = raw_compressed
+        data[start : start + len(raw_compressed)] = raw_compressed
         path.write_bytes(bytes(data))
         return
     with zipfile.ZipFile(path) as zf:
@@ -203,7 +205,7 @@ def test_table_with_unknown_compression_method_is_table_error(tmp_path):
     p.with_suffix(".json").unlink()
     data = bytearray(p.read_bytes())
     at = data.index(b"PK\x01\x02")
-    data[at + 10:at + 12] = (99).to_bytes(2, "little")
+    data[at + 10 : at + 12] = (99).to_bytes(2, "little")
     p.write_bytes(bytes(data))
     with pytest.raises(TableError):
         Table.load(p)
@@ -213,8 +215,11 @@ def test_table_with_unknown_compression_method_is_table_error(tmp_path):
 # pigment maps (matgen/bake/maps.py)
 
 
-@pytest.mark.xfail(strict=True, reason="open: oiio.geterror() raises UnicodeDecodeError on a message holding the "
-                   "file's non-UTF-8 bytes (matgen/bake/maps.py map_info)")
+@pytest.mark.xfail(
+    strict=True,
+    reason="open: oiio.geterror() raises UnicodeDecodeError on a message holding the "
+    "file's non-UTF-8 bytes (matgen/bake/maps.py map_info)",
+)
 def test_exr_with_non_utf8_attribute_type_is_image_error(tmp_path):
     """An EXR whose 'channels' attribute type 'chlist' is overwritten by b'ch\\xc9ist' raised UnicodeDecodeError."""
     pytest.importorskip("OpenImageIO")
@@ -263,8 +268,8 @@ def test_records_file_with_bad_crc_is_data_error(tmp_path):
     with zipfile.ZipFile(p) as zf:
         info = zf.getinfo("weight.npy")
     data = bytearray(p.read_bytes())
-    name_len = int.from_bytes(data[info.header_offset + 26:info.header_offset + 28], "little")
-    extra_len = int.from_bytes(data[info.header_offset + 28:info.header_offset + 30], "little")
+    name_len = int.from_bytes(data[info.header_offset + 26 : info.header_offset + 28], "little")
+    extra_len = int.from_bytes(data[info.header_offset + 28 : info.header_offset + 30], "little")
     at = info.header_offset + 30 + name_len + extra_len + info.file_size - 1  # last payload byte (stored)
     data[at] ^= 0xFF
     p.write_bytes(bytes(data))
@@ -272,8 +277,11 @@ def test_records_file_with_bad_crc_is_data_error(tmp_path):
         PhotonRecords.load(p)
 
 
-@pytest.mark.xfail(strict=True, reason="open: PhotonRecords.load checks no ceiling before np.load allocates the "
-                   "declared arrays (matgen/transport/records.py)")
+@pytest.mark.xfail(
+    strict=True,
+    reason="open: PhotonRecords.load checks no ceiling before np.load allocates the "
+    "declared arrays (matgen/transport/records.py)",
+)
 def test_records_file_declaring_huge_arrays_is_refused_before_allocation(tmp_path):
     """A records .npz whose 'weight.npy' declares shape (10**11,) with 16 bytes of data raised MemoryError."""
     import zipfile
@@ -294,8 +302,11 @@ def test_records_file_declaring_huge_arrays_is_refused_before_allocation(tmp_pat
         PhotonRecords.load(p)
 
 
-@pytest.mark.xfail(strict=True, reason="open: PhotonRecords.save writes the destination in place (not through "
-                   "matgen.fsutil.atomic_path), so a failure or kill mid-write leaves a partial file")
+@pytest.mark.xfail(
+    strict=True,
+    reason="open: PhotonRecords.save writes the destination in place (not through "
+    "matgen.fsutil.atomic_path), so a failure or kill mid-write leaves a partial file",
+)
 def test_records_save_failing_midway_leaves_no_partial_file(tmp_path, monkeypatch):
     """np.savez failing after writing some bytes (a full disk, a kill) must not leave a partial rec.npz."""
     import numpy as np
@@ -311,7 +322,7 @@ def test_records_save_failing_midway_leaves_no_partial_file(tmp_path, monkeypatc
         raise OSError(28, "No space left on device")
 
     monkeypatch.setattr(np, "savez", failing_savez)
-    with pytest.raises(Exception):
+    with pytest.raises(OSError):
         rec.save(tmp_path / "rec.npz")
     assert not (tmp_path / "rec.npz").exists()
 
@@ -325,7 +336,9 @@ def test_table_member_with_huge_negative_dimension_is_table_error(tmp_path):
 
     p = _saved_table(tmp_path)
     p.with_suffix(".json").unlink()
-    _rewrite_member(p, "q_albedo_multiple.npy", _npy_member(b"(-99999999999999999999999999998999999999991, 3)"))
+    _rewrite_member(
+        p, "q_albedo_multiple.npy", _npy_member(b"(-99999999999999999999999999998999999999991, 3)")
+    )
     with pytest.raises(TableError):
         Table.load(p)
 

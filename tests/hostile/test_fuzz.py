@@ -73,16 +73,26 @@ def _mutated(name, data):
 
 
 @pytest.mark.parametrize("name", FAST)
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow], derandomize=True,
-          database=None)
+@settings(
+    max_examples=40,
+    deadline=None,
+    suppress_health_check=[HealthCheck.too_slow],
+    derandomize=True,
+    database=None,
+)
 @given(data=st.data())
 def test_mutated_inputs_keep_the_contract(name, data):
     _mutated(name, data)
 
 
 @pytest.mark.parametrize("name", SLOW)
-@settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow], derandomize=True,
-          database=None)
+@settings(
+    max_examples=20,
+    deadline=None,
+    suppress_health_check=[HealthCheck.too_slow],
+    derandomize=True,
+    database=None,
+)
 @given(data=st.data())
 def test_mutated_inputs_keep_the_contract_slow(name, data):
     _mutated(name, data)

@@ -67,7 +67,7 @@ def _patch_png_size(data: bytes, width: int, height: int) -> bytes:
     buf = bytearray(data)
     at = buf.index(b"IHDR")
     struct.pack_into(">II", buf, at + 4, width, height)
-    struct.pack_into(">I", buf, at + 17, zlib.crc32(bytes(buf[at:at + 17])) & 0xFFFFFFFF)
+    struct.pack_into(">I", buf, at + 17, zlib.crc32(bytes(buf[at : at + 17])) & 0xFFFFFFFF)
     return bytes(buf)
 
 

@@ -69,8 +69,14 @@ def test_unknown_limit_name_lists_known_ones():
 
 @pytest.mark.parametrize(
     "w,h,c,field",
-    [(0, 10, 3, "width"), (10, -1, 3, "height"), (10, 10, 0, "channel"), (1.5, 10, 1, "width"), ("x", 1, 1, "width"),
-     (True, 1, 1, "width")],
+    [
+        (0, 10, 3, "width"),
+        (10, -1, 3, "height"),
+        (10, 10, 0, "channel"),
+        (1.5, 10, 1, "width"),
+        ("x", 1, 1, "width"),
+        (True, 1, 1, "width"),
+    ],
 )
 def test_zero_negative_or_non_integer_dims_are_image_errors(w, h, c, field):
     with pytest.raises(ImageError, match=field):
@@ -134,12 +140,18 @@ def test_file_size_and_text_reading(tmp_path):
 
 
 @settings(max_examples=150, deadline=None)
-@given(w=st.integers(-2**70, 2**70), h=st.integers(-2**70, 2**70), c=st.integers(-10, 2**40))
+@given(w=st.integers(-(2**70), 2**70), h=st.integers(-(2**70), 2**70), c=st.integers(-10, 2**40))
 def test_check_image_dims_accepts_exactly_the_dims_within_every_ceiling(w, h, c):
     """Property: the check passes iff every dimension is positive and every ceiling holds; else MatgenError."""
-    ok = (w >= 1 and h >= 1 and c >= 1 and max(w, h) <= limits.get_limit("image_side")
-          and w * h <= limits.get_limit("image_pixels") and c <= limits.get_limit("image_channels")
-          and w * h * c * 4 <= limits.get_limit("image_bytes"))
+    ok = (
+        w >= 1
+        and h >= 1
+        and c >= 1
+        and max(w, h) <= limits.get_limit("image_side")
+        and w * h <= limits.get_limit("image_pixels")
+        and c <= limits.get_limit("image_channels")
+        and w * h * c * 4 <= limits.get_limit("image_bytes")
+    )
     if ok:
         assert limits.check_image_dims(w, h, c) == w * h
     else:

@@ -69,8 +69,15 @@ def bake_tile(cfg: str, out: str, tile: int) -> dict:
     t0 = time.perf_counter()
     res = bake(load_config(cfg), out, jobs=1, tile=tile)
     _BAKED_HERE[0] += 1
-    return {"tile": tile, "pid": os.getpid(), "sequence": _BAKED_HERE[0], "seconds": time.perf_counter() - t0, "texels": int(res.texels),
-            "rss_mb": _rss_mb(), "maxrss_mb": _maxrss_mb()}
+    return {
+        "tile": tile,
+        "pid": os.getpid(),
+        "sequence": _BAKED_HERE[0],
+        "seconds": time.perf_counter() - t0,
+        "texels": int(res.texels),
+        "rss_mb": _rss_mb(),
+        "maxrss_mb": _maxrss_mb(),
+    }
 
 
 def _slope(xs, ys) -> float:
@@ -79,7 +86,7 @@ def _slope(xs, ys) -> float:
         return 0.0
     mx, my = sum(xs) / n, sum(ys) / n
     den = sum((x - mx) ** 2 for x in xs)
-    return sum((x - mx) * (y - my) for x, y in zip(xs, ys)) / den if den else 0.0
+    return sum((x - mx) * (y - my) for x, y in zip(xs, ys, strict=True)) / den if den else 0.0
 
 
 def run(tiles: int, size: int, workers: int, workdir: Path) -> dict:
@@ -91,8 +98,9 @@ def run(tiles: int, size: int, workers: int, workdir: Path) -> dict:
     ctx = mp.get_context("spawn")
     rows = []
     t0 = time.perf_counter()
-    with cf.ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_init,
-                                initargs=(1,)) as pool:
+    with cf.ProcessPoolExecutor(
+        max_workers=workers, mp_context=ctx, initializer=_worker_init, initargs=(1,)
+    ) as pool:
         futures = [pool.submit(bake_tile, str(cfg), str(out), t) for t in udim_tiles(tiles)]
         for fut in cf.as_completed(futures):
             rows.append(fut.result())
@@ -102,17 +110,21 @@ def run(tiles: int, size: int, workers: int, workdir: Path) -> dict:
         by_worker.setdefault(r["pid"], []).append(r)
     workers_report = []
     for pid, rs in by_worker.items():
-        half = rs[len(rs) // 2:]
-        workers_report.append({
-            "pid": pid,
-            "tiles": len(rs),
-            "rss_first_mb": rs[0]["rss_mb"],
-            "rss_last_mb": rs[-1]["rss_mb"],
-            "maxrss_last_mb": rs[-1]["maxrss_mb"],
-            "rss_slope_second_half_mb_per_tile": _slope(list(range(len(half))), [r["rss_mb"] for r in half]),
-            "seconds_first_tile": rs[0]["seconds"],
-            "seconds_median_tile": sorted(r["seconds"] for r in rs)[len(rs) // 2],
-        })
+        half = rs[len(rs) // 2 :]
+        workers_report.append(
+            {
+                "pid": pid,
+                "tiles": len(rs),
+                "rss_first_mb": rs[0]["rss_mb"],
+                "rss_last_mb": rs[-1]["rss_mb"],
+                "maxrss_last_mb": rs[-1]["maxrss_mb"],
+                "rss_slope_second_half_mb_per_tile": _slope(
+                    list(range(len(half))), [r["rss_mb"] for r in half]
+                ),
+                "seconds_first_tile": rs[0]["seconds"],
+                "seconds_median_tile": sorted(r["seconds"] for r in rs)[len(rs) // 2],
+            }
+        )
     texels = sum(r["texels"] for r in rows)
     steady = [r["seconds"] for ws in by_worker.values() for r in ws[1:]]
 
@@ -141,27 +153,41 @@ def run(tiles: int, size: int, workers: int, workdir: Path) -> dict:
         "leak_slope_limit_mb_per_tile": LEAK_SLOPE_MB_PER_TILE,
         "worst_rss_slope_mb_per_tile": worst,
         "memory_flat": worst < LEAK_SLOPE_MB_PER_TILE,
-        "whole_set_one_call": {"seconds": whole_s, "texels_per_s": whole.texels / whole_s,
-                               "rss_growth_mb": rss_after - rss_before, "threads": workers},
+        "whole_set_one_call": {
+            "seconds": whole_s,
+            "texels_per_s": whole.texels / whole_s,
+            "rss_growth_mb": rss_after - rss_before,
+            "threads": workers,
+        },
     }
 
 
 def print_report(rep: dict) -> None:
     """Human-readable summary."""
-    print(f"soak: {rep['tiles']} UDIM tiles of {rep['tile_size'][0]} x {rep['tile_size'][1]}, "
-          f"{rep['workers']} worker processes")
-    print(f"  wall {rep['wall_s']:.1f} s, {rep['tiles_per_s']:.2f} tiles/s, {rep['texels_per_s'] / 1e3:.0f} k texels/s; "
-          f"median steady tile {rep['steady_seconds_per_tile_median']:.3f} s")
+    print(
+        f"soak: {rep['tiles']} UDIM tiles of {rep['tile_size'][0]} x {rep['tile_size'][1]}, "
+        f"{rep['workers']} worker processes"
+    )
+    print(
+        f"  wall {rep['wall_s']:.1f} s, {rep['tiles_per_s']:.2f} tiles/s, {rep['texels_per_s'] / 1e3:.0f} k texels/s; "
+        f"median steady tile {rep['steady_seconds_per_tile_median']:.3f} s"
+    )
     for w in rep["per_worker"]:
-        print(f"  worker {w['pid']}: {w['tiles']} tiles, RSS {w['rss_first_mb']:.0f} -> {w['rss_last_mb']:.0f} MB, "
-              f"peak {w['maxrss_last_mb']:.0f} MB, slope (2nd half) {w['rss_slope_second_half_mb_per_tile']:+.3f} "
-              f"MB/tile; first tile {w['seconds_first_tile']:.2f} s, median {w['seconds_median_tile']:.3f} s")
+        print(
+            f"  worker {w['pid']}: {w['tiles']} tiles, RSS {w['rss_first_mb']:.0f} -> {w['rss_last_mb']:.0f} MB, "
+            f"peak {w['maxrss_last_mb']:.0f} MB, slope (2nd half) {w['rss_slope_second_half_mb_per_tile']:+.3f} "
+            f"MB/tile; first tile {w['seconds_first_tile']:.2f} s, median {w['seconds_median_tile']:.3f} s"
+        )
     verdict = "flat" if rep["memory_flat"] else "GROWING"
-    print(f"  memory per tile: {verdict} (worst slope {rep['worst_rss_slope_mb_per_tile']:+.3f} MB/tile, "
-          f"limit {rep['leak_slope_limit_mb_per_tile']} MB/tile)")
+    print(
+        f"  memory per tile: {verdict} (worst slope {rep['worst_rss_slope_mb_per_tile']:+.3f} MB/tile, "
+        f"limit {rep['leak_slope_limit_mb_per_tile']} MB/tile)"
+    )
     w = rep["whole_set_one_call"]
-    print(f"  whole set in one call ({w['threads']} lookup threads): {w['seconds']:.2f} s, "
-          f"{w['texels_per_s'] / 1e3:.0f} k texels/s, RSS growth {w['rss_growth_mb']:+.1f} MB")
+    print(
+        f"  whole set in one call ({w['threads']} lookup threads): {w['seconds']:.2f} s, "
+        f"{w['texels_per_s'] / 1e3:.0f} k texels/s, RSS growth {w['rss_growth_mb']:+.1f} MB"
+    )
 
 
 def main(argv=None) -> int:
