@@ -76,6 +76,9 @@ TRACER_PATHS = {"quick": 65_536, "full": 131_072}
 LAYERED_TRACER_PATHS = {"quick": 32_768, "full": 65_536}
 COLLAPSE_TRACER_PATHS = {"quick": 8_192, "full": 32_768}
 MATGEN_PHOTONS = {"quick": 60_000, "full": 200_000}
+#: Deep slabs (full runs only) hold paths of hundreds of mean free paths: fewer of them, at 3 bands.
+DEEP_TRACER_PATHS = 32_768
+DEEP_MATGEN_PHOTONS = 60_000
 
 #: Media of the harness check against adding-doubling: (albedo, g, n, optical thickness, band centre nm).
 #: The band only selects the wavelengths the tracer samples (the media are grey); spreading the cases over
@@ -356,6 +359,8 @@ def homogeneous_comparison(
     seed: int = 0,
     bands_nm=None,
     deep: bool = False,
+    paths: int | None = None,
+    photons: int | None = None,
 ) -> Comparison:
     """Matgen's transport against the path tracer for slabs of the exported medium, band by band.
 
@@ -393,12 +398,12 @@ def homogeneous_comparison(
             a, st, g = float(medium.albedo[b]), float(medium.sigma_t_per_mm[b]), float(medium.g[b])
             depth_mfp = deep_depth_mfp(a, g) if deep else SLAB_DEPTH_MFP
             stack = _slab_stack(a, st, g, n, depth_mfp / st)
-            total, _diffuse, trans = matgen_reflectance(stack, MATGEN_PHOTONS[mode], seed=seed + k)
+            total, _diffuse, trans = matgen_reflectance(stack, photons or MATGEN_PHOTONS[mode], seed=seed + k)
             est = tracer.render_stack_reflectance(
                 stack,
                 medium.bands.lower_nm[b],
                 medium.bands.upper_nm[b],
-                paths=TRACER_PATHS[mode],
+                paths=paths or TRACER_PATHS[mode],
                 seed=seed + k,
             )
             comp.rows.append(
@@ -637,8 +642,10 @@ def run_validation(
                             n_values=(None,),
                             quick=quick,
                             seed=seed + 3000,
-                            bands_nm=medium.bands.centre_nm[::2],
+                            bands_nm=medium.bands.centre_nm[::4],
                             deep=True,
+                            paths=DEEP_TRACER_PATHS,
+                            photons=DEEP_MATGEN_PHOTONS,
                         )
                     )
             elif name == "layered":
