@@ -62,6 +62,7 @@ def main(argv):
             if known_open(exc) is None:
                 raise
 
+    target.warm_up()  # kernels compile (or load from numba's cache) before libFuzzer takes over the process
     atheris.Setup([argv[0], *flags, str(corpus)], one_input)
     atheris.Fuzz()
     return 0
