@@ -115,7 +115,9 @@ class TransportResult:
                 "reflectance_per_sr": np.asarray(self.exit_angle_per_sr).tolist(),
                 "stderr_per_sr": np.asarray(self.exit_angle_stderr_per_sr).tolist(),
             }
-        out.update({k: v for k, v in self.extra.items() if k not in out})
+        # extra values join the JSON form; arrays (e.g. the fixed-point tally vector) become lists
+        out.update({k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in self.extra.items()
+                    if k not in out})
         return out
 
     @classmethod
