@@ -19,12 +19,12 @@ EXIT_BUSY = 75
 
 
 def register(sub):
+    """Add ``matgen table`` and its subcommands to the top-level subparsers."""
     p = add_command(
         sub,
         "table",
         "Build, plan, run, merge, inspect and plot lookup tables",
-        "matgen table build lut/specs/default.toml --out lut/default.npz\n"
-        "matgen table info lut/default.npz",
+        "matgen table build lut/specs/default.toml --out lut/default.npz\nmatgen table info lut/default.npz",
         description=(
             "Lookup tables over pigmentation axes x bands, built from a TOML spec by Monte Carlo transport "
             "with absorption reweighting. Subcommands: build (plan + run + merge in one go, resumable), "
@@ -33,65 +33,111 @@ def register(sub):
     )
     tsub = p.add_subparsers(dest="table_command", metavar="SUBCOMMAND")
 
-    b = add_command(tsub, "build", "Build a table from a spec (resumes from its job folder)",
-                    "matgen table build lut/specs/default.toml --out lut/default.npz --workers 2")
+    b = add_command(
+        tsub,
+        "build",
+        "Build a table from a spec (resumes from its job folder)",
+        "matgen table build lut/specs/default.toml --out lut/default.npz --workers 2",
+    )
     b.add_argument("spec", help="table spec (TOML)")
     b.add_argument("--out", required=True, help="table file to write (.npz; manifest beside it as .json)")
     b.add_argument("--jobdir", help="job folder (default: OUT with .job instead of .npz); kept for resuming")
     b.add_argument("--workers", type=int, help="processes of the local pool (default: available CPUs)")
     b.add_argument("--serial", action="store_true", help="run tasks one by one in this process")
-    b.add_argument("--scheduler", metavar="ADDRESS", help="submit to a running Dask scheduler (tcp://host:8786)")
-    b.add_argument("--dask-workers", type=int, metavar="N", help="start a Dask LocalCluster of N workers on 127.0.0.1")
+    b.add_argument(
+        "--scheduler", metavar="ADDRESS", help="submit to a running Dask scheduler (tcp://host:8786)"
+    )
+    b.add_argument(
+        "--dask-workers", type=int, metavar="N", help="start a Dask LocalCluster of N workers on 127.0.0.1"
+    )
     b.add_argument("--connect-timeout", type=float, default=10.0, help="seconds to reach --scheduler")
     b.add_argument("--no-progress", action="store_true", help="no progress bar")
     b.set_defaults(func=_build)
 
-    pl = add_command(tsub, "plan", "Plan a spec into a job folder of independent tasks (for a farm job array)",
-                     "matgen table plan lut/specs/default.toml jobs/default")
+    pl = add_command(
+        tsub,
+        "plan",
+        "Plan a spec into a job folder of independent tasks (for a farm job array)",
+        "matgen table plan lut/specs/default.toml jobs/default",
+    )
     pl.add_argument("spec", help="table spec (TOML)")
     pl.add_argument("jobdir", help="job folder to create (reused if it holds the same plan)")
     pl.add_argument("--json", action="store_true", help="print the task list as JSON")
     pl.set_defaults(func=_plan)
 
-    r = add_command(tsub, "run-task", "Run one task of a job folder (idempotent; safe to retry or run twice)",
-                    "matgen table run-task jobs/default $SLURM_ARRAY_TASK_ID")
+    r = add_command(
+        tsub,
+        "run-task",
+        "Run one task of a job folder (idempotent; safe to retry or run twice)",
+        "matgen table run-task jobs/default $SLURM_ARRAY_TASK_ID",
+    )
     r.add_argument("jobdir", help="job folder written by 'matgen table plan'")
     r.add_argument("index", type=int, help="0-based task index")
-    r.add_argument("--threads", type=int, help="kernel threads (default: all CPUs; results do not depend on it)")
-    r.add_argument("--no-wait", action="store_true",
-                   help=f"exit {EXIT_BUSY} at once if another live process runs this task (default: wait for it)")
+    r.add_argument(
+        "--threads", type=int, help="kernel threads (default: all CPUs; results do not depend on it)"
+    )
+    r.add_argument(
+        "--no-wait",
+        action="store_true",
+        help=f"exit {EXIT_BUSY} at once if another live process runs this task (default: wait for it)",
+    )
     r.set_defaults(func=_run_task)
 
-    m = add_command(tsub, "merge", "Merge a complete job folder into a table (lists missing tasks otherwise)",
-                    "matgen table merge jobs/default --out lut/default.npz")
+    m = add_command(
+        tsub,
+        "merge",
+        "Merge a complete job folder into a table (lists missing tasks otherwise)",
+        "matgen table merge jobs/default --out lut/default.npz",
+    )
     m.add_argument("jobdir", help="job folder")
     m.add_argument("--out", required=True, help="table file to write (.npz)")
     m.set_defaults(func=_merge)
 
-    s = add_command(tsub, "status", "Show which tasks of a job folder are done, missing or corrupt",
-                    "matgen table status jobs/default")
+    s = add_command(
+        tsub,
+        "status",
+        "Show which tasks of a job folder are done, missing or corrupt",
+        "matgen table status jobs/default",
+    )
     s.add_argument("jobdir", help="job folder")
     s.add_argument("--json", action="store_true", help="print JSON")
     s.set_defaults(func=_status)
 
-    i = add_command(tsub, "info", "Summarise a table and its QA (worst statistical error and fit residual)",
-                    "matgen table info lut/default.npz --max-rel-stderr 0.01")
+    i = add_command(
+        tsub,
+        "info",
+        "Summarise a table and its QA (worst statistical error and fit residual)",
+        "matgen table info lut/default.npz --max-rel-stderr 0.01",
+    )
     i.add_argument("file", nargs="?", help="table file (.npz; default: the shipped default table)")
     i.add_argument("--json", action="store_true", help="print JSON")
-    i.add_argument("--max-rel-stderr", type=float, metavar="X",
-                   help="exit 1 unless the relative stderr of A is <= X at every grid point and band")
+    i.add_argument(
+        "--max-rel-stderr",
+        type=float,
+        metavar="X",
+        help="exit 1 unless the relative stderr of A is <= X at every grid point and band",
+    )
     i.set_defaults(func=_info)
 
-    pt = add_command(tsub, "plot", "Plot table slices along one axis, one line per value of another",
-                     "matgen table plot lut/default.npz --out slices.png --quantity rgb_albedo_multiple")
+    pt = add_command(
+        tsub,
+        "plot",
+        "Plot table slices along one axis, one line per value of another",
+        "matgen table plot lut/default.npz --out slices.png --quantity rgb_albedo_multiple",
+    )
     pt.add_argument("file", nargs="?", help="table file (.npz; default: the shipped default table)")
     pt.add_argument("--out", required=True, help="image file (png, pdf, svg)")
     pt.add_argument("--quantity", default="rgb_albedo_multiple", help="table quantity")
     pt.add_argument("--x", dest="x_axis", help="axis along x (default: the first)")
     pt.add_argument("--lines", dest="line_axis", help="axis of the lines (default: the second)")
     pt.add_argument("--band-nm", type=float, help="band of a spectral quantity (default: nearest 550 nm)")
-    pt.add_argument("--at", action="append", default=[], metavar="AXIS=VALUE",
-                    help="value of another axis (repeatable; default: middle grid value)")
+    pt.add_argument(
+        "--at",
+        action="append",
+        default=[],
+        metavar="AXIS=VALUE",
+        help="value of another axis (repeatable; default: middle grid value)",
+    )
     pt.set_defaults(func=_plot)
 
     p.set_defaults(func=_no_sub)
@@ -105,13 +151,23 @@ def _build(args):
     from matgen.tables.build import build_table
 
     executor = "serial" if args.serial else "local"
-    table = build_table(args.spec, args.out, jobdir=args.jobdir, executor=executor, workers=args.workers,
-                        scheduler=args.scheduler, dask_workers=args.dask_workers,
-                        connect_timeout_s=args.connect_timeout, progress=not args.no_progress)
+    table = build_table(
+        args.spec,
+        args.out,
+        jobdir=args.jobdir,
+        executor=executor,
+        workers=args.workers,
+        scheduler=args.scheduler,
+        dask_workers=args.dask_workers,
+        connect_timeout_s=args.connect_timeout,
+        progress=not args.no_progress,
+    )
     bs = table.build_stats
-    print(f"wrote {args.out}: {table.n_points} grid points x {len(table.bands)} bands; "
-          f"{bs.get('computed', 0)} task(s) computed, {bs.get('skipped', 0)} reused; "
-          f"{bs.get('build_wall_s', 0.0):.1f} s")
+    print(
+        f"wrote {args.out}: {table.n_points} grid points x {len(table.bands)} bands; "
+        f"{bs.get('computed', 0)} task(s) computed, {bs.get('skipped', 0)} reused; "
+        f"{bs.get('build_wall_s', 0.0):.1f} s"
+    )
     return 0
 
 
@@ -124,8 +180,10 @@ def _plan(args):
         print(json.dumps({"jobdir": str(job.path), "tasks": [t.to_dict() for t in plan.tasks]}, indent=1))
     else:
         n = len(plan.tasks)
-        print(f"planned {n} task(s) in {job.path} ({len(plan.spec.bands)} bands; scattering axes "
-              f"{plan.scattering_axes or 'none'}; reweighted axes {plan.pigment_axes})")
+        print(
+            f"planned {n} task(s) in {job.path} ({len(plan.spec.bands)} bands; scattering axes "
+            f"{plan.scattering_axes or 'none'}; reweighted axes {plan.pigment_axes})"
+        )
         print(f"run each with: matgen table run-task {job.path} INDEX   (INDEX = 0..{n - 1})")
         print(f"then: matgen table merge {job.path} --out TABLE.npz")
     return 0
@@ -153,7 +211,10 @@ def _merge(args):
 
     job = JobFolder.open(args.jobdir)
     table = merge_job(job, args.out)
-    print(f"wrote {args.out}: {table.n_points} grid points x {len(table.bands)} bands from {len(job.plan.tasks)} tasks")
+    print(
+        f"wrote {args.out}: {table.n_points} grid points x {len(table.bands)} bands "
+        f"from {len(job.plan.tasks)} tasks"
+    )
     return 0
 
 
@@ -167,8 +228,10 @@ def _status(args):
     if args.json:
         print(json.dumps({"counts": counts, "tasks": [s.__dict__ for s in states]}, indent=1))
     else:
-        print(f"{job.path}: {counts['done']} done, {counts['missing']} missing, {counts['corrupt']} corrupt "
-              f"of {len(states)}")
+        print(
+            f"{job.path}: {counts['done']} done, {counts['missing']} missing, {counts['corrupt']} corrupt "
+            f"of {len(states)}"
+        )
         for s in states:
             if s.state != "done":
                 print(f"  task {s.index}: {s.state} ({s.reason})")
@@ -213,7 +276,14 @@ def _plot(args):
         except ValueError:
             raise ParameterError(f"--at {item!r}: value is not a number") from None
     table, _ = _load(args.file)
-    plot_slices(table, args.out, quantity=args.quantity, x_axis=args.x_axis, line_axis=args.line_axis,
-                band_nm=args.band_nm, at=at)
+    plot_slices(
+        table,
+        args.out,
+        quantity=args.quantity,
+        x_axis=args.x_axis,
+        line_axis=args.line_axis,
+        band_nm=args.band_nm,
+        at=at,
+    )
     print(f"wrote {args.out}")
     return 0

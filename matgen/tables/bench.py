@@ -1,4 +1,4 @@
-"""Benchmark lookup tables: build time, speed-up of reweighting over separate transport runs, lookups per second.
+"""Benchmark lookup tables: build time, reweighting speed-up over separate transport runs, lookups per second.
 
 Three measurements, each side by side in one run:
 
@@ -32,7 +32,9 @@ def add_arguments(parser) -> None:
     parser.add_argument("--table", help="table for the lookup benchmark (default: the shipped default table)")
     parser.add_argument("--skip-build", action="store_true", help="skip the from-scratch build")
     parser.add_argument("--workers", type=int, help="processes of the build (default: available CPUs)")
-    parser.add_argument("--photons", type=int, default=50000, help="photons per point in the speed-up comparison")
+    parser.add_argument(
+        "--photons", type=int, default=50000, help="photons per point in the speed-up comparison"
+    )
     parser.add_argument("--subset", type=int, default=6, help="grid points run separately in the comparison")
     parser.add_argument("--band-nm", type=float, default=550.0, help="band of the speed-up comparison (nm)")
     parser.add_argument("--lookups", type=int, default=10_000_000, help="random lookups of RGB quantities")
@@ -55,9 +57,14 @@ def bench_build(spec_path, workers=None) -> dict:
         wall = time.perf_counter() - t0
         size = (Path(tmp) / "bench.npz").stat().st_size
     qa = table_qa(table)
-    return {"build_wall_s": wall, "cpus": cpu_count(), "grid_points": table.n_points, "bands": len(table.bands),
-            "table_bytes": size,
-            "worst_relative_stderr_albedo_multiple": qa["worst_relative_stderr_albedo_multiple"]["value"]}
+    return {
+        "build_wall_s": wall,
+        "cpus": cpu_count(),
+        "grid_points": table.n_points,
+        "bands": len(table.bands),
+        "table_bytes": size,
+        "worst_relative_stderr_albedo_multiple": qa["worst_relative_stderr_albedo_multiple"]["value"],
+    }
 
 
 def bench_reweighting(spec_path, photons: int, subset: int, band_nm: float) -> dict:
@@ -105,9 +112,13 @@ def bench_reweighting(spec_path, photons: int, subset: int, band_nm: float) -> d
     k_total = len(params)
     separate = direct_per_point * k_total
     return {
-        "band_nm": float(spec.bands.centre_nm[b]), "photons_per_point": photons, "grid_points": k_total,
-        "separate_runs_s_per_point": direct_per_point, "separate_runs_s_all_points": separate,
-        "reference_run_s": t_ref, "factored_reweight_s": t_fact,
+        "band_nm": float(spec.bands.centre_nm[b]),
+        "photons_per_point": photons,
+        "grid_points": k_total,
+        "separate_runs_s_per_point": direct_per_point,
+        "separate_runs_s_all_points": separate,
+        "reference_run_s": t_ref,
+        "factored_reweight_s": t_fact,
         "plain_reweight_s_all_points_extrapolated": t_plain,
         "speedup_factored": separate / (t_ref + t_fact),
         "speedup_plain_reweight": separate / (t_ref + t_plain),
@@ -125,7 +136,11 @@ def bench_lookups(table_path, n_rgb: int) -> dict:
         cols = []
         for a in table.axes:
             lo, hi = a.values[0], a.values[-1]
-            cols.append(np.exp(rng.uniform(np.log(lo), np.log(hi), n)) if a.spacing == "log" else rng.uniform(lo, hi, n))
+            cols.append(
+                np.exp(rng.uniform(np.log(lo), np.log(hi), n))
+                if a.spacing == "log"
+                else rng.uniform(lo, hi, n)
+            )
         return np.stack(cols, axis=1)
 
     rgb = [n for n in RGB_QUANTITIES if n in table.quantities]
@@ -140,8 +155,14 @@ def bench_lookups(table_path, n_rgb: int) -> dict:
     t0 = time.perf_counter()
     table.lookup(p, ["albedo_multiple"])
     t_sp = time.perf_counter() - t0
-    return {"rgb_points": n_rgb, "rgb_channels": 3 * len(rgb), "rgb_lookups_per_s": n_rgb / t_rgb,
-            "spectral_points": n_sp, "spectral_channels": len(table.bands), "spectral_lookups_per_s": n_sp / t_sp}
+    return {
+        "rgb_points": n_rgb,
+        "rgb_channels": 3 * len(rgb),
+        "rgb_lookups_per_s": n_rgb / t_rgb,
+        "spectral_points": n_sp,
+        "spectral_channels": len(table.bands),
+        "spectral_lookups_per_s": n_sp / t_sp,
+    }
 
 
 def run(args) -> int:
@@ -151,22 +172,38 @@ def run(args) -> int:
     if not args.skip_build:
         out["build"] = bench_build(spec, args.workers)
         b = out["build"]
-        print(f"build {spec.name}: {b['build_wall_s']:.1f} s on {b['cpus']} CPUs; {b['grid_points']} points x "
-              f"{b['bands']} bands; worst relative stderr of A {100 * b['worst_relative_stderr_albedo_multiple']:.2f} %")
+        print(
+            f"build {spec.name}: {b['build_wall_s']:.1f} s on {b['cpus']} CPUs; {b['grid_points']} points x "
+            f"{b['bands']} bands; worst relative stderr of A "
+            f"{100 * b['worst_relative_stderr_albedo_multiple']:.2f} %"
+        )
     r = bench_reweighting(spec, args.photons, args.subset, args.band_nm)
     out["reweighting"] = r
-    print(f"reweighting at {r['band_nm']:g} nm, {r['photons_per_point']} photons per point, {r['grid_points']} points:")
-    print(f"  separate transport runs: {r['separate_runs_s_per_point']:.3f} s per point (measured on "
-          f"{args.subset}), {r['separate_runs_s_all_points']:.1f} s for all")
-    print(f"  one reference run {r['reference_run_s']:.2f} s + factored reweighting {r['factored_reweight_s']:.2f} s:"
-          f" speed-up {r['speedup_factored']:.0f}x")
-    print(f"  (unfactored transport reweight, extrapolated: {r['plain_reweight_s_all_points_extrapolated']:.1f} s,"
-          f" speed-up {r['speedup_plain_reweight']:.0f}x)")
+    print(
+        f"reweighting at {r['band_nm']:g} nm, {r['photons_per_point']} photons per point, "
+        f"{r['grid_points']} points:"
+    )
+    print(
+        f"  separate transport runs: {r['separate_runs_s_per_point']:.3f} s per point (measured on "
+        f"{args.subset}), {r['separate_runs_s_all_points']:.1f} s for all"
+    )
+    print(
+        f"  one reference run {r['reference_run_s']:.2f} s + factored reweighting "
+        f"{r['factored_reweight_s']:.2f} s:"
+        f" speed-up {r['speedup_factored']:.0f}x"
+    )
+    print(
+        f"  (unfactored transport reweight, extrapolated: "
+        f"{r['plain_reweight_s_all_points_extrapolated']:.1f} s,"
+        f" speed-up {r['speedup_plain_reweight']:.0f}x)"
+    )
     lk = bench_lookups(args.table, args.lookups)
     out["lookups"] = lk
-    print(f"lookups: {lk['rgb_lookups_per_s']:.3g} points/s ({lk['rgb_points']} points, {lk['rgb_channels']} "
-          f"RGB channels); {lk['spectral_lookups_per_s']:.3g} points/s ({lk['spectral_points']} points, "
-          f"{lk['spectral_channels']} bands)")
+    print(
+        f"lookups: {lk['rgb_lookups_per_s']:.3g} points/s ({lk['rgb_points']} points, {lk['rgb_channels']} "
+        f"RGB channels); {lk['spectral_lookups_per_s']:.3g} points/s ({lk['spectral_points']} points, "
+        f"{lk['spectral_channels']} bands)"
+    )
     if args.json_out:
         Path(args.json_out).write_text(json.dumps(out, indent=1) + "\n")
     return 0

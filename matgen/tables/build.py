@@ -25,7 +25,7 @@ def default_jobdir(out) -> Path:
 
 
 def plan_job(spec_or_path, jobdir) -> JobFolder:
-    """Plan a spec (a :class:`TableSpec` or a spec file) into a job folder (reused if it holds the same plan)."""
+    """Plan a spec (a :class:`TableSpec` or a spec file) into a job folder (reused if it holds this plan)."""
     if isinstance(spec_or_path, TableSpec):
         spec, text = spec_or_path, None
     else:
@@ -61,9 +61,18 @@ def _task_wall_sum(job: JobFolder) -> float:
     return total
 
 
-def build_table(spec_or_path, out, *, jobdir=None, executor: str = "local", workers: int | None = None,
-                scheduler: str | None = None, dask_workers: int | None = None, connect_timeout_s: float = 10.0,
-                progress: bool = True) -> Table:
+def build_table(
+    spec_or_path,
+    out,
+    *,
+    jobdir=None,
+    executor: str = "local",
+    workers: int | None = None,
+    scheduler: str | None = None,
+    dask_workers: int | None = None,
+    connect_timeout_s: float = 10.0,
+    progress: bool = True,
+) -> Table:
     """Build a table from a spec and write it to ``out``.
 
     Parameters
@@ -80,6 +89,7 @@ def build_table(spec_or_path, out, *, jobdir=None, executor: str = "local", work
     Returns
     -------
     Table
+
     """
     out = Path(out)
     if out.suffix != ".npz":
@@ -89,8 +99,15 @@ def build_table(spec_or_path, out, *, jobdir=None, executor: str = "local", work
     t0 = time.perf_counter()
     job = plan_job(spec_or_path, jobdir or default_jobdir(out))
     plan_s = time.perf_counter() - t0
-    stats = run_job(job, executor, workers=workers, scheduler=scheduler, dask_workers=dask_workers,
-                    connect_timeout_s=connect_timeout_s, progress=progress)
+    stats = run_job(
+        job,
+        executor,
+        workers=workers,
+        scheduler=scheduler,
+        dask_workers=dask_workers,
+        connect_timeout_s=connect_timeout_s,
+        progress=progress,
+    )
     stats["plan_wall_s"] = plan_s
     table = merge_job(job, out, stats)
     table.build_stats["build_wall_s"] = time.perf_counter() - t0

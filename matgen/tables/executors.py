@@ -1,6 +1,7 @@
-"""Executors of a table job: serial, local process pool, Dask. All write the same job folder, so all give
-bit-identical tables for the same spec and seed (each task is a pure function of the plan and the task, and
-the transport's tallies do not depend on thread count).
+"""Executors of a table job: serial, local process pool, Dask.
+
+All write the same job folder, so all give bit-identical tables for the same spec and seed (each task is a
+pure function of the plan and the task, and the transport's tallies do not depend on thread count).
 
 * ``serial``: tasks one after another in this process (all cores go to each task's kernels).
 * ``local`` (default): a process pool over the available cores, with a progress bar and an ETA (tqdm); each
@@ -23,7 +24,7 @@ import time
 from pathlib import Path
 
 from matgen._optional import require
-from matgen.errors import MatgenError, ParameterError, TableError
+from matgen.errors import ParameterError, TableError
 from matgen.tables.plan import JobFolder
 from matgen.tables.tasks import job_states, run_task
 
@@ -62,24 +63,41 @@ def _worker_init(threads: int) -> None:
 def _progress(total: int, initial: int, enabled: bool, desc: str):
     from tqdm import tqdm
 
-    return tqdm(total=total, initial=initial, disable=not enabled, desc=desc, unit="task", smoothing=0.1,
-                bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} [{elapsed}<{remaining}, "
-                           "{rate_fmt}]")
+    return tqdm(
+        total=total,
+        initial=initial,
+        disable=not enabled,
+        desc=desc,
+        unit="task",
+        smoothing=0.1,
+        bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} [{elapsed}<{remaining}, "
+        "{rate_fmt}]",
+    )
 
 
 def pending_tasks(job: JobFolder) -> list:
-    """Indices of tasks that are not done (missing or corrupt)."""
+    """Return the indices of tasks that are not done (missing or corrupt)."""
     return [s.index for s in job_states(job) if s.state != "done"]
 
 
-def run_job(job: JobFolder, executor: str = "local", *, workers: int | None = None, scheduler: str | None = None,
-            dask_workers: int | None = None, connect_timeout_s: float = 10.0, progress: bool = True) -> dict:
+def run_job(
+    job: JobFolder,
+    executor: str = "local",
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    dask_workers: int | None = None,
+    connect_timeout_s: float = 10.0,
+    progress: bool = True,
+) -> dict:
     """Run every unfinished task of a job folder.
 
     Parameters
     ----------
     job : JobFolder
+        The job folder.
     executor : {"local", "serial", "dask"}
+        Where the tasks run.
     workers : int, optional
         Processes of the local pool (default: the CPUs available).
     scheduler : str, optional
@@ -95,6 +113,7 @@ def run_job(job: JobFolder, executor: str = "local", *, workers: int | None = No
     -------
     dict
         ``tasks``, ``skipped`` (already done), ``computed``, ``wall_s``, ``executor``, ``workers``.
+
     """
     if scheduler is not None or dask_workers is not None:
         executor = "dask"
@@ -116,9 +135,12 @@ def run_job(job: JobFolder, executor: str = "local", *, workers: int | None = No
         stats["workers"] = n
         threads = max(1, cpu_count() // n)
         ctx = mp.get_context("spawn")  # no fork of a process whose kernel threads already run
-        with cf.ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=_worker_init,
-                                    initargs=(threads,)) as pool, \
-                _progress(total, total - len(todo), progress, "table tasks") as bar:
+        with (
+            cf.ProcessPoolExecutor(
+                max_workers=n, mp_context=ctx, initializer=_worker_init, initargs=(threads,)
+            ) as pool,
+            _progress(total, total - len(todo), progress, "table tasks") as bar,
+        ):
             futures = [pool.submit(_run_one, str(job.path), i, threads) for i in todo]
             try:
                 for fut in cf.as_completed(futures):
@@ -154,21 +176,30 @@ def _run_dask(job, todo, scheduler, dask_workers, connect_timeout_s, progress, t
             n = int(dask_workers or 0)
             if n < 1:
                 raise ParameterError(f"dask_workers is {dask_workers!r}; give a whole number >= 1")
-            cluster = distributed.LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                                               host="127.0.0.1", dashboard_address=None)
+            cluster = distributed.LocalCluster(
+                n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
+            )
             client = distributed.Client(cluster)
         try:
             n_workers = max(1, len(client.scheduler_info().get("workers", {})))
             threads = max(1, cpu_count() // n_workers) if scheduler is None else None
-            futures = [client.submit(_run_one, str(Path(job.path).resolve()), i, threads, pure=False,
-                                     key=f"matgen-table-task-{job.plan.tasks[i].task_id[:16]}-{i}") for i in todo]
+            futures = [
+                client.submit(
+                    _run_one,
+                    str(Path(job.path).resolve()),
+                    i,
+                    threads,
+                    pure=False,
+                    key=f"matgen-table-task-{job.plan.tasks[i].task_id[:16]}-{i}",
+                )
+                for i in todo
+            ]
             computed = 0
             with _progress(total, total - len(todo), progress, "table tasks (dask)") as bar:
                 for fut in distributed.as_completed(futures):
-                    try:
-                        _, status, _ = fut.result()
-                    except MatgenError:
-                        raise
+                    _, status, _ = (
+                        fut.result()
+                    )  # a task's MatgenError is raised here, as the worker raised it
                     computed += status == "computed"
                     bar.update(1)
             return {"computed": computed, "workers": n_workers}

@@ -50,6 +50,7 @@ def segment_outer_sums(x_t, y, seg, out):
         Segment boundaries into the photon axis (photons sorted by segment).
     out : ndarray of float64, shape (S, K1, M)
         Accumulated in place.
+
     """
     n_seg = seg.size - 1
     k1 = x_t.shape[0]
@@ -95,6 +96,7 @@ def axis_groups(mu_a_grid: np.ndarray) -> tuple:
     (g1, g2, layers1) : tuple of lists
         Axis positions of group 1 and group 2, and the layers whose absorption varies with group 1 (all other
         layers vary with group 2 only, or not at all). ``g2`` is empty where no split exists.
+
     """
     m = mu_a_grid.ndim - 1
     n_layers = mu_a_grid.shape[-1]
@@ -158,6 +160,7 @@ def factored_reweight(records, mu_a_sets, grid_shape, ring_edges_mm, *, backend:
         ``radial_stderr_per_mm2`` (K, R) in mm^-2; ``reflected_path_mm`` (K, L), the weight-averaged path
         length of reflected light per layer in mm; ``groups`` (the axis split used).
         Source: ``Graaff1993condensed``, ``Alerstam2008white``.
+
     """
     kernel = segment_outer_sums if backend == "numba" else segment_outer_sums_python
     mu = np.asarray(mu_a_sets, dtype=np.float64)
@@ -169,7 +172,9 @@ def factored_reweight(records, mu_a_sets, grid_shape, ring_edges_mm, *, backend:
     dmu = mu - ref[None, :]
     if np.any(dmu < 0):
         k, j = np.argwhere(dmu < 0)[0]
-        raise TableError(f"absorption set {k} layer {j} lies below the reference absorption; weights would exceed 1")
+        raise TableError(
+            f"absorption set {k} layer {j} lies below the reference absorption; weights would exceed 1"
+        )
     grid = mu.reshape(shape + (n_layers,))
     g1, g2, layers1 = axis_groups(grid)
     layers2 = [j for j in range(n_layers) if j not in layers1]
@@ -224,7 +229,9 @@ def factored_reweight(records, mu_a_sets, grid_shape, ring_edges_mm, *, backend:
 
     s_w = to_grid(sums[:, :, :k2].reshape(n_seg, k1, k2))  # (S, K)
     s_w2 = to_grid(sums2)
-    s_path = np.stack([to_grid(sums[:, :, k2 * (1 + j): k2 * (2 + j)].sum(axis=0)) for j in range(n_layers)], -1)
+    s_path = np.stack(
+        [to_grid(sums[:, :, k2 * (1 + j) : k2 * (2 + j)].sum(axis=0)) for j in range(n_layers)], -1
+    )
     rd, rd_e = mean_and_stderr(s_w.sum(axis=0), s_w2.sum(axis=0), n)
     ring_mean, ring_e = mean_and_stderr(s_w[:n_rings].T, s_w2[:n_rings].T, n)
     area = ring_areas_mm2(rings)

@@ -1,7 +1,8 @@
 """Multilinear interpolation on a rectilinear grid, in transformed coordinates. Units: those of the axes.
 
-A table axis is interpolated in the coordinate it was sampled in: ``log(x)`` for a log-spaced axis, ``x`` for a
-linear one (the transform is applied by the caller, :meth:`matgen.tables.store.Table.lookup`). Inside each grid
+A table axis is interpolated in the coordinate it was sampled in: ``log(x)`` for a log-spaced axis, ``x``
+for a linear one (the transform is applied by the caller, :meth:`matgen.tables.store.Table.lookup`). Inside
+each grid
 cell the value is the tensor-product linear blend of the cell's ``2**D`` corners. At a grid node the blend
 weight of that node is exactly 1 and every other corner is skipped, so node values come back bit for bit.
 
@@ -81,6 +82,7 @@ def multilinear_kernel(coords, offsets, strides, values, points, out, clamped):
     coords : ndarray of float64, shape (sum of axis lengths,)
         Axis coordinates (already transformed), axis i at ``coords[offsets[i]:offsets[i+1]]``.
     offsets : ndarray of int64, shape (D+1,)
+        Start of each axis in ``coords``.
     strides : ndarray of int64, shape (D,)
         Row strides of the flattened C-order grid.
     values : ndarray of float32, shape (G, C)
@@ -91,6 +93,7 @@ def multilinear_kernel(coords, offsets, strides, values, points, out, clamped):
         Filled with the interpolated values.
     clamped : ndarray of bool, shape (N,)
         Set True where any coordinate of the point lay outside its axis and was clamped to the edge.
+
     """
     n_points = points.shape[0]
     d = points.shape[1]
@@ -168,7 +171,7 @@ def multilinear_python(coords, offsets, strides, values, points, out, clamped):
             wts = [w * (1.0 - t) for w in wts] + [w * t for w in wts]
             rows = [r + c * st for r in rows] + [r + (c + 1) * st for r in rows]
         acc = [0.0] * n_ch
-        for w, row in zip(wts, rows):
+        for w, row in zip(wts, rows, strict=True):
             if w == 0.0:
                 continue
             for c in range(n_ch):
@@ -197,6 +200,7 @@ def multilinear(axis_coords, values, points, *, backend="numba"):
         Interpolated values (accumulated in float64, rounded once to float32).
     clamped : ndarray of bool, shape (N,)
         Which points had at least one coordinate outside the grid (clamped to the edge).
+
     """
     coords, offsets, strides, flat = _prepare(axis_coords, values)
     pts = np.ascontiguousarray(np.asarray(points, dtype=np.float64))

@@ -83,6 +83,7 @@ def effective_anisotropy(g, mu_s_per_mm, reflected_path_mm):
     ndarray, shape (K,)
         ``sum g mu_s l / sum mu_s l``; the plain mean of g where no light was reflected.
         Source: ``Alerstam2008white`` (path lengths from photon records).
+
     """
     w = np.asarray(reflected_path_mm, np.float64) * np.asarray(mu_s_per_mm, np.float64)[None, :]
     total = w.sum(axis=1)
@@ -99,6 +100,7 @@ def assemble(job: JobFolder) -> dict:
         ``albedo_multiple``, ``albedo_multiple_stderr``, ``g_effective`` (N, B); ``radial_per_mm2``,
         ``radial_stderr_per_mm2`` (N, B, R); ``ring_edges_mm`` (R+1,); ``n_top`` (N, B); N = grid points in
         C order of the grid.
+
     """
     check_complete(job)
     plan = job.plan
@@ -127,16 +129,23 @@ def assemble(job: JobFolder) -> dict:
     if np.isnan(a).any():
         p, b = np.argwhere(np.isnan(a))[0]
         raise TableError(f"job {job.path}: grid point {int(p)} band {int(b)} is covered by no task")
-    return {"albedo_multiple": a, "albedo_multiple_stderr": a_err, "radial_per_mm2": radial,
-            "radial_stderr_per_mm2": radial_err, "g_effective": g_eff, "n_top": n_top,
-            "ring_edges_mm": plan.ring_edges_mm.copy()}
+    return {
+        "albedo_multiple": a,
+        "albedo_multiple_stderr": a_err,
+        "radial_per_mm2": radial,
+        "radial_stderr_per_mm2": radial_err,
+        "g_effective": g_eff,
+        "n_top": n_top,
+        "ring_edges_mm": plan.ring_edges_mm.copy(),
+    }
 
 
 def qa_summary(quantities: dict, table_axes, bands) -> dict:
     """Worst relative statistical error of A and worst fit residual, with where they occur."""
+
     def where(flat_index, band_index):
         idx = np.unravel_index(int(flat_index), tuple(a.values.size for a in table_axes))
-        point = {a.name: float(a.values[i]) for a, i in zip(table_axes, idx)}
+        point = {a.name: float(a.values[i]) for a, i in zip(table_axes, idx, strict=True)}
         return {"point": point, "band_nm": float(bands.centre_nm[band_index])}
 
     out = {}
@@ -161,6 +170,7 @@ def merge(job: JobFolder) -> Table:
     ------
     TableError
         Incomplete job (naming the missing tasks), corrupt or inconsistent task outputs.
+
     """
     summarize = _summarize()
     plan, spec = job.plan, job.plan.spec
@@ -186,7 +196,9 @@ def merge(job: JobFolder) -> Table:
             v = v[:, None]
         quantities[name] = v.reshape(shape + (v.shape[-1],)).astype(np.float32)
     if "albedo_multiple_stderr" not in quantities:
-        quantities["albedo_multiple_stderr"] = data["albedo_multiple_stderr"].reshape(shape + (-1,)).astype(np.float32)
+        quantities["albedo_multiple_stderr"] = (
+            data["albedo_multiple_stderr"].reshape(shape + (-1,)).astype(np.float32)
+        )
     total_photons = sum(int(load_task_output(job, t.index)["photons"][0]) for t in plan.tasks)
     manifest = {
         "spec": spec.to_dict(),

@@ -1,4 +1,4 @@
-"""Planning a table build into independent, deterministic, content-addressed tasks; the job folder. Units: nm, mm.
+"""Plan a table build into independent, deterministic, content-addressed tasks; the job folder. Units: nm, mm.
 
 One task is one scattering simulation: one band, one *scattering node* (a combination of the axes that change
 scattering, such as ``thickness_scale``) and one *reference block* (a combination of the axes named in the
@@ -12,8 +12,8 @@ Each task has
 * a **seed** derived from the spec seed and the task's identity (its band edges and node/block values), never
   from its position in a list, so reordering or extending a plan leaves other tasks' photons unchanged;
 * a **task id**: SHA-256 (:func:`matgen.provenance.hash_json`) of the code version, the hashes of the vendored
-  data, the task's slice of the spec (region, packaging, photons, ring edges, band, node, block and the pigment
-  axes it covers) and its seed.
+  data, the hash of the result-determining source, the task's slice of the spec (region, packaging,
+  photons, ring edges, band, node, block and the pigment axes it covers) and its seed.
 
 The job folder (``plan`` writes it; executors and ``run-task`` fill it; ``merge`` reads it)::
 
@@ -73,6 +73,7 @@ class Task:
         Values of the reference-split axes for this task.
     seed : int
         Seed of the transport run (from the spec seed and the task identity).
+
     """
 
     index: int
@@ -84,14 +85,26 @@ class Task:
 
     def to_dict(self) -> dict:
         """JSON form."""
-        return {"index": self.index, "task_id": self.task_id, "band": self.band, "node": self.node,
-                "block": self.block, "seed": self.seed}
+        return {
+            "index": self.index,
+            "task_id": self.task_id,
+            "band": self.band,
+            "node": self.node,
+            "block": self.block,
+            "seed": self.seed,
+        }
 
     @classmethod
     def from_dict(cls, d: dict) -> Task:
         """Inverse of :meth:`to_dict`."""
-        return cls(int(d["index"]), str(d["task_id"]), int(d["band"]), dict(d["node"]), dict(d["block"]),
-                   int(d["seed"]))
+        return cls(
+            int(d["index"]),
+            str(d["task_id"]),
+            int(d["band"]),
+            dict(d["node"]),
+            dict(d["block"]),
+            int(d["seed"]),
+        )
 
 
 @functools.lru_cache(maxsize=1)
@@ -111,8 +124,13 @@ def source_hash() -> str:
     files = [root / m for m in _RESULT_MODULES]
     for pkg in _RESULT_PACKAGES:
         base = root / pkg
-        files += [p for p in base.rglob("*") if p.is_file() and "__pycache__" not in p.parts
-                  and (p.suffix == ".py" or "data" in p.relative_to(base).parts)]
+        files += [
+            p
+            for p in base.rglob("*")
+            if p.is_file()
+            and "__pycache__" not in p.parts
+            and (p.suffix == ".py" or "data" in p.relative_to(base).parts)
+        ]
     h = hashlib.sha256()
     for p in sorted(files, key=lambda q: q.relative_to(root).as_posix()):
         rel = p.relative_to(root).as_posix()
@@ -138,9 +156,14 @@ def task_seed(spec_seed: int, band_edges_nm, node: dict, block: dict) -> int:
     -------
     int
         A seed in [0, 2**63).
+
     """
-    ident = {"spec_seed": int(spec_seed), "band_nm": [float(x) for x in band_edges_nm], "node": node,
-             "block": block}
+    ident = {
+        "spec_seed": int(spec_seed),
+        "band_nm": [float(x) for x in band_edges_nm],
+        "node": node,
+        "block": block,
+    }
     return int(hash_json(ident)[:16], 16) & ((1 << 63) - 1)
 
 
@@ -154,7 +177,7 @@ def _tissue():
 
 
 def base_parameters(spec: TableSpec):
-    """The region preset of the spec with every axis at its first value."""
+    """Return the spec's region preset with every axis at its first value."""
     preset, _, _ = _tissue()
     try:
         base = preset(spec.region)
@@ -164,7 +187,7 @@ def base_parameters(spec: TableSpec):
 
 
 def parameters_at(base, values: dict, source: str = "<spec>"):
-    """``base`` with the given axis values; an out-of-range value becomes a ConfigError naming the axis."""
+    """Return ``base`` with the given axis values; out-of-range values raise ConfigError naming the axis."""
     try:
         return base.replace(**{k: float(v) for k, v in values.items()})
     except MatgenError as exc:
@@ -175,7 +198,8 @@ def scattering_axes(spec: TableSpec) -> list:
     """Axes of the spec that change scattering (mu_s, g, n or thickness in any layer or band).
 
     Each axis is probed by moving it alone from its first to its last value (and to its middle value) with the
-    others at their first values and comparing the scattering arrays of :func:`matgen.tissue.optics.skin_optics`.
+    others at their first values and comparing the scattering arrays of
+    :func:`matgen.tissue.optics.skin_optics`.
     """
     _, skin_optics, _ = _tissue()
     base = base_parameters(spec)
@@ -191,7 +215,7 @@ def scattering_axes(spec: TableSpec) -> list:
         changes = False
         for v in probe_values:
             other = arrays(parameters_at(base, {a.name: v}, spec.source))
-            if any(x.shape != y.shape or not np.array_equal(x, y) for x, y in zip(ref, other)):
+            if any(x.shape != y.shape or not np.array_equal(x, y) for x, y in zip(ref, other, strict=True)):
                 changes = True
         if changes:
             out.append(a.name)
@@ -199,7 +223,7 @@ def scattering_axes(spec: TableSpec) -> list:
 
 
 def resolve_ring_edges(spec: TableSpec) -> np.ndarray:
-    """The spec's ring edges in mm, or the transport default."""
+    """Return the spec's ring edges in mm, or the transport default."""
     if spec.ring_edges_mm is not None:
         return np.asarray(spec.ring_edges_mm, dtype=np.float64)
     try:
@@ -225,6 +249,7 @@ class Plan:
     data_hashes : dict
     source_hash : str
         :func:`source_hash` of the code that planned the job.
+
     """
 
     spec: TableSpec
@@ -253,16 +278,23 @@ class Plan:
             else:
                 per_axis.append(list(range(a.values.size)))
         idx = np.array(list(itertools.product(*per_axis)), dtype=np.int64)
-        vals = [{a.name: float(a.values[j]) for a, j in zip(spec.axes, row)} for row in idx]
+        vals = [{a.name: float(a.values[j]) for a, j in zip(spec.axes, row, strict=True)} for row in idx]
         return idx, vals
 
     def job_hash(self) -> str:
         """Hash of the whole plan (spec, code version, data hashes, task ids)."""
-        return hash_json({"code": self.code_version, "source": self.source_hash, "data": self.data_hashes,
-                          "spec": self.spec.to_dict(), "tasks": [t.task_id for t in self.tasks]})
+        return hash_json(
+            {
+                "code": self.code_version,
+                "source": self.source_hash,
+                "data": self.data_hashes,
+                "spec": self.spec.to_dict(),
+                "tasks": [t.task_id for t in self.tasks],
+            }
+        )
 
     def to_dict(self) -> dict:
-        """The ``job.json`` document."""
+        """Return the ``job.json`` document."""
         return {
             "format": "matgen-table-job",
             "format_version": JOB_FORMAT_VERSION,
@@ -284,6 +316,7 @@ def make_plan(spec: TableSpec) -> Plan:
     Parameters
     ----------
     spec : TableSpec
+        The parsed spec.
 
     Returns
     -------
@@ -294,17 +327,20 @@ def make_plan(spec: TableSpec) -> Plan:
     ConfigError
         A grid point outside the tissue model's allowed ranges (naming the point), or a reference-split axis
         that changes scattering.
+
     """
     base = base_parameters(spec)
     for a in spec.axes:  # each axis value alone against the tissue model's ranges
         for v in a.values:
             parameters_at(base, {a.name: float(v)}, spec.source)
     for combo in itertools.product(*[(a.values[0], a.values[-1]) for a in spec.axes]):  # every corner
-        parameters_at(base, dict(zip(spec.axis_names, combo)), spec.source)
+        parameters_at(base, dict(zip(spec.axis_names, combo, strict=True)), spec.source)
     scat = scattering_axes(spec)
     clash = [s for s in spec.reference_split if s in scat]
     if clash:
-        raise ConfigError(f"{spec.source}: reference_split axes {clash} change scattering; they form nodes already")
+        raise ConfigError(
+            f"{spec.source}: reference_split axes {clash} change scattering; they form nodes already"
+        )
     ring = resolve_ring_edges(spec)
     version, dhash, shash = code_version(), data_hashes(), source_hash()
     by_name = {a.name: a for a in spec.axes}
@@ -316,9 +352,9 @@ def make_plan(spec: TableSpec) -> Plan:
     limits.check_count(n_tasks, "table_entries", f"the task count of {spec.source}")
     tasks = []
     for node_vals in itertools.product(*[a.values for a in node_axes]):
-        node = {a.name: float(v) for a, v in zip(node_axes, node_vals)}
+        node = {a.name: float(v) for a, v in zip(node_axes, node_vals, strict=True)}
         for block_vals in itertools.product(*[a.values for a in block_axes]):
-            block = {a.name: float(v) for a, v in zip(block_axes, block_vals)}
+            block = {a.name: float(v) for a, v in zip(block_axes, block_vals, strict=True)}
             for b in range(len(spec.bands)):
                 edges = (spec.bands.lower_nm[b], spec.bands.centre_nm[b], spec.bands.upper_nm[b])
                 seed = task_seed(spec.seed, edges, node, block)
@@ -335,7 +371,9 @@ def make_plan(spec: TableSpec) -> Plan:
                     "axes_order": spec.axis_names,
                     "pigment_axes": pigment,
                 }
-                tid = hash_json({"code": version, "source": shash, "data": dhash, "slice": slice_, "seed": seed})
+                tid = hash_json(
+                    {"code": version, "source": shash, "data": dhash, "slice": slice_, "seed": seed}
+                )
                 tasks.append(Task(len(tasks), tid, b, node, block, seed))
     return Plan(spec, scat, ring, tasks, version, dhash, shash)
 
@@ -346,11 +384,19 @@ def plan_from_dict(doc: dict, source: str) -> Plan:
         if not isinstance(doc, dict) or doc.get("format") != "matgen-table-job":
             raise TableError(f"{source} is not a matgen table job file")
         if doc.get("format_version") != JOB_FORMAT_VERSION:
-            raise TableError(f"{source} has job format {doc.get('format_version')}; this matgen uses {JOB_FORMAT_VERSION}")
+            raise TableError(
+                f"{source} has job format {doc.get('format_version')}; this matgen uses {JOB_FORMAT_VERSION}"
+            )
         spec = TableSpec.from_dict(doc["spec"], source=source)
-        plan = Plan(spec, list(doc["scattering_axes"]), np.asarray(doc["ring_edges_mm"], dtype=np.float64),
-                    [Task.from_dict(t) for t in doc["tasks"]], str(doc["code_version"]), dict(doc["data_hashes"]),
-                    str(doc["source_hash"]))
+        plan = Plan(
+            spec,
+            list(doc["scattering_axes"]),
+            np.asarray(doc["ring_edges_mm"], dtype=np.float64),
+            [Task.from_dict(t) for t in doc["tasks"]],
+            str(doc["code_version"]),
+            dict(doc["data_hashes"]),
+            str(doc["source_hash"]),
+        )
     except MatgenError:
         raise
     except (KeyError, TypeError, ValueError, AttributeError, IndexError) as exc:
@@ -380,11 +426,11 @@ class JobFolder:
         return self.path / "locks"
 
     def output_path(self, index: int) -> Path:
-        """The ``.npz`` output of task ``index``."""
+        """Return the path of task ``index``'s ``.npz`` output."""
         return self.tasks_dir / f"task-{index:05d}.npz"
 
     def record_path(self, index: int) -> Path:
-        """The ``.json`` record of task ``index``."""
+        """Return the path of task ``index``'s ``.json`` record."""
         return self.tasks_dir / f"task-{index:05d}.json"
 
     @classmethod
@@ -395,6 +441,7 @@ class JobFolder:
         ------
         TableError
             If ``path`` holds a job of another spec, code version or data (nothing there is changed).
+
         """
         path = Path(path)
         path.mkdir(parents=True, exist_ok=True)
@@ -419,13 +466,17 @@ class JobFolder:
         Parameters
         ----------
         path : str or Path
+            The job folder.
         check_code : bool
             Refuse a job planned with another matgen version or other vendored data.
+
         """
         path = Path(path)
         job_file = path / JOB_FILE
         if not job_file.is_file():
-            raise TableError(f"{path} is not a table job folder (no {JOB_FILE}); create one with 'matgen table plan'")
+            raise TableError(
+                f"{path} is not a table job folder (no {JOB_FILE}); create one with 'matgen table plan'"
+            )
         try:
             doc = json.loads(limits.read_text_limited(job_file, "table job file"))
         except ValueError as exc:
@@ -439,8 +490,8 @@ class JobFolder:
                 )
             if plan.source_hash != source_hash():
                 raise TableError(
-                    f"job folder {path} was planned with other matgen source code (the transport, tissue, fit or "
-                    "table code, or their data, changed since): plan a new job folder"
+                    f"job folder {path} was planned with other matgen source code (the transport, tissue, "
+                    "fit or table code, or their data, changed since): plan a new job folder"
                 )
             if plan.data_hashes != data_hashes():
                 changed = sorted(set(plan.data_hashes.items()) ^ set(data_hashes().items()))
@@ -464,5 +515,8 @@ def _mismatch(old: Plan, new: Plan, path) -> str:
         a, b = old.spec.to_dict(), new.spec.to_dict()
         keys = [k for k in a if a.get(k) != b.get(k)]
         why.append(f"spec differs in {keys}")
-    return (f"job folder {path} holds a job of another spec or code version ({'; '.join(why) or 'tasks differ'}); "
-            "it is left unchanged: use a new job folder")
+    return (
+        f"job folder {path} holds a job of another spec or code version "
+        f"({'; '.join(why) or 'tasks differ'}); "
+        "it is left unchanged: use a new job folder"
+    )

@@ -15,7 +15,7 @@ from matgen.tables.store import SPECTRAL_QUANTITIES, Table, manifest_path
 
 def _where(table: Table, flat: int) -> dict:
     idx = np.unravel_index(int(flat), table.grid_shape)
-    return {a.name: float(a.values[i]) for a, i in zip(table.axes, idx)}
+    return {a.name: float(a.values[i]) for a, i in zip(table.axes, idx, strict=True)}
 
 
 def table_qa(table: Table) -> dict:
@@ -29,7 +29,10 @@ def table_qa(table: Table) -> dict:
         rel = np.where(a > 0, e / np.where(a > 0, a, 1.0), np.inf)
         p, b = np.unravel_index(int(np.argmax(rel)), rel.shape)
         out["worst_relative_stderr_albedo_multiple"] = {
-            "value": float(rel[p, b]), "point": _where(table, p), "band_nm": float(table.bands.centre_nm[b])}
+            "value": float(rel[p, b]),
+            "point": _where(table, p),
+            "band_nm": float(table.bands.centre_nm[b]),
+        }
         out["median_relative_stderr_albedo_multiple"] = float(np.median(rel))
         out["albedo_multiple_range"] = [float(a.min()), float(a.max())]
     for name in ("fit_residual", "rgb_fit_residual"):
@@ -51,11 +54,22 @@ def table_qa(table: Table) -> dict:
 def table_summary(table: Table, path=None) -> dict:
     """JSON-ready summary of a table: axes, bands, quantities, QA, build statistics, file sizes."""
     doc = {
-        "axes": [{"name": a.name, "spacing": a.spacing, "count": int(a.values.size),
-                  "min": float(a.values[0]), "max": float(a.values[-1])} for a in table.axes],
+        "axes": [
+            {
+                "name": a.name,
+                "spacing": a.spacing,
+                "count": int(a.values.size),
+                "min": float(a.values[0]),
+                "max": float(a.values[-1]),
+            }
+            for a in table.axes
+        ],
         "grid_points": table.n_points,
-        "bands": {"count": len(table.bands), "first_nm": float(table.bands.centre_nm[0]),
-                  "last_nm": float(table.bands.centre_nm[-1])},
+        "bands": {
+            "count": len(table.bands),
+            "first_nm": float(table.bands.centre_nm[0]),
+            "last_nm": float(table.bands.centre_nm[-1]),
+        },
         "working_space": table.working_space,
         "illuminant": table.illuminant,
         "quantities": {n: int(v.shape[-1]) for n, v in table.quantities.items()},
@@ -81,23 +95,31 @@ def format_summary(doc: dict) -> str:
     if "file" in doc:
         mb = doc["file_bytes"] / 1e6
         lines.append(f"table {doc['file']}  ({mb:.2f} MB; manifest {doc.get('manifest_bytes') or 0} bytes)")
-    lines.append(f"grid: {doc['grid_points']} points x {doc['bands']['count']} bands "
-                 f"({doc['bands']['first_nm']:g}-{doc['bands']['last_nm']:g} nm); "
-                 f"RGB in {doc['working_space']} under {doc['illuminant']}")
+    lines.append(
+        f"grid: {doc['grid_points']} points x {doc['bands']['count']} bands "
+        f"({doc['bands']['first_nm']:g}-{doc['bands']['last_nm']:g} nm); "
+        f"RGB in {doc['working_space']} under {doc['illuminant']}"
+    )
     for a in doc["axes"]:
-        lines.append(f"  axis {a['name']:<20s} {a['spacing']:<6s} {a['count']:3d} points  {a['min']:g} .. {a['max']:g}")
+        lines.append(
+            f"  axis {a['name']:<20s} {a['spacing']:<6s} {a['count']:3d} points  {a['min']:g} .. {a['max']:g}"
+        )
     lines.append("quantities: " + ", ".join(f"{n}[{c}]" for n, c in doc["quantities"].items()))
     if doc.get("photons_per_band"):
         lines.append(f"photons per task: {doc['photons_per_band']}; tasks: {doc.get('tasks')}")
     qa = doc["qa"]
     w = qa.get("worst_relative_stderr_albedo_multiple")
     if w:
-        lines.append(f"QA worst relative stderr of A: {100 * w['value']:.3f} % at {w['band_nm']:g} nm, {w['point']}"
-                     f" (median {100 * qa['median_relative_stderr_albedo_multiple']:.3f} %)")
+        lines.append(
+            f"QA worst relative stderr of A: {100 * w['value']:.3f} % at {w['band_nm']:g} nm, {w['point']}"
+            f" (median {100 * qa['median_relative_stderr_albedo_multiple']:.3f} %)"
+        )
     w = qa.get("worst_fit_residual")
     if w:
-        lines.append(f"QA worst fit residual: {w['value']:.4f} at {w['band_nm']:g} nm, {w['point']}"
-                     f" (median {qa['median_fit_residual']:.4f})")
+        lines.append(
+            f"QA worst fit residual: {w['value']:.4f} at {w['band_nm']:g} nm, {w['point']}"
+            f" (median {qa['median_fit_residual']:.4f})"
+        )
     w = qa.get("worst_rgb_fit_residual")
     if w:
         lines.append(f"QA worst RGB fit residual: {w['value']:.4f} in {w['channel']}, {w['point']}")
@@ -116,13 +138,21 @@ def format_summary(doc: dict) -> str:
     return "\n".join(lines)
 
 
-def plot_slices(table: Table, out, quantity: str = "rgb_albedo_multiple", x_axis: str | None = None,
-                line_axis: str | None = None, band_nm: float | None = None, at: dict | None = None):
+def plot_slices(
+    table: Table,
+    out,
+    quantity: str = "rgb_albedo_multiple",
+    x_axis: str | None = None,
+    line_axis: str | None = None,
+    band_nm: float | None = None,
+    at: dict | None = None,
+):
     """Plot a quantity along one axis, one line per value of another, other axes at their middle values.
 
     Parameters
     ----------
     table : Table
+        The table.
     out : str or Path
         Image file (PNG, PDF, SVG; by the suffix).
     quantity : str
@@ -134,6 +164,7 @@ def plot_slices(table: Table, out, quantity: str = "rgb_albedo_multiple", x_axis
         Wavelength in nm for spectral quantities.
     at : dict, optional
         Values of the remaining axes (default: each axis' middle grid value).
+
     """
     import matplotlib
 
@@ -159,23 +190,36 @@ def plot_slices(table: Table, out, quantity: str = "rgb_albedo_multiple", x_axis
     arr = table.quantities[quantity]
     c = arr.shape[-1]
     if quantity in SPECTRAL_QUANTITIES or (c == len(table.bands) and c != 3):
-        b = table.bands.index_of(band_nm) if band_nm is not None else int(np.argmin(abs(table.bands.centre_nm - 550)))
+        b = (
+            table.bands.index_of(band_nm)
+            if band_nm is not None
+            else int(np.argmin(abs(table.bands.centre_nm - 550)))
+        )
         channels, labels = [b], [f"{table.bands.centre_nm[b]:g} nm"]
     else:
         channels, labels = list(range(c)), (["R", "G", "B"] if c == 3 else [str(i) for i in range(c)])
     xa = by[x_axis]
-    xs = np.geomspace(xa.values[0], xa.values[-1], 200) if xa.spacing == "log" else np.linspace(
-        xa.values[0], xa.values[-1], 200)
+    xs = (
+        np.geomspace(xa.values[0], xa.values[-1], 200)
+        if xa.spacing == "log"
+        else np.linspace(xa.values[0], xa.values[-1], 200)
+    )
     line_vals = by[line_axis].values if line_axis else [None]
     fig, axs = plt.subplots(1, len(channels), figsize=(4.2 * len(channels), 3.4), squeeze=False)
-    for ci, (ch, lab) in enumerate(zip(channels, labels)):
+    for ci, (ch, lab) in enumerate(zip(channels, labels, strict=True)):
         ax = axs[0, ci]
         for lv in line_vals:
-            pts = np.array([[x if n == x_axis else (lv if n == line_axis else fixed[n]) for n in names] for x in xs])
+            pts = np.array(
+                [[x if n == x_axis else (lv if n == line_axis else fixed[n]) for n in names] for x in xs]
+            )
             vals, _ = table.lookup(pts, [quantity])
             ax.plot(xs, vals[quantity][:, ch], label=f"{line_axis} = {lv:g}" if line_axis else None)
-            node_pts = np.array([[x if n == x_axis else (lv if n == line_axis else fixed[n]) for n in names]
-                                 for x in xa.values])
+            node_pts = np.array(
+                [
+                    [x if n == x_axis else (lv if n == line_axis else fixed[n]) for n in names]
+                    for x in xa.values
+                ]
+            )
             nv, _ = table.lookup(node_pts, [quantity])
             ax.plot(xa.values, nv[quantity][:, ch], "k.", ms=3)
         if xa.spacing == "log":

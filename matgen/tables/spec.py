@@ -52,8 +52,19 @@ from matgen.tables.store import Axis
 SPEC_FORMAT_VERSION = 1
 
 _TOP_KEYS = {
-    "format_version", "name", "description", "region", "packaging", "photons_per_band", "seed",
-    "working_space", "illuminant", "targets", "bands", "transport", "axes",
+    "format_version",
+    "name",
+    "description",
+    "region",
+    "packaging",
+    "photons_per_band",
+    "seed",
+    "working_space",
+    "illuminant",
+    "targets",
+    "bands",
+    "transport",
+    "axes",
 }
 _REQUIRED_TOP = ("photons_per_band", "seed", "bands", "axes")
 _BAND_KEYS = {"start_nm", "stop_nm", "step_nm", "width_nm", "centres_nm"}
@@ -130,6 +141,7 @@ class TableSpec:
         Photon ceiling of one task when ``target_relative_stderr`` is set.
     source : str
         Where the spec came from (a file name), for messages only; not part of the spec's identity.
+
     """
 
     axes: tuple
@@ -174,7 +186,9 @@ class TableSpec:
             "targets": list(self.targets),
             "bands": self.bands.to_dict(),
             "transport": {
-                "ring_edges_mm": None if self.ring_edges_mm is None else np.asarray(self.ring_edges_mm).tolist(),
+                "ring_edges_mm": None
+                if self.ring_edges_mm is None
+                else np.asarray(self.ring_edges_mm).tolist(),
                 "reference_split": list(self.reference_split),
                 "target_relative_stderr": self.target_relative_stderr,
                 "max_photons_per_band": int(self.max_photons_per_band),
@@ -231,7 +245,9 @@ def _parse_axis(name: str, body, source: str) -> Axis:
     else:
         missing = [k for k in ("start", "stop", "count") if k not in body]
         if missing:
-            raise ConfigError(f"{source}: {where} needs values = [...] or start, stop and count (missing {missing})")
+            raise ConfigError(
+                f"{source}: {where} needs values = [...] or start, stop and count (missing {missing})"
+            )
         start = float(_number(body["start"], f"{where} start", source))
         stop = float(_number(body["stop"], f"{where} stop", source))
         count = _number(body["count"], f"{where} count", source, integer=True)
@@ -257,8 +273,9 @@ def parse_spec(doc: dict, source: str = "<spec>") -> TableSpec:
     Raises
     ------
     ConfigError
-        Unknown keys (naming the nearest valid one), missing keys, wrong types, axes with fewer than two points
-        or non-increasing values, unknown axis names.
+        Unknown keys (naming the nearest valid one), missing keys, wrong types, axes with fewer than two
+        points or non-increasing values, unknown axis names.
+
     """
     try:
         return _parse_spec(doc, source)
@@ -287,8 +304,14 @@ def _parse_spec(doc: dict, source: str) -> TableSpec:
     if seed < 0:
         raise ConfigError(f"{source}: seed is {seed}; must be >= 0")
     strings = {}
-    for key, default in (("region", "cheek"), ("packaging", "on"), ("working_space", "ACEScg"),
-                         ("illuminant", "D65"), ("name", ""), ("description", "")):
+    for key, default in (
+        ("region", "cheek"),
+        ("packaging", "on"),
+        ("working_space", "ACEScg"),
+        ("illuminant", "D65"),
+        ("name", ""),
+        ("description", ""),
+    ):
         v = doc.get(key, default)
         if not isinstance(v, str):
             raise ConfigError(f"{source}: {key} is {v!r}; expected a string")
@@ -319,7 +342,9 @@ def _parse_spec(doc: dict, source: str) -> TableSpec:
                 float(_number(bands_doc["start_nm"], "[bands] start_nm", source)),
                 float(_number(bands_doc["stop_nm"], "[bands] stop_nm", source)),
                 float(_number(bands_doc["step_nm"], "[bands] step_nm", source)),
-                None if "width_nm" not in bands_doc else float(_number(bands_doc["width_nm"], "width_nm", source)),
+                None
+                if "width_nm" not in bands_doc
+                else float(_number(bands_doc["width_nm"], "width_nm", source)),
             )
     except ConfigError:
         raise
@@ -351,17 +376,22 @@ def _parse_spec(doc: dict, source: str) -> TableSpec:
     for s in split:
         if s not in axes_doc:
             raise ConfigError(
-                f"{source}: [transport] reference_split names '{s}', which is not an axis{_nearest(str(s), axes_doc)}"
+                f"{source}: [transport] reference_split names '{s}', which is not an axis"
+                f"{_nearest(str(s), axes_doc)}"
             )
     target = transport.get("target_relative_stderr")
     if target is not None:
         target = float(_number(target, "[transport] target_relative_stderr", source))
         if not 0 < target < 1:
             raise ConfigError(f"{source}: [transport] target_relative_stderr is {target}; must lie in (0, 1)")
-    max_photons = transport.get("max_photons_per_band", 20 * int(photons) if target is not None else int(photons))
+    max_photons = transport.get(
+        "max_photons_per_band", 20 * int(photons) if target is not None else int(photons)
+    )
     max_photons = _number(max_photons, "[transport] max_photons_per_band", source, integer=True)
     if max_photons < photons:
-        raise ConfigError(f"{source}: [transport] max_photons_per_band {max_photons} is below photons_per_band {photons}")
+        raise ConfigError(
+            f"{source}: [transport] max_photons_per_band {max_photons} is below photons_per_band {photons}"
+        )
     try:
         limits.check_photons(max_photons)
     except MatgenError as exc:
@@ -395,6 +425,7 @@ def load_spec(path) -> TableSpec:
     ------
     ConfigError
         Unreadable file, TOML syntax error, or any problem :func:`parse_spec` reports.
+
     """
     path = Path(path)
     text = limits.read_text_limited(path, "table spec")

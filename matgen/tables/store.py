@@ -75,6 +75,7 @@ class Axis:
         Strictly increasing grid values in the field's unit (volume fractions, shares in [0, 1], a scale).
     spacing : {"linear", "log"}
         The coordinate the axis is sampled and interpolated in (``log`` needs values > 0).
+
     """
 
     name: str
@@ -95,7 +96,9 @@ class Axis:
         if self.spacing not in SPACINGS:
             raise ParameterError(f"axis '{self.name}' spacing is {self.spacing!r}; use one of {SPACINGS}")
         if self.spacing == "log" and v[0] <= 0:
-            raise ParameterError(f"axis '{self.name}' is log-spaced but starts at {v[0]!r}; log axes need values > 0")
+            raise ParameterError(
+                f"axis '{self.name}' is log-spaced but starts at {v[0]!r}; log axes need values > 0"
+            )
         v.setflags(write=False)
         object.__setattr__(self, "values", v)
 
@@ -172,14 +175,27 @@ def read_npz_checked(path: Path, what: str) -> dict:
                     out[member[:-4]] = np.lib.format.read_array(fh, allow_pickle=False)
     except MatgenError:
         raise
-    except (OSError, ValueError, KeyError, TypeError, AttributeError, IndexError, SyntaxError, EOFError,
-            NotImplementedError, RuntimeError, zipfile.BadZipFile, zlib.error, tokenize.TokenError) as exc:
+    except (
+        OSError,
+        ValueError,
+        KeyError,
+        TypeError,
+        AttributeError,
+        IndexError,
+        SyntaxError,
+        EOFError,
+        NotImplementedError,
+        RuntimeError,
+        zipfile.BadZipFile,
+        zlib.error,
+        tokenize.TokenError,
+    ) as exc:
         raise TableError(f"{what} {path} is truncated or corrupt ({type(exc).__name__}: {exc})") from exc
     return out
 
 
 def manifest_path(path) -> Path:
-    """The JSON manifest beside a table file (``x.npz`` -> ``x.json``)."""
+    """Return the JSON manifest path beside a table file (``x.npz`` -> ``x.json``)."""
     return Path(path).with_suffix(".json")
 
 
@@ -201,6 +217,7 @@ class Table:
         Spec, provenance and QA (JSON-ready); stored in the ``.npz`` and the ``.json``.
     build_stats : dict
         Run-dependent build statistics (wall time, CPUs); stored only in the ``.json`` manifest.
+
     """
 
     axes: list
@@ -221,7 +238,9 @@ class Table:
         for name, arr in self.quantities.items():
             a = np.asarray(arr)
             if a.shape[:-1] != shape or a.ndim != len(shape) + 1:
-                raise TableError(f"table quantity '{name}' has shape {a.shape}; expected {shape} + (channels,)")
+                raise TableError(
+                    f"table quantity '{name}' has shape {a.shape}; expected {shape} + (channels,)"
+                )
             want = _expected_channels(name, len(self.bands))
             if want is not None and a.shape[-1] != want:
                 raise TableError(f"table quantity '{name}' has {a.shape[-1]} channels; expected {want}")
@@ -291,6 +310,7 @@ class Table:
         values : dict of str to ndarray of float32, shape (N, C)
         n_clamped : int
             Number of points with at least one coordinate clamped.
+
         """
         if out_of_range not in ("clamp", "error"):
             raise ParameterError(f"out_of_range is {out_of_range!r}; use 'clamp' or 'error'")
@@ -300,7 +320,9 @@ class Table:
         if pts.ndim == 1 and d == 1:
             pts = pts[:, None]
         if pts.ndim != 2 or pts.shape[1] != d:
-            raise ParameterError(f"lookup points have shape {pts.shape}; expected (N, {d}) in order {self.axis_names}")
+            raise ParameterError(
+                f"lookup points have shape {pts.shape}; expected (N, {d}) in order {self.axis_names}"
+            )
         finite = np.isfinite(pts)
         if not finite.all():
             row, col = np.argwhere(~finite)[0]
@@ -323,7 +345,9 @@ class Table:
             out_mask |= bad
             q[:, i] = ax.transform(np.clip(col, lo, hi))
         coords, offsets, strides, flat = self._kernel_arrays(tuple(names))
-        out, _ = interpolate.run_prepared(coords, offsets, strides, flat, np.ascontiguousarray(q), backend=backend)
+        out, _ = interpolate.run_prepared(
+            coords, offsets, strides, flat, np.ascontiguousarray(q), backend=backend
+        )
         result = {}
         start = 0
         for n in names:
@@ -352,6 +376,7 @@ class Table:
         Returns
         -------
         ndarray of float64, shape (N, C)
+
         """
         self._check_names([name])
         pts = np.asarray(points, dtype=np.float64).reshape(-1, len(self.axes))
@@ -367,17 +392,30 @@ class Table:
             slope = np.diff(fm, axis=0) / np.diff(c).reshape((-1,) + (1,) * (fm.ndim - 1))
             d2 = 2.0 * np.diff(slope, axis=0) / (c[2:] - c[:-2]).reshape((-1,) + (1,) * (fm.ndim - 1))
             d2 = np.abs(d2)
-            curv = np.concatenate([d2[:1], d2, d2[-1:]], axis=0)  # |f''| at every node (ends: nearest interior)
+            curv = np.concatenate(
+                [d2[:1], d2, d2[-1:]], axis=0
+            )  # |f''| at every node (ends: nearest interior)
             cell_curv = np.maximum(curv[:-1], curv[1:])  # per cell along axis i
             h = np.diff(c).reshape((-1,) + (1,) * (fm.ndim - 1))
             cell_err = cell_curv * h**2 / 8.0  # the maximum over the cell (t = 1/2)
             cell = np.clip(np.searchsorted(c, x, side="right") - 1, 0, c.size - 2)
             t = (x - c[cell]) / (c[cell + 1] - c[cell])
-            # cell_err along the other axes at the query's position: multilinear over them (nearest cell along i)
+            # cell_err along the other axes at the query's position: multilinear over them (own cell along i)
             other = [coords[j] for j in range(len(self.axes)) if j != i]
-            q_other = np.stack([self.axes[j].transform(np.clip(pts[:, j], self.axes[j].values[0],
-                                                               self.axes[j].values[-1]))
-                                for j in range(len(self.axes)) if j != i], axis=1) if other else None
+            q_other = (
+                np.stack(
+                    [
+                        self.axes[j].transform(
+                            np.clip(pts[:, j], self.axes[j].values[0], self.axes[j].values[-1])
+                        )
+                        for j in range(len(self.axes))
+                        if j != i
+                    ],
+                    axis=1,
+                )
+                if other
+                else None
+            )
             est = np.empty_like(total)
             for ci in np.unique(cell):
                 sel = cell == ci
@@ -392,7 +430,7 @@ class Table:
 
     # ------------------------------------------------------------------ files
     def header(self) -> dict:
-        """The JSON header stored inside the ``.npz``."""
+        """Return the JSON header stored inside the ``.npz``."""
         return {
             "format": "matgen-table",
             "format_version": TABLE_FORMAT_VERSION,
@@ -418,6 +456,7 @@ class Table:
         -------
         Path
             The table file written.
+
         """
         path = Path(path)
         if path.suffix != ".npz":
@@ -455,6 +494,7 @@ class Table:
         ------
         TableError
             Missing, truncated or corrupt file, checksum mismatch, or another format version.
+
         """
         path = Path(path)
         if not path.is_file():
@@ -467,7 +507,9 @@ class Table:
             except (OSError, ValueError) as exc:
                 raise TableError(f"table manifest {side} is not valid JSON ({exc})") from exc
             if not isinstance(side_doc, dict):
-                raise TableError(f"table manifest {side} must hold a JSON object, not {type(side_doc).__name__}")
+                raise TableError(
+                    f"table manifest {side} must hold a JSON object, not {type(side_doc).__name__}"
+                )
             if verify and side_doc.get("npz_sha256") not in (None, sha256_file(path)):
                 raise TableError(
                     f"table file {path} does not match the SHA-256 recorded in {side.name}: "
@@ -477,7 +519,9 @@ class Table:
             z = read_npz_checked(path, "table")
             header = json.loads(bytes(z["header.json"]).decode("utf-8"))
             if not isinstance(header, dict) or header.get("format") != "matgen-table":
-                raise TableError(f"{path} is not a matgen table file (its header is not a matgen table header)")
+                raise TableError(
+                    f"{path} is not a matgen table file (its header is not a matgen table header)"
+                )
             if header.get("format_version") != TABLE_FORMAT_VERSION:
                 raise TableError(
                     f"table {path} has format version {header.get('format_version')}; this matgen reads "
@@ -502,9 +546,23 @@ class Table:
             )
         except MatgenError:
             raise
-        except (OSError, ValueError, KeyError, TypeError, AttributeError, IndexError, SyntaxError, EOFError,
-                NotImplementedError, RuntimeError, zipfile.BadZipFile, zlib.error) as exc:
-            raise TableError(f"table file {path} is truncated or corrupt ({type(exc).__name__}: {exc})") from exc
+        except (
+            OSError,
+            ValueError,
+            KeyError,
+            TypeError,
+            AttributeError,
+            IndexError,
+            SyntaxError,
+            EOFError,
+            NotImplementedError,
+            RuntimeError,
+            zipfile.BadZipFile,
+            zlib.error,
+        ) as exc:
+            raise TableError(
+                f"table file {path} is truncated or corrupt ({type(exc).__name__}: {exc})"
+            ) from exc
 
 
 def default_table_path() -> Path:

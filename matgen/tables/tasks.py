@@ -1,4 +1,4 @@
-"""Running one table task: a scattering simulation plus absorption reweighting, written atomically. Units: mm, 1/mm.
+"""Run one table task: a scattering simulation plus absorption reweighting, written atomically. Units: mm.
 
 :func:`compute_task` is a pure function of the plan and the task: it builds the skin parameters of every grid
 point the task covers, their absorption (``absorption_batch``), the node's scattering stack for the task's
@@ -62,7 +62,9 @@ def _deps():
         from matgen.transport.simulate import simulate
         from matgen.transport.stack import Stack
     except ImportError as exc:
-        raise TableError(f"running table tasks needs the tissue model and the transport engine: {exc}") from exc
+        raise TableError(
+            f"running table tasks needs the tissue model and the transport engine: {exc}"
+        ) from exc
     return absorption_batch, skin_optics, simulate, PhotonRecords, Stack
 
 
@@ -84,6 +86,7 @@ def next_photon_count(n_done: int, worst_rel: float, target: float, n_min: int, 
     -------
     int
         Photons of the next run (0 if the target is met or the ceiling reached).
+
     """
     if not (worst_rel > target) or n_done >= n_max:
         return 0
@@ -104,13 +107,16 @@ def compute_task(plan: Plan, task: Task, threads: int | None = None) -> dict:
     Parameters
     ----------
     plan : Plan
+        The job's plan.
     task : Task
+        The task to compute.
     threads : int, optional
         Threads of the transport and reweighting kernels (results do not depend on it).
 
     Returns
     -------
     dict of str to ndarray
+
     """
     import numba
 
@@ -138,16 +144,26 @@ def compute_task(plan: Plan, task: Task, threads: int | None = None) -> dict:
         numba.set_num_threads(max(1, min(int(threads), numba.config.NUMBA_NUM_THREADS)))
     try:
         while chunk > 0:
-            _, rec = simulate(stack, chunk, seed=task.seed, threads=threads, first_photon=n_done,
-                              ring_edges_mm=plan.ring_edges_mm, records=True)
+            _, rec = simulate(
+                stack,
+                chunk,
+                seed=task.seed,
+                threads=threads,
+                first_photon=n_done,
+                ring_edges_mm=plan.ring_edges_mm,
+                records=True,
+            )
             parts.append(rec)
             n_done += chunk
             records = parts[0] if len(parts) == 1 else PhotonRecords.concatenate(parts)
             rw = factored_reweight(records, mu_a, sub_shape, plan.ring_edges_mm)
             a, e = rw["diffuse_reflectance"], rw["diffuse_reflectance_stderr"]
             worst = float(np.max(np.where(a > 0, e / np.where(a > 0, a, 1.0), np.inf)))
-            chunk = 0 if target is None else next_photon_count(n_done, worst, target, spec.photons_per_band // 4 or 1,
-                                                                n_max)
+            chunk = (
+                0
+                if target is None
+                else next_photon_count(n_done, worst, target, spec.photons_per_band // 4 or 1, n_max)
+            )
     finally:
         numba.set_num_threads(old_threads)
     return {
@@ -197,7 +213,9 @@ def task_state(job: JobFolder, index: int) -> TaskState:
     if not out.exists():
         return TaskState(index, "corrupt", "output file missing")
     if out.stat().st_size != record.get("bytes") or sha256_file(out) != record.get("sha256"):
-        return TaskState(index, "corrupt", "output does not match its recorded SHA-256 (truncated or altered)")
+        return TaskState(
+            index, "corrupt", "output does not match its recorded SHA-256 (truncated or altered)"
+        )
     return TaskState(index, "done")
 
 
@@ -219,6 +237,7 @@ def run_task(job: JobFolder, index: int, *, threads: int | None = None, wait_s: 
     Parameters
     ----------
     job : JobFolder
+        The job folder.
     index : int
         0-based task index.
     threads : int, optional
@@ -231,6 +250,7 @@ def run_task(job: JobFolder, index: int, *, threads: int | None = None, wait_s: 
     -------
     str
         ``"done"`` if it was already finished, ``"computed"`` if this call computed it.
+
     """
     n = len(job.plan.tasks)
     if not (0 <= index < n):

@@ -23,7 +23,6 @@ from matgen.tables.build import build_table, merge_job, plan_job
 from matgen.tables.executors import run_job
 from matgen.tables.plan import JobFolder, task_seed
 from matgen.tables.spec import load_spec
-from matgen.tables.store import Table
 from matgen.tables.tasks import job_states, run_task
 
 SPEC = Path(str(resources.files("matgen.lut").joinpath("specs", "tiny.toml")))
@@ -44,8 +43,13 @@ def _npz_bytes(path):
 def test_reference_table_is_complete(reference):
     root, table = reference
     assert table.grid_shape == (5, 4, 3)
-    assert set(table.quantities) >= {"albedo_multiple", "albedo_multiple_stderr", "shape_distance_mm",
-                                     "rgb_albedo_multiple", "ior"}
+    assert set(table.quantities) >= {
+        "albedo_multiple",
+        "albedo_multiple_stderr",
+        "shape_distance_mm",
+        "rgb_albedo_multiple",
+        "ior",
+    }
     a = table.quantities["albedo_multiple"]
     assert np.all(np.isfinite(a)) and np.all((a > 0) & (a < 1))
     # more melanin, less reflectance at 450 nm (every blood / saturation node)
@@ -73,17 +77,34 @@ def test_local_pool_dask_and_farm_give_identical_tables(reference, tmp_path):
     assert _npz_bytes(tmp_path / "farm.npz") == ref
     # the task outputs themselves are identical too
     for i in range(n):
-        assert (jobdir / "tasks" / f"task-{i:05d}.npz").read_bytes() == \
-            (root / "t.job" / "tasks" / f"task-{i:05d}.npz").read_bytes()
+        assert (jobdir / "tasks" / f"task-{i:05d}.npz").read_bytes() == (
+            root / "t.job" / "tasks" / f"task-{i:05d}.npz"
+        ).read_bytes()
 
 
 def test_killed_build_resumes_to_the_same_table(reference, tmp_path):
     root, _ = reference
     out, jobdir = tmp_path / "k.npz", tmp_path / "k.job"
     env = dict(os.environ, PYTHONUNBUFFERED="1")
-    proc = subprocess.Popen([sys.executable, "-m", "matgen", "table", "build", str(SPEC), "--out", str(out),
-                             "--workers", "1", "--no-progress"], env=env, start_new_session=True,
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    proc = subprocess.Popen(
+        [
+            sys.executable,
+            "-m",
+            "matgen",
+            "table",
+            "build",
+            str(SPEC),
+            "--out",
+            str(out),
+            "--workers",
+            "1",
+            "--no-progress",
+        ],
+        env=env,
+        start_new_session=True,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
     lock = jobdir / "locks" / "task-00001.lock"
     deadline = time.monotonic() + 240
     try:
@@ -147,13 +168,27 @@ def test_job_folder_of_another_spec_or_version_is_refused(reference, tmp_path):
     from matgen.tables.plan import plan_from_dict
 
     plan = plan_from_dict(json.loads((root / "t.job" / "job.json").read_text()), "job.json")
-    old = type(plan)(plan.spec, plan.scattering_axes, plan.ring_edges_mm, plan.tasks, "0.0.1", plan.data_hashes,
-                     plan.source_hash)
+    old = type(plan)(
+        plan.spec,
+        plan.scattering_axes,
+        plan.ring_edges_mm,
+        plan.tasks,
+        "0.0.1",
+        plan.data_hashes,
+        plan.source_hash,
+    )
     (jobdir / "job.json").write_text(json.dumps(old.to_dict()))
     with pytest.raises(TableError, match="planned with matgen 0.0.1"):
         JobFolder.open(jobdir)
-    edited = type(plan)(plan.spec, plan.scattering_axes, plan.ring_edges_mm, plan.tasks, plan.code_version,
-                        plan.data_hashes, "0" * 64)
+    edited = type(plan)(
+        plan.spec,
+        plan.scattering_axes,
+        plan.ring_edges_mm,
+        plan.tasks,
+        plan.code_version,
+        plan.data_hashes,
+        "0" * 64,
+    )
     (jobdir / "job.json").write_text(json.dumps(edited.to_dict()))
     with pytest.raises(TableError, match="other matgen source code"):
         JobFolder.open(jobdir)
@@ -202,15 +237,19 @@ def test_interpolation_matches_fresh_transport_between_nodes(reference):
     spec = load_spec(SPEC)
     m = table.axes[0].values
     # cell middles (in log coordinates) on every axis: where linear interpolation errs most
-    points = np.array([[np.sqrt(m[0] * m[1]), np.sqrt(0.005 * 0.0125), 0.625],
-                       [np.sqrt(m[2] * m[3]), np.sqrt(0.0125 * 0.03), 0.875],
-                       [np.sqrt(m[3] * m[4]), np.sqrt(0.03 * 0.075), 0.6]])
+    points = np.array(
+        [
+            [np.sqrt(m[0] * m[1]), np.sqrt(0.005 * 0.0125), 0.625],
+            [np.sqrt(m[2] * m[3]), np.sqrt(0.0125 * 0.03), 0.875],
+            [np.sqrt(m[3] * m[4]), np.sqrt(0.03 * 0.075), 0.6],
+        ]
+    )
     looked, n_clamped = table.lookup(points, ["albedo_multiple", "albedo_multiple_stderr"])
     assert n_clamped == 0
     interp_err = table.interpolation_error(points, "albedo_multiple")
     base = base_parameters(spec)
     for p, pt in enumerate(points):
-        params = base.replace(**dict(zip(table.axis_names, pt)))
+        params = base.replace(**dict(zip(table.axis_names, pt, strict=True)))
         optics = skin_optics(params, spec.bands, packaging=spec.packaging)
         a = np.empty(len(spec.bands))
         e = np.empty(len(spec.bands))
@@ -238,8 +277,24 @@ def test_info_and_plot_commands(reference, tmp_path, capsys):
     assert main(["table", "info", str(path), "--max-rel-stderr", str(worst["value"] * 1.01)]) == 0
     assert main(["table", "info", str(path), "--max-rel-stderr", str(worst["value"] * 0.5)]) == 1
     png = tmp_path / "s.png"
-    assert main(["table", "plot", str(path), "--out", str(png), "--quantity", "albedo_multiple",
-                 "--band-nm", "550", "--at", "oxygen_saturation=0.75"]) == 0
+    assert (
+        main(
+            [
+                "table",
+                "plot",
+                str(path),
+                "--out",
+                str(png),
+                "--quantity",
+                "albedo_multiple",
+                "--band-nm",
+                "550",
+                "--at",
+                "oxygen_saturation=0.75",
+            ]
+        )
+        == 0
+    )
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert main(["table", "plot", str(path), "--out", str(png), "--x", "melanin"]) == 2
 
@@ -255,12 +310,16 @@ def test_run_task_twice_at_once_and_busy_status(reference, tmp_path):
     # two processes on the same task at the same time: both succeed, one computes, the other waits and finds
     # it done; the output equals the reference's
     cmd = [sys.executable, "-m", "matgen", "table", "run-task", str(jobdir), "2", "--threads", "1"]
-    procs = [subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for _ in range(2)]
+    procs = [
+        subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for _ in range(2)
+    ]
     outs = [p.communicate(timeout=300) for p in procs]
     assert [p.returncode for p in procs] == [0, 0], outs
     said = sorted(o[0].strip() for o in outs)
     assert said == ["task 2: computed", "task 2: done"], said
-    assert (jobdir / "tasks" / "task-00002.npz").read_bytes() == (root / "t.job" / "tasks" / "task-00002.npz").read_bytes()
+    assert (jobdir / "tasks" / "task-00002.npz").read_bytes() == (
+        root / "t.job" / "tasks" / "task-00002.npz"
+    ).read_bytes()
     # a live holder of the lock: --no-wait exits 75 (retry later)
     (jobdir / "tasks" / "task-00002.json").unlink()
     with FolderLock(jobdir / "locks", "task-00002.lock"):

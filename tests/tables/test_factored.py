@@ -17,7 +17,7 @@ def test_kernel_matches_python_twin():
     factored.segment_outer_sums_python(x_t, y, seg, b)
     np.testing.assert_allclose(a, b, rtol=1e-13)
     # direct definition
-    ref = np.stack([x_t[:, seg[s]:seg[s + 1]] @ y[seg[s]:seg[s + 1]] for s in range(4)])
+    ref = np.stack([x_t[:, seg[s] : seg[s + 1]] @ y[seg[s] : seg[s + 1]] for s in range(4)])
     np.testing.assert_allclose(a, ref, rtol=1e-12)
     assert np.all(a[1] == 0)
 
@@ -43,8 +43,15 @@ def records_and_sets():
     from matgen.transport.simulate import default_ring_edges_mm, simulate
     from matgen.transport.stack import Stack
 
-    stack = Stack(thickness_mm=[0.06, 0.3, 2.0], n=[1.4, 1.4, 1.4], mu_a=[0.2, 0.05, 0.02],
-                  mu_s=[30.0, 15.0, 10.0], g=[0.8, 0.8, 0.8], n_above=1.0, n_below=1.4)
+    stack = Stack(
+        thickness_mm=[0.06, 0.3, 2.0],
+        n=[1.4, 1.4, 1.4],
+        mu_a=[0.2, 0.05, 0.02],
+        mu_s=[30.0, 15.0, 10.0],
+        g=[0.8, 0.8, 0.8],
+        n_above=1.0,
+        n_below=1.4,
+    )
     _, rec = simulate(stack, 6000, seed=3, records=True)
     # grid 4 x 3: layer 0 varies with axis 0, layers 1-2 with axis 1
     m0 = np.array([0.2, 0.5, 1.5, 4.0])
@@ -60,14 +67,30 @@ def test_factored_matches_transport_reweight(records_and_sets, backend):
 
     rec, sets, rings = records_and_sets
     if backend == "python":  # the twin is slow: a short slice of the records
-        rec = type(rec)(**{k: getattr(rec, k)[:400] for k in
-                           ("path_mm", "weighted_path_mm", "exit_radius_mm", "exit_cos", "max_depth_mm", "weight",
-                            "side")}, meta=rec.meta)
+        rec = type(rec)(
+            **{
+                k: getattr(rec, k)[:400]
+                for k in (
+                    "path_mm",
+                    "weighted_path_mm",
+                    "exit_radius_mm",
+                    "exit_cos",
+                    "max_depth_mm",
+                    "weight",
+                    "side",
+                )
+            },
+            meta=rec.meta,
+        )
     f = factored.factored_reweight(rec, sets, (4, 3), rings, backend=backend)
     assert f["groups"]["group2_axes"] == [1]
     r = reweight(rec, sets, ring_edges_mm=rings)
-    for k in ("diffuse_reflectance", "diffuse_reflectance_stderr", "radial_reflectance_per_mm2",
-              "radial_stderr_per_mm2"):
+    for k in (
+        "diffuse_reflectance",
+        "diffuse_reflectance_stderr",
+        "radial_reflectance_per_mm2",
+        "radial_stderr_per_mm2",
+    ):
         np.testing.assert_allclose(f[k], getattr(r, k), rtol=1e-10, atol=1e-300, err_msg=k)
     # weight-averaged path of reflected light, checked against its definition
     refl = rec.side == 1

@@ -42,13 +42,22 @@ def test_spec_hash_changes_with_content_only():
 @pytest.mark.parametrize(
     "doc, message",
     [
-        (_doc(photons_per_bnd=5), "unknown key 'photons_per_bnd' in the top level; did you mean 'photons_per_band'"),
-        (_doc(bands={"start_nm": 500, "stop_nm": 520, "stepnm": 10}), "'stepnm' in \\[bands\\]; did you mean 'step_nm'"),
+        (
+            _doc(photons_per_bnd=5),
+            "unknown key 'photons_per_bnd' in the top level; did you mean 'photons_per_band'",
+        ),
+        (
+            _doc(bands={"start_nm": 500, "stop_nm": 520, "stepnm": 10}),
+            "'stepnm' in \\[bands\\]; did you mean 'step_nm'",
+        ),
         (_doc(axes={"melanin_fraction": {"spacng": "log", "values": [0.1, 0.2]}}), "did you mean 'spacing'"),
         (_doc(axes={"melanin_fraction": {"values": [0.1]}}), "at least 2 points"),
         (_doc(axes={"melanin_fraction": {"values": [0.1, 0.3, 0.2]}}), "increase strictly"),
         (_doc(axes={"melanin_fraction": {"start": 0.1, "stop": 0.2, "count": 1}}), "at least 2 points"),
-        (_doc(axes={"melanin_fraction": {"spacing": "log", "values": [0.0, 0.2]}}), "log axes need values > 0"),
+        (
+            _doc(axes={"melanin_fraction": {"spacing": "log", "values": [0.0, 0.2]}}),
+            "log axes need values > 0",
+        ),
         (_doc(axes={"melanin_fraction": {"spacing": "cubic", "values": [0.1, 0.2]}}), "spacing"),
         (_doc(seed=-1), "seed"),
         (_doc(photons_per_band=1.5), "whole number"),
@@ -73,8 +82,10 @@ def test_unknown_axis_name_suggests_field():
 
 def test_load_spec_file_and_toml_errors(tmp_path):
     p = tmp_path / "s.toml"
-    p.write_text('photons_per_band = 100\nseed = 1\n[bands]\ncentres_nm = [365.0, 550.0]\n'
-                 '[axes.melanin_fraction]\nvalues = [0.01, 0.1]\n')
+    p.write_text(
+        "photons_per_band = 100\nseed = 1\n[bands]\ncentres_nm = [365.0, 550.0]\n"
+        "[axes.melanin_fraction]\nvalues = [0.01, 0.1]\n"
+    )
     s = load_spec(p)
     assert s.source == "s.toml" and np.array_equal(s.bands.centre_nm, [365.0, 550.0])
     p.write_text("photons_per_band = = 3\n")

@@ -83,7 +83,9 @@ def test_numba_kernel_matches_python_twin():
     assert ca.any() and not ca.all()
     # both accumulate in float64 in the same order and round once to float32
     np.testing.assert_allclose(a, b, rtol=0, atol=1e-6)
-    nodes = np.array([[coords[i][j[i]] for i in range(4)] for j in itertools.product(*[range(c.size) for c in coords])])
+    nodes = np.array(
+        [[coords[i][j[i]] for i in range(4)] for j in itertools.product(*[range(c.size) for c in coords])]
+    )
     for backend in ("numba", "python"):
         out, _ = interpolate.multilinear(coords, values, nodes, backend=backend)
         assert np.array_equal(out, values.reshape(-1, 6))
