@@ -114,8 +114,8 @@ def source_hash() -> str:
     The package version alone does not change when the transport, tissue model or fits are edited between
     releases; this hash does, so a job folder planned with other code (or other shipped data, such as the fit
     stage's inversion tables) is refused instead of being merged with mixed results. Covered: the ``.py``
-    files of the spectra, tissue, transport, color, fit and tables stages (except reporting, benchmarking and
-    scheduling modules), their ``data/`` folders, and the top-level constants, units, provenance and limits.
+    files of the spectra, tissue, transport, color, fit and tables stages (except reporting, benchmark and
+    scheduling modules: every ``bench.py`` and the tables' report, executors and build modules), their ``data/`` folders, and the top-level constants, units, provenance and limits.
     Computed once per process (the code a process runs is the code it imported).
     """
     import hashlib
@@ -134,7 +134,7 @@ def source_hash() -> str:
     h = hashlib.sha256()
     for p in sorted(files, key=lambda q: q.relative_to(root).as_posix()):
         rel = p.relative_to(root).as_posix()
-        if rel in _RESULT_NEUTRAL or not p.is_file():
+        if rel in _RESULT_NEUTRAL or p.name == "bench.py" or not p.is_file():
             continue
         h.update(rel.encode() + b"\0" + hashlib.sha256(p.read_bytes()).digest())
     return h.hexdigest()
