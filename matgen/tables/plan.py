@@ -115,8 +115,9 @@ def source_hash() -> str:
     releases; this hash does, so a job folder planned with other code (or other shipped data, such as the fit
     stage's inversion tables) is refused instead of being merged with mixed results. Covered: the ``.py``
     files of the spectra, tissue, transport, color, fit and tables stages (except reporting, benchmark and
-    scheduling modules: every ``bench.py`` and the tables' report, executors and build modules), their ``data/`` folders, and the top-level constants, units, provenance and limits.
-    Computed once per process (the code a process runs is the code it imported).
+    scheduling modules: every ``bench.py`` and the tables' report, executors and build modules), their
+    ``data/`` folders, and the top-level constants, units, provenance and limits. Computed once per process
+    (the code a process runs is the code it imported).
     """
     import hashlib
 
