@@ -31,15 +31,24 @@ def register(sub):
         "transmittance and absorption with standard errors",
         "matgen simulate stack.json --photons 100000 --seed 1 --json --profile",
     )
-    p.add_argument("stack", metavar="STACK.json", help="layer stack file (see matgen.cli.simulate for the layout)")
+    p.add_argument(
+        "stack", metavar="STACK.json", help="layer stack file (see matgen.cli.simulate for the layout)"
+    )
     p.add_argument("--photons", type=int, default=100_000, help="photon packets per band")
     p.add_argument("--seed", type=int, default=0, help="run seed (same seed, same tallies on any machine)")
     p.add_argument("--threads", type=int, default=None, help="threads (default: all cores)")
-    p.add_argument("--incidence-deg", type=float, default=0.0,
-                   help="angle of the collimated beam to the surface normal, degrees in [0, 90)")
+    p.add_argument(
+        "--incidence-deg",
+        type=float,
+        default=0.0,
+        help="angle of the collimated beam to the surface normal, degrees in [0, 90)",
+    )
     p.add_argument("--json", action="store_true", help="print JSON instead of a table")
-    p.add_argument("--profile", action="store_true",
-                   help="include the radial profile (mm^-2) and exit-angle distribution (sr^-1) in the JSON")
+    p.add_argument(
+        "--profile",
+        action="store_true",
+        help="include the radial profile (mm^-2) and exit-angle distribution (sr^-1) in the JSON",
+    )
     p.set_defaults(func=run)
 
 
@@ -62,10 +71,17 @@ def load_stacks(path):
         raise StackError(f"stack file '{path}': 'layers' must be a non-empty list of layer objects")
     waves = doc.get("wavelength_nm")
     if waves is not None:
-        if not isinstance(waves, list) or not waves or not all(
+        if (
+            not isinstance(waves, list)
+            or not waves
+            or not all(
                 isinstance(w, (int, float)) and not isinstance(w, bool) and math.isfinite(w) and w > 0
-                for w in waves):
-            raise ConfigError(f"stack file '{path}': 'wavelength_nm' must be a non-empty list of positive numbers")
+                for w in waves
+            )
+        ):
+            raise ConfigError(
+                f"stack file '{path}': 'wavelength_nm' must be a non-empty list of positive numbers"
+            )
     n_bands = 1 if waves is None else len(waves)
     columns = {k: [] for k in ("thickness_mm", *_PER_BAND)}
     names = []
@@ -74,8 +90,10 @@ def load_stacks(path):
             raise StackError(f"stack file '{path}': layer {i} is not a JSON object")
         unknown = set(layer) - _LAYER_KEYS
         if unknown:
-            raise ConfigError(f"stack file '{path}': layer {i} has unknown keys {sorted(unknown)}; "
-                              f"allowed {sorted(_LAYER_KEYS)}")
+            raise ConfigError(
+                f"stack file '{path}': layer {i} has unknown keys {sorted(unknown)}; "
+                f"allowed {sorted(_LAYER_KEYS)}"
+            )
         for key in ("thickness_mm", *_PER_BAND):
             if key not in layer:
                 raise StackError(f"stack file '{path}': layer {i} lacks '{key}'")
@@ -89,7 +107,9 @@ def load_stacks(path):
                 vals = [v] * n_bands
             for val in vals:
                 if isinstance(val, bool) or not isinstance(val, (int, float)):
-                    raise StackError(f"stack file '{path}': layer {i} field '{key}' holds {val!r}, not a number")
+                    raise StackError(
+                        f"stack file '{path}': layer {i} field '{key}' holds {val!r}, not a number"
+                    )
             columns[key].append(vals)
         names.append(str(layer.get("name", f"layer {i}")))
     out = []
@@ -97,9 +117,14 @@ def load_stacks(path):
         where = f"stack file '{path}'" + ("" if waves is None else f", band {b} ({waves[b]} nm)")
         try:
             stack = Stack(
-                [c[b] for c in columns["thickness_mm"]], [c[b] for c in columns["n"]],
-                [c[b] for c in columns["mu_a"]], [c[b] for c in columns["mu_s"]], [c[b] for c in columns["g"]],
-                doc.get("n_above", 1.0), doc.get("n_below", 1.0), tuple(names),
+                [c[b] for c in columns["thickness_mm"]],
+                [c[b] for c in columns["n"]],
+                [c[b] for c in columns["mu_a"]],
+                [c[b] for c in columns["mu_s"]],
+                [c[b] for c in columns["g"]],
+                doc.get("n_above", 1.0),
+                doc.get("n_below", 1.0),
+                tuple(names),
             )
         except StackError as exc:
             raise StackError(f"{where}: {exc}") from None

@@ -32,19 +32,43 @@ def benchmark_stacks() -> dict[str, Stack]:
     n = [1.55, 1.40, 1.40, 1.40, 1.44]
     names = ("stratum corneum", "epidermis", "papillary dermis", "reticular dermis", "hypodermis")
     return {
-        "550 nm": Stack(d, n, [0.5, 1.5, 0.2, 0.1, 0.1], [40, 30, 20, 18, 12], [0.90, 0.80, 0.85, 0.85, 0.90],
-                        1.0, 1.40, names),
-        "800 nm": Stack(d, n, [0.2, 0.3, 0.03, 0.03, 0.03], [20, 15, 12, 11, 10], [0.90, 0.85, 0.90, 0.90, 0.90],
-                        1.0, 1.40, names),
+        "550 nm": Stack(
+            d,
+            n,
+            [0.5, 1.5, 0.2, 0.1, 0.1],
+            [40, 30, 20, 18, 12],
+            [0.90, 0.80, 0.85, 0.85, 0.90],
+            1.0,
+            1.40,
+            names,
+        ),
+        "800 nm": Stack(
+            d,
+            n,
+            [0.2, 0.3, 0.03, 0.03, 0.03],
+            [20, 15, 12, 11, 10],
+            [0.90, 0.85, 0.90, 0.90, 0.90],
+            1.0,
+            1.40,
+            names,
+        ),
         "matched slab": Stack([0.2], [1.0], [1.0], [9.0], [0.75]),
     }
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("--photons", type=int, default=200_000,
-                        help="photons per run on the benchmark stack (the matched slab runs 20x as many)")
-    parser.add_argument("--sets", type=int, default=64, help="absorption sets for the reweighting measurement")
-    parser.add_argument("--repeats", type=int, default=3, help="runs per configuration (the best is reported)")
+    parser.add_argument(
+        "--photons",
+        type=int,
+        default=200_000,
+        help="photons per run on the benchmark stack (the matched slab runs 20x as many)",
+    )
+    parser.add_argument(
+        "--sets", type=int, default=64, help="absorption sets for the reweighting measurement"
+    )
+    parser.add_argument(
+        "--repeats", type=int, default=3, help="runs per configuration (the best is reported)"
+    )
     parser.add_argument("--seed", type=int, default=1, help="seed of every run")
 
 
@@ -75,7 +99,8 @@ def measure(photons: int = 200_000, sets: int = 64, repeats: int = 3, seed: int 
         row = {"photons": n}
         for t in thread_counts:
             row[f"photons_per_second_{t}t"], row[f"photons_per_cpu_second_{t}t"] = _best_rate(
-                stack, n, seed, t, repeats)
+                stack, n, seed, t, repeats
+            )
         row["ratio_to_c_per_cpu_second"] = row["photons_per_cpu_second_1t"] / C_REFERENCE[name]
         row["ratio_to_c_per_core_1t"] = row["photons_per_second_1t"] / C_REFERENCE[name]
         if 2 in thread_counts:
@@ -105,11 +130,16 @@ def measure(photons: int = 200_000, sets: int = 64, repeats: int = 3, seed: int 
         best_cpu = min(best_cpu, time.process_time() - c0)
     per_set = best / mu.shape[0]
     per_set_cpu = best_cpu / mu.shape[0]
-    out["reweighting"] = {"photons": photons, "sets": int(mu.shape[0]), "threads": threads,
-                          "direct_run_s": t_direct, "seconds_per_set": per_set,
-                          "direct_over_reweight_per_set": t_direct / per_set,
-                          "direct_over_reweight_per_set_cpu": c_direct / per_set_cpu if per_set_cpu > 0 else 0.0,
-                          "record_bytes": rec.nbytes}
+    out["reweighting"] = {
+        "photons": photons,
+        "sets": int(mu.shape[0]),
+        "threads": threads,
+        "direct_run_s": t_direct,
+        "seconds_per_set": per_set,
+        "direct_over_reweight_per_set": t_direct / per_set,
+        "direct_over_reweight_per_set_cpu": c_direct / per_set_cpu if per_set_cpu > 0 else 0.0,
+        "record_bytes": rec.nbytes,
+    }
     return out
 
 
@@ -119,28 +149,42 @@ def run(args) -> int:
     check_photons(args.photons)
     res = measure(args.photons, args.sets, args.repeats, args.seed)
     nan = float("nan")
-    print(f"transport benchmark (numba threads available: {res['threads_available']}; best of {args.repeats})")
+    print(
+        f"transport benchmark (numba threads available: {res['threads_available']}; best of {args.repeats})"
+    )
     print("wall clock (photons per second of elapsed time; meaningful on an otherwise idle machine):")
-    print(f"  {'configuration':<14s} {'photons':>9s} {'1 thread':>10s} {'2 threads':>10s} {'x C 1t':>7s} "
-          f"{'x C/core 2t':>12s} {'2t/1t':>6s} {'of cap 1t':>10s}")
+    print(
+        f"  {'configuration':<14s} {'photons':>9s} {'1 thread':>10s} {'2 threads':>10s} {'x C 1t':>7s} "
+        f"{'x C/core 2t':>12s} {'2t/1t':>6s} {'of cap 1t':>10s}"
+    )
     for name, row in res["configurations"].items():
-        print(f"  {name:<14s} {row['photons']:>9d} {row['photons_per_second_1t']:>10.0f} "
-              f"{row.get('photons_per_second_2t', nan):>10.0f} {row['ratio_to_c_per_core_1t']:>7.2f} "
-              f"{row.get('ratio_to_c_per_core_2t', nan):>12.2f} {row.get('scaling_2t_over_1t', nan):>6.2f} "
-              f"{row.get('fraction_of_cap_1t', nan):>10.2f}")
+        print(
+            f"  {name:<14s} {row['photons']:>9d} {row['photons_per_second_1t']:>10.0f} "
+            f"{row.get('photons_per_second_2t', nan):>10.0f} {row['ratio_to_c_per_core_1t']:>7.2f} "
+            f"{row.get('ratio_to_c_per_core_2t', nan):>12.2f} {row.get('scaling_2t_over_1t', nan):>6.2f} "
+            f"{row.get('fraction_of_cap_1t', nan):>10.2f}"
+        )
     print("CPU time (photons per CPU second of all threads; robust to other load on a shared machine):")
-    print(f"  {'configuration':<14s} {'1 thread':>10s} {'2 threads':>10s} {'x C':>7s} {'of cap':>7s} "
-          f"{'2t/1t efficiency':>17s}")
+    print(
+        f"  {'configuration':<14s} {'1 thread':>10s} {'2 threads':>10s} {'x C':>7s} {'of cap':>7s} "
+        f"{'2t/1t efficiency':>17s}"
+    )
     for name, row in res["configurations"].items():
         eff = row.get("photons_per_cpu_second_2t", nan) / row["photons_per_cpu_second_1t"]
-        print(f"  {name:<14s} {row['photons_per_cpu_second_1t']:>10.0f} {row.get('photons_per_cpu_second_2t', nan):>10.0f} "
-              f"{row['ratio_to_c_per_cpu_second']:>7.2f} {row.get('fraction_of_cap_per_cpu_second', nan):>7.2f} "
-              f"{eff:>17.2f}")
+        print(
+            f"  {name:<14s} {row['photons_per_cpu_second_1t']:>10.0f} {row.get('photons_per_cpu_second_2t', nan):>10.0f} "
+            f"{row['ratio_to_c_per_cpu_second']:>7.2f} {row.get('fraction_of_cap_per_cpu_second', nan):>7.2f} "
+            f"{eff:>17.2f}"
+        )
     rw = res["reweighting"]
-    print(f"reweighting: {rw['sets']} absorption sets of {rw['photons']} photons ({rw['threads']} threads): "
-          f"{rw['seconds_per_set'] * 1e3:.2f} ms per set vs {rw['direct_run_s']:.2f} s for the direct run with "
-          f"records: {rw['direct_over_reweight_per_set']:.0f}x cheaper by wall clock, "
-          f"{rw['direct_over_reweight_per_set_cpu']:.0f}x by CPU time; records {rw['record_bytes'] / 1e6:.1f} MB")
-    print("reference figures per core: C layered Monte Carlo 28,000 / 38,500 photons/s (550 / 800 nm) and "
-          "2.3 M photons/s (matched slab); cap 65,000 / 85,000 photons/s")
+    print(
+        f"reweighting: {rw['sets']} absorption sets of {rw['photons']} photons ({rw['threads']} threads): "
+        f"{rw['seconds_per_set'] * 1e3:.2f} ms per set vs {rw['direct_run_s']:.2f} s for the direct run with "
+        f"records: {rw['direct_over_reweight_per_set']:.0f}x cheaper by wall clock, "
+        f"{rw['direct_over_reweight_per_set_cpu']:.0f}x by CPU time; records {rw['record_bytes'] / 1e6:.1f} MB"
+    )
+    print(
+        "reference figures per core: C layered Monte Carlo 28,000 / 38,500 photons/s (550 / 800 nm) and "
+        "2.3 M photons/s (matched slab); cap 65,000 / 85,000 photons/s"
+    )
     return 0

@@ -30,6 +30,7 @@ def fresnel(n_i, n_t, cos_i):
     (float, float)
         Reflectance in [0, 1] and the cosine of the refraction angle (0 under total internal reflection).
         Source: BornWolf1999 sec. 1.5.2.
+
     """
     if n_i == n_t:
         return 0.0, cos_i

@@ -138,6 +138,7 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
     Hot-loop form: the current layer's constants live in locals (reloaded when the packet changes layer),
     the boundary test compares ``tau |uz| < mu_s * distance`` without a division, and the azimuth comes
     from a rejection sampler (no trigonometric call).
+
     """
     n_layers = lay.shape[0]
     for j in range(n_layers):
@@ -293,7 +294,9 @@ def _tally_photon(row, side, w, x, y, cos_exit, zmax, absorbed, ring_edges, cos_
 
 
 @njit(cache=True, parallel=True)
-def run_tallies(lay, w0, ux0, uz0, seed, first_photon, n_photons, n_chunks, ring_edges, cos_edges, inv_depth_mm):
+def run_tallies(
+    lay, w0, ux0, uz0, seed, first_photon, n_photons, n_chunks, ring_edges, cos_edges, inv_depth_mm
+):
     """Trace photons ``first_photon .. first_photon + n_photons - 1`` and return the integer tally vector.
 
     Chunks run in parallel (prange); each photon's stream depends only on (seed, global index).
@@ -316,8 +319,26 @@ def run_tallies(lay, w0, ux0, uz0, seed, first_photon, n_photons, n_chunks, ring
 
 
 @njit(cache=True, parallel=True)
-def run_tallies_records(lay, w0, ux0, uz0, seed, first_photon, n_photons, n_chunks, ring_edges, cos_edges,
-                        inv_depth_mm, rec_path, rec_wpath, rec_radius, rec_cos, rec_depth, rec_weight, rec_side):
+def run_tallies_records(
+    lay,
+    w0,
+    ux0,
+    uz0,
+    seed,
+    first_photon,
+    n_photons,
+    n_chunks,
+    ring_edges,
+    cos_edges,
+    inv_depth_mm,
+    rec_path,
+    rec_wpath,
+    rec_radius,
+    rec_cos,
+    rec_depth,
+    rec_weight,
+    rec_side,
+):
     """As :func:`run_tallies`, and store each photon's record at its local index (arrays of length n_photons)."""
     n_layers = lay.shape[0]
     size = N_SCALAR_TALLIES + 2 * n_layers + 2 * (ring_edges.size - 1) + 2 * (cos_edges.size - 1)

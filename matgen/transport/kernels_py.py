@@ -199,16 +199,34 @@ def _bin(edges, v: float) -> int:
     return m - 1
 
 
-def run_tallies(lay: np.ndarray, w0, ux0, uz0, seed, first_photon, n_photons, ring_edges, cos_edges,
-                inv_depth_mm, records: bool = False):
+def run_tallies(
+    lay: np.ndarray,
+    w0,
+    ux0,
+    uz0,
+    seed,
+    first_photon,
+    n_photons,
+    ring_edges,
+    cos_edges,
+    inv_depth_mm,
+    records: bool = False,
+):
     """Twin of :func:`matgen.transport.kernels.run_tallies` (and, with records, of ``run_tallies_records``).
 
     Returns the int64 tally vector, and with ``records`` a dict of per-photon record arrays.
     """
     layers = [
-        {"z_top": float(r[K.Z_TOP]), "z_bot": float(r[K.Z_BOT]), "n": float(r[K.N_LAYER]),
-         "n_up": float(r[K.N_UP]), "n_down": float(r[K.N_DOWN]), "mu_a": float(r[K.MU_A]),
-         "mu_s": float(r[K.MU_S]), "g": float(r[K.G])}
+        {
+            "z_top": float(r[K.Z_TOP]),
+            "z_bot": float(r[K.Z_BOT]),
+            "n": float(r[K.N_LAYER]),
+            "n_up": float(r[K.N_UP]),
+            "n_down": float(r[K.N_DOWN]),
+            "mu_a": float(r[K.MU_A]),
+            "mu_s": float(r[K.MU_S]),
+            "g": float(r[K.G]),
+        }
         for r in np.asarray(lay)
     ]
     nl = len(layers)
@@ -217,8 +235,15 @@ def run_tallies(lay: np.ndarray, w0, ux0, uz0, seed, first_photon, n_photons, ri
     nr, nc = len(ring_edges) - 1, len(cos_edges) - 1
     layout = K.tally_layout(nl, nr, nc)
     tally = [0] * layout["size"]
-    recs = {"path_mm": [], "weighted_path_mm": [], "exit_radius_mm": [], "exit_cos": [], "max_depth_mm": [],
-            "weight": [], "side": []}
+    recs = {
+        "path_mm": [],
+        "weighted_path_mm": [],
+        "exit_radius_mm": [],
+        "exit_cos": [],
+        "max_depth_mm": [],
+        "weight": [],
+        "side": [],
+    }
     for i in range(n_photons):
         stream = PhotonStream(int(seed), int(first_photon) + i)
         side, w, x, y, cexit, zmax, path, absorbed, wpath = trace(stream, layers, w0, ux0, uz0)
@@ -251,8 +276,11 @@ def run_tallies(lay: np.ndarray, w0, ux0, uz0, seed, first_photon, n_photons, ri
         if records:
             recs["path_mm"].append(path)
             recs["weighted_path_mm"].append(
-                [absorbed[j] / (layers[j]["mu_a"] * w0) if layers[j]["mu_a"] > 0.0 else wpath[j] / w0
-                 for j in range(nl)])
+                [
+                    absorbed[j] / (layers[j]["mu_a"] * w0) if layers[j]["mu_a"] > 0.0 else wpath[j] / w0
+                    for j in range(nl)
+                ]
+            )
             recs["exit_radius_mm"].append(math.sqrt(x * x + y * y))
             recs["exit_cos"].append(cexit)
             recs["max_depth_mm"].append(zmax)

@@ -32,6 +32,7 @@ def hg_eval_per_sr(mu, g):
     -------
     float or ndarray
         p(mu) in sr^-1. Source: HenyeyGreenstein1941.
+
     """
     mu = np.asarray(mu, dtype=np.float64)
     return (1.0 - g * g) / (4.0 * np.pi * (1.0 + g * g - 2.0 * g * mu) ** 1.5)

@@ -54,6 +54,7 @@ class PhotonRecords:
         ``stack`` (the reference stack as :meth:`Stack.to_dict`), ``mu_a_ref`` (1/mm, L values),
         ``seed``, ``first_photon``, ``photons``, ``incidence_cos``, ``specular_reflectance``,
         ``launch_weight``, ``depth_scale_mm``.
+
     """
 
     path_mm: np.ndarray
@@ -103,7 +104,9 @@ class PhotonRecords:
         except (OSError, KeyError, ValueError, zipfile.BadZipFile, EOFError) as exc:
             raise DataError(f"photon records file '{p}' cannot be read: {exc}") from exc
         if meta.get("format") != _FORMAT:
-            raise DataError(f"photon records file '{p}' has format {meta.get('format')!r}, expected {_FORMAT}")
+            raise DataError(
+                f"photon records file '{p}' has format {meta.get('format')!r}, expected {_FORMAT}"
+            )
         meta.pop("format")
         rec = cls(meta=meta, **arrays)
         rec._check(str(p))
@@ -114,7 +117,9 @@ class PhotonRecords:
         if self.path_mm.ndim != 2 or self.path_mm.shape[0] != n:
             raise DataError(f"photon records {where}: path_mm has shape {self.path_mm.shape} for {n} photons")
         if self.weighted_path_mm.shape != self.path_mm.shape:
-            raise DataError(f"photon records {where}: weighted_path_mm has shape {self.weighted_path_mm.shape}")
+            raise DataError(
+                f"photon records {where}: weighted_path_mm has shape {self.weighted_path_mm.shape}"
+            )
         for a in _ARRAYS[2:]:
             if getattr(self, a).shape != (n,):
                 raise DataError(f"photon records {where}: field '{a}' has shape {getattr(self, a).shape}")
@@ -135,8 +140,10 @@ class PhotonRecords:
         for i, p in enumerate(parts[1:], start=1):
             for k in keys:
                 if p.meta.get(k) != first.meta.get(k):
-                    raise ParameterError(f"photon records part {i} differs from part 0 in '{k}'; "
-                                         "only records of the same stack, absorption, seed and launch join")
+                    raise ParameterError(
+                        f"photon records part {i} differs from part 0 in '{k}'; "
+                        "only records of the same stack, absorption, seed and launch join"
+                    )
         arrays = {a: np.concatenate([getattr(p, a) for p in parts]) for a in _ARRAYS}
         meta = dict(first.meta)
         meta["photons"] = int(arrays["weight"].size)

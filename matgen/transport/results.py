@@ -66,6 +66,7 @@ class TransportResult:
         Throughput of the run that produced this result (0 where not measured).
     extra : dict
         Anything else (e.g. a wavelength, settings) to carry along.
+
     """
 
     photons: int

@@ -65,8 +65,9 @@ _NS = 7
 
 
 @njit(cache=True, parallel=True)
-def _reweight_kernel(path, wpath, weight, side, ring_bin, cos_bin, depth_frac, dmu_t, mu_t, launch_w, n_blocks,
-                     n_rings, n_cos):
+def _reweight_kernel(
+    path, wpath, weight, side, ring_bin, cos_bin, depth_frac, dmu_t, mu_t, launch_w, n_blocks, n_rings, n_cos
+):
     """Partial sums (n_blocks, Q, K) of every tally for K absorption sets; see the module docstring.
 
     Photon-major: each block of photons is read once and all K sets are applied to each photon in
@@ -191,7 +192,9 @@ class ReweightedResults:
         return TransportResult(
             photons=self.photons,
             specular_reflectance=Estimate(self.specular_reflectance, 0.0),
-            diffuse_reflectance=Estimate(float(self.diffuse_reflectance[k]), float(self.diffuse_reflectance_stderr[k])),
+            diffuse_reflectance=Estimate(
+                float(self.diffuse_reflectance[k]), float(self.diffuse_reflectance_stderr[k])
+            ),
             transmittance=Estimate(float(self.transmittance[k]), float(self.transmittance_stderr[k])),
             absorbed=self.absorbed[k].copy(),
             absorbed_stderr=self.absorbed_stderr[k].copy(),
@@ -201,8 +204,9 @@ class ReweightedResults:
             exit_cos_edges=self.exit_cos_edges,
             exit_angle_per_sr=self.exit_angle_per_sr[k].copy(),
             exit_angle_stderr_per_sr=self.exit_angle_stderr_per_sr[k].copy(),
-            mean_penetration_depth_mm=Estimate(float(self.mean_penetration_depth_mm[k]),
-                                               float(self.mean_penetration_depth_stderr_mm[k])),
+            mean_penetration_depth_mm=Estimate(
+                float(self.mean_penetration_depth_mm[k]), float(self.mean_penetration_depth_stderr_mm[k])
+            ),
             extra={"mu_a": self.mu_a_sets[k].tolist(), "reweighted": True, **self.extra},
         )
 
@@ -216,8 +220,9 @@ def _bins(edges: np.ndarray, values: np.ndarray, include_last: bool) -> np.ndarr
     return k.astype(np.int32)
 
 
-def reweight(records: PhotonRecords, mu_a_sets, *, ring_edges_mm=None, exit_cos_edges=None,
-             threads=None) -> ReweightedResults:
+def reweight(
+    records: PhotonRecords, mu_a_sets, *, ring_edges_mm=None, exit_cos_edges=None, threads=None
+) -> ReweightedResults:
     """Tallies for many absorption sets from the photon records of one reference run.
 
     Parameters
@@ -240,6 +245,7 @@ def reweight(records: PhotonRecords, mu_a_sets, *, ring_edges_mm=None, exit_cos_
     Notes
     -----
     Source: Graaff1993condensed, Alerstam2008white. Per-layer absorption is approximate (module docstring).
+
     """
     if not isinstance(records, PhotonRecords):
         raise ParameterError(f"reweight needs PhotonRecords, got {type(records).__name__}")
@@ -256,10 +262,12 @@ def reweight(records: PhotonRecords, mu_a_sets, *, ring_edges_mm=None, exit_cos_
     if bad.any():
         k, j = np.argwhere(bad)[0]
         raise ParameterError(f"mu_a_sets[{k}, {j}] (layer {j}) is {mu[k, j]} 1/mm; must be finite and >= 0")
-    rings = _check_edges(default_ring_edges_mm() if ring_edges_mm is None else ring_edges_mm,
-                         "ring_edges_mm", 0.0, None)
-    coss = _check_edges(default_exit_cos_edges() if exit_cos_edges is None else exit_cos_edges,
-                        "exit_cos_edges", 0.0, 1.0)
+    rings = _check_edges(
+        default_ring_edges_mm() if ring_edges_mm is None else ring_edges_mm, "ring_edges_mm", 0.0, None
+    )
+    coss = _check_edges(
+        default_exit_cos_edges() if exit_cos_edges is None else exit_cos_edges, "exit_cos_edges", 0.0, 1.0
+    )
     nthreads = resolve_threads(threads)
     n = records.photons
     meta = records.meta
@@ -276,11 +284,21 @@ def reweight(records: PhotonRecords, mu_a_sets, *, ring_edges_mm=None, exit_cos_
     numba.set_num_threads(nthreads)
     try:
         for s in range(0, mu.shape[0], SETS_PER_BATCH):
-            part = _reweight_kernel(records.path_mm, records.weighted_path_mm, records.weight, records.side,
-                                    ring_bin, cos_bin, depth_frac,
-                                    np.ascontiguousarray(dmu[s:s + SETS_PER_BATCH].T),
-                                    np.ascontiguousarray(mu[s:s + SETS_PER_BATCH].T), launch_w, n_blocks,
-                                    n_rings, n_cos)
+            part = _reweight_kernel(
+                records.path_mm,
+                records.weighted_path_mm,
+                records.weight,
+                records.side,
+                ring_bin,
+                cos_bin,
+                depth_frac,
+                np.ascontiguousarray(dmu[s : s + SETS_PER_BATCH].T),
+                np.ascontiguousarray(mu[s : s + SETS_PER_BATCH].T),
+                launch_w,
+                n_blocks,
+                n_rings,
+                n_cos,
+            )
             acc = np.zeros(part.shape[1:])
             for b in range(n_blocks):  # fixed order of blocks
                 acc += part[b]
@@ -292,22 +310,32 @@ def reweight(records: PhotonRecords, mu_a_sets, *, ring_edges_mm=None, exit_cos_
     rd, rd_e = mean_and_stderr(v[:, _RD], v[:, _RD2], n)
     tt, tt_e = mean_and_stderr(v[:, _TT], v[:, _TT2], n)
     o_abs = _NS
-    ab, ab_e = mean_and_stderr(v[:, o_abs:o_abs + L], v[:, o_abs + L:o_abs + 2 * L], n)
+    ab, ab_e = mean_and_stderr(v[:, o_abs : o_abs + L], v[:, o_abs + L : o_abs + 2 * L], n)
     o_ring = o_abs + 2 * L
-    ring, ring_e = mean_and_stderr(v[:, o_ring:o_ring + n_rings], v[:, o_ring + n_rings:o_ring + 2 * n_rings], n)
+    ring, ring_e = mean_and_stderr(
+        v[:, o_ring : o_ring + n_rings], v[:, o_ring + n_rings : o_ring + 2 * n_rings], n
+    )
     area = ring_areas_mm2(rings)
     o_cos = o_ring + 2 * n_rings
-    ang, ang_e = mean_and_stderr(v[:, o_cos:o_cos + n_cos], v[:, o_cos + n_cos:o_cos + 2 * n_cos], n)
+    ang, ang_e = mean_and_stderr(v[:, o_cos : o_cos + n_cos], v[:, o_cos + n_cos : o_cos + 2 * n_cos], n)
     psa = projected_solid_angle_sr(coss)
     depth, depth_e = ratio_and_stderr(v[:, _DA], v[:, _DA2], v[:, _DAW], v[:, _RD], v[:, _RD2], n)
     return ReweightedResults(
         mu_a_sets=mu,
-        diffuse_reflectance=rd, diffuse_reflectance_stderr=rd_e,
-        transmittance=tt, transmittance_stderr=tt_e,
-        radial_reflectance_per_mm2=ring / area, radial_stderr_per_mm2=ring_e / area, ring_edges_mm=rings,
-        absorbed=ab, absorbed_stderr=ab_e,
-        exit_angle_per_sr=ang / psa, exit_angle_stderr_per_sr=ang_e / psa, exit_cos_edges=coss,
-        mean_penetration_depth_mm=depth * depth_scale, mean_penetration_depth_stderr_mm=depth_e * depth_scale,
+        diffuse_reflectance=rd,
+        diffuse_reflectance_stderr=rd_e,
+        transmittance=tt,
+        transmittance_stderr=tt_e,
+        radial_reflectance_per_mm2=ring / area,
+        radial_stderr_per_mm2=ring_e / area,
+        ring_edges_mm=rings,
+        absorbed=ab,
+        absorbed_stderr=ab_e,
+        exit_angle_per_sr=ang / psa,
+        exit_angle_stderr_per_sr=ang_e / psa,
+        exit_cos_edges=coss,
+        mean_penetration_depth_mm=depth * depth_scale,
+        mean_penetration_depth_stderr_mm=depth_e * depth_scale,
         specular_reflectance=float(meta["specular_reflectance"]),
         photons=n,
         extra={"seed": meta.get("seed"), "mu_a_ref": list(meta["mu_a_ref"])},

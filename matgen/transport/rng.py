@@ -74,7 +74,6 @@ def next_u64(s0, s1):
     return result, s0, s1
 
 
-
 @njit(cache=True, inline="always")
 def uniform(s0, s1):
     """Uniform double in [0, 1) and the advanced state: returns (u, s0, s1)."""

@@ -117,8 +117,18 @@ def launch(stack: Stack, incidence_cos: float):
     return float(r_sp), 1.0 - float(r_sp), float(ux0), float(uz0)
 
 
-def simulate(stack, photons, seed=0, *, threads=None, first_photon=0, ring_edges_mm=None,
-             exit_cos_edges=None, incidence_cos=1.0, records=False):
+def simulate(
+    stack,
+    photons,
+    seed=0,
+    *,
+    threads=None,
+    first_photon=0,
+    ring_edges_mm=None,
+    exit_cos_edges=None,
+    incidence_cos=1.0,
+    records=False,
+):
     """Run the layered Monte Carlo on one stack (one band).
 
     Parameters
@@ -154,20 +164,25 @@ def simulate(stack, photons, seed=0, *, threads=None, first_photon=0, ring_edges
     Notes
     -----
     Source: Wang1995mcml (layered Monte Carlo), Alerstam2008white (continuous absorption weighting).
+
     """
     if not isinstance(stack, Stack):
         raise StackError(f"simulate needs a matgen.transport.stack.Stack, got {type(stack).__name__}")
     n = limits.check_photons(photons)
     if n > FIXED_POINT_PHOTON_CEILING:
-        raise LimitError(f"the photon count {n} exceeds {FIXED_POINT_PHOTON_CEILING}, the most one run's "
-                         "fixed-point tallies hold exactly; split the run with first_photon and combine()")
+        raise LimitError(
+            f"the photon count {n} exceeds {FIXED_POINT_PHOTON_CEILING}, the most one run's "
+            "fixed-point tallies hold exactly; split the run with first_photon and combine()"
+        )
     seed = _check_int(seed, "seed", 0, 2**64 - 1)
     first = _check_int(first_photon, "first_photon", 0, 2**62)
     nthreads = resolve_threads(threads)
-    rings = _check_edges(default_ring_edges_mm() if ring_edges_mm is None else ring_edges_mm,
-                         "ring_edges_mm", 0.0, None)
-    coss = _check_edges(default_exit_cos_edges() if exit_cos_edges is None else exit_cos_edges,
-                        "exit_cos_edges", 0.0, 1.0)
+    rings = _check_edges(
+        default_ring_edges_mm() if ring_edges_mm is None else ring_edges_mm, "ring_edges_mm", 0.0, None
+    )
+    coss = _check_edges(
+        default_exit_cos_edges() if exit_cos_edges is None else exit_cos_edges, "exit_cos_edges", 0.0, 1.0
+    )
     try:
         cos_i = float(incidence_cos)
     except (TypeError, ValueError):
@@ -182,7 +197,9 @@ def simulate(stack, photons, seed=0, *, threads=None, first_photon=0, ring_edges
     numba.set_num_threads(nthreads)
     try:
         t0 = time.perf_counter()
-        with np.errstate(over="ignore"):  # only matters with NUMBA_DISABLE_JIT: uint64 wrap-around is intended
+        with np.errstate(
+            over="ignore"
+        ):  # only matters with NUMBA_DISABLE_JIT: uint64 wrap-around is intended
             if records:
                 L = stack.n_layers
                 rec = PhotonRecords(
@@ -194,19 +211,45 @@ def simulate(stack, photons, seed=0, *, threads=None, first_photon=0, ring_edges
                     weight=np.empty(n, dtype=np.float32),
                     side=np.empty(n, dtype=np.uint8),
                 )
-                tally = K.run_tallies_records(lay, w0, ux0, uz0, np.uint64(seed), first, n, n_chunks, rings,
-                                              coss, 1.0 / depth_scale, rec.path_mm, rec.weighted_path_mm,
-                                              rec.exit_radius_mm,
-                                              rec.exit_cos, rec.max_depth_mm, rec.weight, rec.side)
+                tally = K.run_tallies_records(
+                    lay,
+                    w0,
+                    ux0,
+                    uz0,
+                    np.uint64(seed),
+                    first,
+                    n,
+                    n_chunks,
+                    rings,
+                    coss,
+                    1.0 / depth_scale,
+                    rec.path_mm,
+                    rec.weighted_path_mm,
+                    rec.exit_radius_mm,
+                    rec.exit_cos,
+                    rec.max_depth_mm,
+                    rec.weight,
+                    rec.side,
+                )
             else:
-                tally = K.run_tallies(lay, w0, ux0, uz0, np.uint64(seed), first, n, n_chunks, rings, coss,
-                                      1.0 / depth_scale)
+                tally = K.run_tallies(
+                    lay, w0, ux0, uz0, np.uint64(seed), first, n, n_chunks, rings, coss, 1.0 / depth_scale
+                )
         elapsed = time.perf_counter() - t0
     finally:
         numba.set_num_threads(old_threads)
     extra = {"seed": seed, "first_photon": first, "incidence_cos": cos_i, "tally_fixed_point": tally}
-    result = result_from_tallies(tally, n, stack.n_layers, rings, coss, r_sp, depth_scale, extra=extra,
-                                 photons_per_second=n / elapsed if elapsed > 0 else 0.0)
+    result = result_from_tallies(
+        tally,
+        n,
+        stack.n_layers,
+        rings,
+        coss,
+        r_sp,
+        depth_scale,
+        extra=extra,
+        photons_per_second=n / elapsed if elapsed > 0 else 0.0,
+    )
     if not records:
         return result
     rec.meta = {
@@ -235,7 +278,19 @@ def combine(results, stack: Stack) -> TransportResult:
     n = sum(r.photons for r in results)
     first = results[0]
     depth_scale = stack.total_thickness_mm
-    extra = {"seed": first.extra.get("seed"), "first_photon": min(r.extra.get("first_photon", 0) for r in results),
-             "incidence_cos": first.extra.get("incidence_cos"), "tally_fixed_point": tally}
-    return result_from_tallies(tally, n, stack.n_layers, first.ring_edges_mm, first.exit_cos_edges,
-                               first.specular_reflectance.value, depth_scale, extra=extra)
+    extra = {
+        "seed": first.extra.get("seed"),
+        "first_photon": min(r.extra.get("first_photon", 0) for r in results),
+        "incidence_cos": first.extra.get("incidence_cos"),
+        "tally_fixed_point": tally,
+    }
+    return result_from_tallies(
+        tally,
+        n,
+        stack.n_layers,
+        first.ring_edges_mm,
+        first.exit_cos_edges,
+        first.specular_reflectance.value,
+        depth_scale,
+        extra=extra,
+    )

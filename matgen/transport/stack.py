@@ -37,6 +37,7 @@ class Stack:
         Refractive indices of the ambient media above and below the stack, each >= 1.
     names : tuple of str
         Layer names for messages (defaults to "layer 0", ...).
+
     """
 
     thickness_mm: np.ndarray

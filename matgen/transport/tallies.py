@@ -49,9 +49,17 @@ def projected_solid_angle_sr(cos_edges) -> np.ndarray:
     return np.pi * (e[1:] ** 2 - e[:-1] ** 2)
 
 
-def result_from_tallies(tally: np.ndarray, photons: int, n_layers: int, ring_edges_mm, exit_cos_edges,
-                        specular: float, depth_scale_mm: float, extra: dict | None = None,
-                        photons_per_second: float = 0.0) -> TransportResult:
+def result_from_tallies(
+    tally: np.ndarray,
+    photons: int,
+    n_layers: int,
+    ring_edges_mm,
+    exit_cos_edges,
+    specular: float,
+    depth_scale_mm: float,
+    extra: dict | None = None,
+    photons_per_second: float = 0.0,
+) -> TransportResult:
     """Build a :class:`TransportResult` from the integer tally vector of :mod:`matgen.transport.kernels`.
 
     Parameters
@@ -68,6 +76,7 @@ def result_from_tallies(tally: np.ndarray, photons: int, n_layers: int, ring_edg
         Specular reflectance at entry (exact, no statistical error).
     depth_scale_mm : float
         Total stack thickness in mm (depth tallies are stored as a fraction of it).
+
     """
     ring_edges_mm = np.asarray(ring_edges_mm, dtype=np.float64)
     exit_cos_edges = np.asarray(exit_cos_edges, dtype=np.float64)
@@ -79,12 +88,12 @@ def result_from_tallies(tally: np.ndarray, photons: int, n_layers: int, ring_edg
     rd, rd_e = mean_and_stderr(v[K.T_RD], v[K.T_RD2], n)
     tt, tt_e = mean_and_stderr(v[K.T_TT], v[K.T_TT2], n)
     oa = lay["absorbed"]
-    ab, ab_e = mean_and_stderr(v[oa:oa + n_layers], v[oa + n_layers:oa + 2 * n_layers], n)
+    ab, ab_e = mean_and_stderr(v[oa : oa + n_layers], v[oa + n_layers : oa + 2 * n_layers], n)
     orr = lay["ring"]
-    ring, ring_e = mean_and_stderr(v[orr:orr + n_rings], v[orr + n_rings:orr + 2 * n_rings], n)
+    ring, ring_e = mean_and_stderr(v[orr : orr + n_rings], v[orr + n_rings : orr + 2 * n_rings], n)
     area = ring_areas_mm2(ring_edges_mm)
     oc = lay["cos"]
-    ang, ang_e = mean_and_stderr(v[oc:oc + n_cos], v[oc + n_cos:oc + 2 * n_cos], n)
+    ang, ang_e = mean_and_stderr(v[oc : oc + n_cos], v[oc + n_cos : oc + 2 * n_cos], n)
     psa = projected_solid_angle_sr(exit_cos_edges)
     depth, depth_e = ratio_and_stderr(v[K.T_DA], v[K.T_DA2], v[K.T_DAW], v[K.T_RD], v[K.T_RD2], n)
     counts = {
@@ -113,7 +122,8 @@ def result_from_tallies(tally: np.ndarray, photons: int, n_layers: int, ring_edg
     )
 
 
-def standard_error_ok(value: float, reference: float, stderr: float, sigmas: float = 3.0,
-                      allowance: float = 0.0) -> bool:
+def standard_error_ok(
+    value: float, reference: float, stderr: float, sigmas: float = 3.0, allowance: float = 0.0
+) -> bool:
     """True when |value - reference| <= sigmas * stderr + allowance (for tests and reports)."""
     return math.isfinite(value) and abs(value - reference) <= sigmas * stderr + allowance

@@ -19,15 +19,17 @@ import iadpython.start as start
 
 def slab_rt(a, b, g, n=1.0, quad_pts=16):
     """(UR1, UT1) of one slab by ``iadpython.Sample(...).rt()`` with n_above = n_below = 1 (air)."""
-    ur1, ut1, _uru, _utu = iadpython.Sample(a=a, b=b, g=g, n=n, n_above=1.0, n_below=1.0,
-                                            quad_pts=quad_pts).rt()
+    ur1, ut1, _uru, _utu = iadpython.Sample(
+        a=a, b=b, g=g, n=n, n_above=1.0, n_below=1.0, quad_pts=quad_pts
+    ).rt()
     return float(ur1), float(ut1)
 
 
 def layered_rt(layers, n=1.0, quad_pts=16):
     """(UR1, UT1) of a stack of layers [(albedo, optical thickness, g), ...] of common index ``n`` in air."""
-    base = iadpython.Sample(a=layers[0][0], b=layers[0][1], g=layers[0][2], n=n, n_above=1.0, n_below=1.0,
-                            quad_pts=quad_pts)
+    base = iadpython.Sample(
+        a=layers[0][0], b=layers[0][1], g=layers[0][2], n=n, n_above=1.0, n_below=1.0, quad_pts=quad_pts
+    )
     base.update_quadrature()
     R02 = R20 = T02 = T20 = None
     for a, b, g in layers:

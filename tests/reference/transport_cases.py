@@ -19,5 +19,13 @@ def benchmark_stack(band: int = 550, mu_a=None) -> Stack:
         a, s, g = [0.5, 1.5, 0.2, 0.1, 0.1], [40, 30, 20, 18, 12], [0.90, 0.80, 0.85, 0.85, 0.90]
     else:
         a, s, g = [0.2, 0.3, 0.03, 0.03, 0.03], [20, 15, 12, 11, 10], [0.90, 0.85, 0.90, 0.90, 0.90]
-    return Stack(d, n, a if mu_a is None else mu_a, s, g, 1.0, 1.40,
-                 ("stratum corneum", "epidermis", "papillary dermis", "reticular dermis", "hypodermis"))
+    return Stack(
+        d,
+        n,
+        a if mu_a is None else mu_a,
+        s,
+        g,
+        1.0,
+        1.40,
+        ("stratum corneum", "epidermis", "papillary dermis", "reticular dermis", "hypodermis"),
+    )

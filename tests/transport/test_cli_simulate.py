@@ -17,8 +17,11 @@ def _write(tmp_path, doc, name="stack.json"):
     return str(p)
 
 
-SLAB = {"n_above": 1.0, "n_below": 1.0,
-        "layers": [{"thickness_mm": 0.2, "n": 1.0, "mu_a": 1.0, "mu_s": 9.0, "g": 0.75, "name": "slab"}]}
+SLAB = {
+    "n_above": 1.0,
+    "n_below": 1.0,
+    "layers": [{"thickness_mm": 0.2, "n": 1.0, "mu_a": 1.0, "mu_s": 9.0, "g": 0.75, "name": "slab"}],
+}
 
 
 def test_json_output_fields_and_values(tmp_path, capsys):
@@ -53,19 +56,32 @@ def test_table_output(tmp_path, capsys):
     assert "diffuse_reflectance" in out and "absorbed in slab" in out
 
 
-@pytest.mark.parametrize("doc,match", [
-    ("{not json", "not valid JSON"),
-    ({"layers": []}, "non-empty"),
-    ({"layers": [{"thickness_mm": 0.0, "n": 1.4, "mu_a": 0, "mu_s": 1, "g": 0}]}, r"layer 0 .*thickness_mm"),
-    ({"layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": -1, "mu_s": 1, "g": 0}]}, r"layer 0 .*mu_a"),
-    ({"layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": 0, "mu_s": 1, "g": 1.5}]}, r"layer 0 .*'g'"),
-    ({"layers": [{"thickness_mm": 1.0, "n": 0.5, "mu_a": 0, "mu_s": 1, "g": 0}]}, r"layer 0 .*'n'"),
-    ({"layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": 0, "mu_s": 1}]}, "lacks 'g'"),
-    ({"layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": 0, "mu_s": 1, "g": 0, "colour": 1}]}, "unknown keys"),
-    ({"wavelength_nm": [500, 600],
-      "layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": [0.1, float("nan")], "mu_s": 1, "g": 0}]},
-     r"band 1 \(600 nm\).*mu_a"),
-])
+@pytest.mark.parametrize(
+    "doc,match",
+    [
+        ("{not json", "not valid JSON"),
+        ({"layers": []}, "non-empty"),
+        (
+            {"layers": [{"thickness_mm": 0.0, "n": 1.4, "mu_a": 0, "mu_s": 1, "g": 0}]},
+            r"layer 0 .*thickness_mm",
+        ),
+        ({"layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": -1, "mu_s": 1, "g": 0}]}, r"layer 0 .*mu_a"),
+        ({"layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": 0, "mu_s": 1, "g": 1.5}]}, r"layer 0 .*'g'"),
+        ({"layers": [{"thickness_mm": 1.0, "n": 0.5, "mu_a": 0, "mu_s": 1, "g": 0}]}, r"layer 0 .*'n'"),
+        ({"layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": 0, "mu_s": 1}]}, "lacks 'g'"),
+        (
+            {"layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": 0, "mu_s": 1, "g": 0, "colour": 1}]},
+            "unknown keys",
+        ),
+        (
+            {
+                "wavelength_nm": [500, 600],
+                "layers": [{"thickness_mm": 1.0, "n": 1.4, "mu_a": [0.1, float("nan")], "mu_s": 1, "g": 0}],
+            },
+            r"band 1 \(600 nm\).*mu_a",
+        ),
+    ],
+)
 def test_bad_stack_files_exit_2(tmp_path, capsys, doc, match):
     text = doc if isinstance(doc, str) else json.dumps(doc)
     rc = main(["simulate", _write(tmp_path, text), "--photons", "10"])

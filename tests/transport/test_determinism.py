@@ -23,9 +23,11 @@ def test_one_vs_two_threads_bit_identical():
 def test_one_run_vs_three_chunks_bit_identical():
     stack = benchmark_stack(550)
     whole = simulate(stack, 3001, seed=4)
-    parts = [simulate(stack, 1000, seed=4, first_photon=0, threads=1),
-             simulate(stack, 1500, seed=4, first_photon=1000, threads=2),
-             simulate(stack, 501, seed=4, first_photon=2500)]
+    parts = [
+        simulate(stack, 1000, seed=4, first_photon=0, threads=1),
+        simulate(stack, 1500, seed=4, first_photon=1000, threads=2),
+        simulate(stack, 501, seed=4, first_photon=2500),
+    ]
     _same(whole, combine(parts, stack))
 
 
@@ -39,7 +41,15 @@ def test_records_of_chunks_concatenate_to_one_run(tmp_path):
         rec.save(path)
         parts.append(PhotonRecords.load(path))
     joined = PhotonRecords.concatenate(parts)
-    for name in ("path_mm", "weighted_path_mm", "exit_radius_mm", "exit_cos", "max_depth_mm", "weight", "side"):
+    for name in (
+        "path_mm",
+        "weighted_path_mm",
+        "exit_radius_mm",
+        "exit_cos",
+        "max_depth_mm",
+        "weight",
+        "side",
+    ):
         assert np.array_equal(getattr(joined, name), getattr(whole, name)), name
     assert joined.photons == 900
 

@@ -23,13 +23,21 @@ def farrell1992_per_mm2(r_mm, mu_a, mu_s_reduced, a_boundary=1.0):
     zp = z0 + 4.0 * a_boundary * diff
     r1 = np.sqrt(z0**2 + r_mm**2)
     r2 = np.sqrt(zp**2 + r_mm**2)
-    return (mu_s_reduced / mu_t) / (4 * np.pi) * (
-        z0 * (mu_eff + 1 / r1) * np.exp(-mu_eff * r1) / r1**2 + zp * (mu_eff + 1 / r2) * np.exp(-mu_eff * r2) / r2**2)
+    return (
+        (mu_s_reduced / mu_t)
+        / (4 * np.pi)
+        * (
+            z0 * (mu_eff + 1 / r1) * np.exp(-mu_eff * r1) / r1**2
+            + zp * (mu_eff + 1 / r2) * np.exp(-mu_eff * r2) / r2**2
+        )
+    )
 
 
 def test_profile_and_angles_integrate_to_diffuse_reflectance():
     """sum(ring * area) and sum(angle bin * projected solid angle) equal R_d (all light inside the last ring)."""
-    r = simulate(benchmark_stack(800), 3000, seed=2, ring_edges_mm=np.concatenate(([0.0], np.logspace(-3, 4, 71))))
+    r = simulate(
+        benchmark_stack(800), 3000, seed=2, ring_edges_mm=np.concatenate(([0.0], np.logspace(-3, 4, 71)))
+    )
     caught = (r.radial_reflectance_per_mm2 * ring_areas_mm2(r.ring_edges_mm)).sum()
     assert abs(caught - r.diffuse_reflectance.value) < 1e-12
     ang = (r.exit_angle_per_sr * projected_solid_angle_sr(r.exit_cos_edges)).sum()
@@ -49,7 +57,10 @@ def test_far_field_follows_dipole():
         if not 1.5 <= centre <= 4.0:
             continue
         x = np.linspace(e[k], e[k + 1], 201)
-        ref = np.trapezoid(farrell1992_per_mm2(x, mu_a, mu_s) * 2 * np.pi * x, x) / ring_areas_mm2(e[k:k + 2])[0]
+        ref = (
+            np.trapezoid(farrell1992_per_mm2(x, mu_a, mu_s) * 2 * np.pi * x, x)
+            / ring_areas_mm2(e[k : k + 2])[0]
+        )
         got, err = r.radial_reflectance_per_mm2[k], r.radial_stderr_per_mm2[k]
         assert abs(got - ref) <= 0.10 * ref + 3.0 * err, (centre, got, ref, err)
         checked += 1

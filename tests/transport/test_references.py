@@ -60,12 +60,28 @@ def test_isotropic_half_space(albedo, reference):
 
 #: (albedo, optical thickness, g, slab index): albedo 0.5-0.999, g 0-0.95, thickness 0.5-50, n 1.0-1.5.
 SLABS = [
-    (0.5, 0.5, 0.0, 1.0), (0.5, 5.0, 0.5, 1.4), (0.6, 2.0, 0.9, 1.33), (0.7, 10.0, 0.0, 1.5),
-    (0.8, 1.0, 0.75, 1.0), (0.8, 50.0, 0.9, 1.4), (0.9, 0.5, 0.95, 1.5), (0.9, 2.0, 0.75, 1.0),
-    (0.9, 20.0, 0.5, 1.2), (0.95, 5.0, 0.0, 1.33), (0.95, 1.0, 0.8, 1.4), (0.95, 50.0, 0.95, 1.0),
-    (0.99, 2.0, 0.3, 1.5), (0.99, 10.0, 0.9, 1.4), (0.99, 0.5, 0.0, 1.0), (0.99, 30.0, 0.85, 1.33),
-    (0.995, 5.0, 0.6, 1.1), (0.999, 1.0, 0.9, 1.4), (0.999, 10.0, 0.0, 1.0), (0.999, 50.0, 0.95, 1.5),
-    (0.999, 20.0, 0.8, 1.4), (0.5, 20.0, 0.95, 1.4),
+    (0.5, 0.5, 0.0, 1.0),
+    (0.5, 5.0, 0.5, 1.4),
+    (0.6, 2.0, 0.9, 1.33),
+    (0.7, 10.0, 0.0, 1.5),
+    (0.8, 1.0, 0.75, 1.0),
+    (0.8, 50.0, 0.9, 1.4),
+    (0.9, 0.5, 0.95, 1.5),
+    (0.9, 2.0, 0.75, 1.0),
+    (0.9, 20.0, 0.5, 1.2),
+    (0.95, 5.0, 0.0, 1.33),
+    (0.95, 1.0, 0.8, 1.4),
+    (0.95, 50.0, 0.95, 1.0),
+    (0.99, 2.0, 0.3, 1.5),
+    (0.99, 10.0, 0.9, 1.4),
+    (0.99, 0.5, 0.0, 1.0),
+    (0.99, 30.0, 0.85, 1.33),
+    (0.995, 5.0, 0.6, 1.1),
+    (0.999, 1.0, 0.9, 1.4),
+    (0.999, 10.0, 0.0, 1.0),
+    (0.999, 50.0, 0.95, 1.5),
+    (0.999, 20.0, 0.8, 1.4),
+    (0.5, 20.0, 0.95, 1.4),
 ]
 
 
@@ -97,7 +113,9 @@ def test_identical_layers_change_nothing(layers, n):
         a, b = getattr(one, q), getattr(split, q)
         assert b.value == pytest.approx(a.value, abs=1e-9), q  # only float rounding of boundary hits differs
     ref_r, ref_t = slab_rt(0.95, 4.0, 0.8, n)
-    assert _within(split.total_reflectance.value, split.diffuse_reflectance.stderr, ref_r, AD_ALLOWANCE * ref_r)
+    assert _within(
+        split.total_reflectance.value, split.diffuse_reflectance.stderr, ref_r, AD_ALLOWANCE * ref_r
+    )
     assert _within(split.transmittance.value, split.transmittance.stderr, ref_t, AD_ALLOWANCE * ref_t)
     assert abs(split.absorbed.sum() - one.absorbed.sum()) < 1e-9
 
@@ -115,8 +133,13 @@ def test_layered_against_layered_adding_doubling(k):
     """Layered adding-doubling from iadpython 0.5.3 adding routines (tests/reference/layered_ad.py), 16 points."""
     layers, n = LAYERED[k]
     mu_t = 2.0
-    stack = Stack([b / mu_t for _, b, _ in layers], [n] * len(layers), [(1 - a) * mu_t for a, _, _ in layers],
-                  [a * mu_t for a, _, _ in layers], [g for _, _, g in layers])
+    stack = Stack(
+        [b / mu_t for _, b, _ in layers],
+        [n] * len(layers),
+        [(1 - a) * mu_t for a, _, _ in layers],
+        [a * mu_t for a, _, _ in layers],
+        [g for _, _, g in layers],
+    )
     ref_r, ref_t = layered_rt(layers, n)
     r = simulate(stack, 100_000, seed=700 + k)
     assert _within(r.total_reflectance.value, r.diffuse_reflectance.stderr, ref_r, AD_ALLOWANCE * ref_r)
@@ -128,7 +151,9 @@ def test_energy_balance_benchmark_stack():
     from transport_cases import benchmark_stack
 
     r = simulate(benchmark_stack(550), 50_000, seed=4)
-    total = r.specular_reflectance.value + r.diffuse_reflectance.value + r.transmittance.value + r.absorbed.sum()
+    total = (
+        r.specular_reflectance.value + r.diffuse_reflectance.value + r.transmittance.value + r.absorbed.sum()
+    )
     # standard error of the sum: bounded by the sum of the parts' errors (they are correlated)
     bound = r.diffuse_reflectance.stderr + r.transmittance.stderr + r.absorbed_stderr.sum()
     assert abs(total - 1.0) <= 3.0 * bound
@@ -144,8 +169,9 @@ def test_specular_and_oblique_incidence_against_fresnel():
     rs = math.sin(theta - st) / math.sin(theta + st)
     rp = math.tan(theta - st) / math.tan(theta + st)
     assert r.specular_reflectance.value == pytest.approx(0.5 * (rs * rs + rp * rp), abs=1e-12)
-    assert r.diffuse_reflectance.value + r.transmittance.value == pytest.approx(1 - r.specular_reflectance.value,
-                                                                                abs=2000 * 2**-32)
+    assert r.diffuse_reflectance.value + r.transmittance.value == pytest.approx(
+        1 - r.specular_reflectance.value, abs=2000 * 2**-32
+    )
     # a clear slab's multiple reflections: T = (1-R)^2 sum R^(2k) = (1-R)/(1+R) of the incident light (R at
     # the internal angle equals R at entry); the Monte Carlo estimate of this fraction must hold within 3 sigma
     rr = r.specular_reflectance.value

@@ -17,7 +17,9 @@ from matgen.transport.stack import Stack
 
 
 def _agree(a, ea, b, eb):
-    return np.all(np.abs(np.asarray(a) - np.asarray(b)) <= 3.0 * np.sqrt(np.asarray(ea) ** 2 + np.asarray(eb) ** 2))
+    return np.all(
+        np.abs(np.asarray(a) - np.asarray(b)) <= 3.0 * np.sqrt(np.asarray(ea) ** 2 + np.asarray(eb) ** 2)
+    )
 
 
 @needs_jit
@@ -36,9 +38,15 @@ def test_reweighting_matches_direct_runs_for_random_absorption_sets():
     rings = np.flatnonzero((0.5 * (e[:-1] + e[1:]) >= 0.1) & (0.5 * (e[:-1] + e[1:]) <= 3.0))
     for k in range(10):
         d = simulate(ref_stack.with_mu_a(sets[k]), 60_000, seed=2000 + k)
-        assert _agree(rw.diffuse_reflectance[k], rw.diffuse_reflectance_stderr[k],
-                      d.diffuse_reflectance.value, d.diffuse_reflectance.stderr), k
-        assert _agree(rw.transmittance[k], rw.transmittance_stderr[k], d.transmittance.value, d.transmittance.stderr), k
+        assert _agree(
+            rw.diffuse_reflectance[k],
+            rw.diffuse_reflectance_stderr[k],
+            d.diffuse_reflectance.value,
+            d.diffuse_reflectance.stderr,
+        ), k
+        assert _agree(
+            rw.transmittance[k], rw.transmittance_stderr[k], d.transmittance.value, d.transmittance.stderr
+        ), k
         # total absorption: the reweighted per-photon estimate a = w_launch - w' is exact in expectation
         tot_rw = rw.absorbed[k].sum()
         tot_d = d.absorbed.sum()
@@ -72,8 +80,12 @@ def test_one_layer_absorption_is_exact_and_white_reference_works():
     _, rec = simulate(white, 40_000, seed=8, records=True)
     rw = reweight(rec, [[0.3]])
     d = simulate(white.with_mu_a([0.3]), 40_000, seed=9)
-    assert _agree(rw.diffuse_reflectance[0], rw.diffuse_reflectance_stderr[0], d.diffuse_reflectance.value,
-                  d.diffuse_reflectance.stderr)
+    assert _agree(
+        rw.diffuse_reflectance[0],
+        rw.diffuse_reflectance_stderr[0],
+        d.diffuse_reflectance.value,
+        d.diffuse_reflectance.stderr,
+    )
     assert _agree(rw.absorbed[0, 0], rw.absorbed_stderr[0, 0], d.absorbed[0], d.absorbed_stderr[0])
     balance = 1.0 - rw.specular_reflectance - rw.diffuse_reflectance[0] - rw.transmittance[0]
     assert rw.absorbed[0, 0] == pytest.approx(balance, abs=1e-9)
@@ -86,7 +98,13 @@ def test_reweighting_is_thread_independent_and_vectorised():
     a = reweight(rec, sets, threads=1)
     b = reweight(rec, sets, threads=2)
     c = reweight(rec, sets[2])
-    for q in ("diffuse_reflectance", "transmittance", "absorbed", "radial_reflectance_per_mm2", "exit_angle_per_sr"):
+    for q in (
+        "diffuse_reflectance",
+        "transmittance",
+        "absorbed",
+        "radial_reflectance_per_mm2",
+        "exit_angle_per_sr",
+    ):
         assert np.array_equal(getattr(a, q), getattr(b, q)), q
         assert np.array_equal(getattr(a, q)[2], getattr(c, q)[0]), q
     # more absorption, less reflectance

@@ -7,8 +7,8 @@ tests also run under NUMBA_DISABLE_JIT=1 (small photon counts).
 
 import numpy as np
 import pytest
-from transport_cases import benchmark_stack
 from scipy import stats
+from transport_cases import benchmark_stack
 
 from matgen.transport import kernels_py as P
 from matgen.transport import simulate as S
@@ -47,8 +47,19 @@ def _compare(stack, photons, seed, first, incidence_cos=1.0):
     res, rec = S.simulate(stack, photons, seed, first_photon=first, incidence_cos=incidence_cos, records=True)
     lay = S.layer_table(stack)
     _rsp, w0, ux0, uz0 = S.launch(stack, incidence_cos)
-    tally, twin_rec = P.run_tallies(lay, w0, ux0, uz0, seed, first, photons, S.default_ring_edges_mm(),
-                                    S.default_exit_cos_edges(), 1.0 / stack.total_thickness_mm, records=True)
+    tally, twin_rec = P.run_tallies(
+        lay,
+        w0,
+        ux0,
+        uz0,
+        seed,
+        first,
+        photons,
+        S.default_ring_edges_mm(),
+        S.default_exit_cos_edges(),
+        1.0 / stack.total_thickness_mm,
+        records=True,
+    )
     assert np.array_equal(res.extra["tally_fixed_point"], tally)
     for key, arr in twin_rec.items():
         assert np.array_equal(getattr(rec, key), arr), key
@@ -63,8 +74,15 @@ def test_parity_benchmark_stack():
 
 def test_parity_clear_layers_oblique_and_index_steps():
     # a glass slide (clear) on a scattering layer, a clear coat between, oblique incidence at 40 degrees
-    stack = Stack([0.5, 0.3, 0.2, 1.0], [1.52, 1.40, 1.33, 1.40], [0.0, 0.5, 0.01, 0.2],
-                  [0.0, 10.0, 0.0, 8.0], [0.0, 0.7, 0.0, -0.3], n_above=1.0, n_below=1.2)
+    stack = Stack(
+        [0.5, 0.3, 0.2, 1.0],
+        [1.52, 1.40, 1.33, 1.40],
+        [0.0, 0.5, 0.01, 0.2],
+        [0.0, 10.0, 0.0, 8.0],
+        [0.0, 0.7, 0.0, -0.3],
+        n_above=1.0,
+        n_below=1.2,
+    )
     _compare(stack, 300, seed=7, first=0, incidence_cos=float(np.cos(np.radians(40.0))))
 
 
