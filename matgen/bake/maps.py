@@ -22,6 +22,14 @@ from matgen.errors import ColourSpaceWarning, ImageError
 from matgen.limits import check_count, check_image_dims
 
 
+
+def _oiio_error(source=None) -> str:
+    """OpenImageIO's pending error message; a message holding the file's non-UTF-8 bytes is decoded loosely."""
+    try:
+        return (source if source is not None else oiio).geterror().strip()
+    except UnicodeDecodeError as exc:
+        return exc.object.decode("utf-8", "replace").strip() if isinstance(exc.object, bytes) else "undecodable error"
+
 def udim_of(u: int, v: int) -> int:
     """UDIM tile number of tile column ``u`` (0..9) and row ``v`` (0..): 1001 + u + 10 v."""
     if not (0 <= u <= 9) or v < 0:
@@ -84,7 +92,7 @@ def map_info(path, tile=None, *, channel: int = 0, what: str = "map") -> MapInfo
     inp = oiio.ImageInput.open(str(path))
     if inp is None:
         raise ImageError(
-            f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {oiio.geterror().strip()}"
+            f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {_oiio_error()}"
         )
     try:
         spec = inp.spec()
@@ -146,7 +154,7 @@ class MapReader:
         if self._inp is None:
             raise ImageError(
                 f"{self.what} {_where(self.info.path, self.info.tile)} cannot be read: "
-                f"{oiio.geterror().strip()}"
+                f"{_oiio_error()}"
             )
         return self
 
@@ -166,7 +174,7 @@ class MapReader:
             raise ImageError(f"{self.what} {self.info.path} is not open")
         data = inp.read_scanlines(0, 0, y0, y1, 0, self.channel, self.channel + 1, oiio.FLOAT)
         if data is None or not isinstance(data, np.ndarray) or data.size != (y1 - y0) * self.info.width:
-            msg = inp.geterror().strip() or oiio.geterror().strip() or "short read"
+            msg = _oiio_error(inp) or _oiio_error() or "short read"
             raise ImageError(
                 f"{self.what} {_where(self.info.path, self.info.tile)}: rows {y0}..{y1 - 1} cannot be "
                 f"read ({msg}); the file may be truncated or corrupt"

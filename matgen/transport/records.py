@@ -32,6 +32,8 @@ from pathlib import Path
 import numpy as np
 
 from matgen.errors import DataError, ParameterError
+from matgen.fsutil import atomic_path
+from matgen.npzio import read_npz_checked
 
 _ARRAYS = ("path_mm", "weighted_path_mm", "exit_radius_mm", "exit_cos", "max_depth_mm", "weight", "side")
 _FORMAT = "matgen.photon_records/1"
@@ -90,18 +92,19 @@ class PhotonRecords:
         """Write the records to an ``.npz`` file (uncompressed; metadata as JSON text)."""
         arrays = {a: getattr(self, a) for a in _ARRAYS}
         meta = dict(self.meta, format=_FORMAT)
-        with open(path, "wb") as fh:
-            np.savez(fh, meta=np.array(json.dumps(meta)), **arrays)
+        with atomic_path(path) as tmp:
+            with open(tmp, "wb") as fh:
+                np.savez(fh, meta=np.array(json.dumps(meta)), **arrays)
 
     @classmethod
     def load(cls, path) -> PhotonRecords:
         """Read records written by :meth:`save`; a malformed file raises :class:`DataError` naming it."""
         p = Path(path)
         try:
-            with np.load(p, allow_pickle=False) as z:
-                meta = json.loads(str(z["meta"]))
-                arrays = {a: z[a] for a in _ARRAYS}
-        except (OSError, KeyError, ValueError, zipfile.BadZipFile, EOFError) as exc:
+            z = read_npz_checked(p, "photon records file")  # declared shapes checked against limits first
+            meta = json.loads(str(z["meta"]))
+            arrays = {a: z[a] for a in _ARRAYS}
+        except (OSError, KeyError, ValueError, TypeError, zipfile.BadZipFile, EOFError) as exc:
             raise DataError(f"photon records file '{p}' cannot be read: {exc}") from exc
         if meta.get("format") != _FORMAT:
             raise DataError(

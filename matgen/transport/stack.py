@@ -60,7 +60,9 @@ class Stack:
         n_layers = arrays["thickness_mm"].size
         if n_layers == 0:
             raise StackError("the stack has no layers; give at least one layer")
-        names = tuple(self.names) if self.names else tuple(f"layer {i}" for i in range(n_layers))
+        if self.names and (isinstance(self.names, (str, bytes)) or not hasattr(self.names, "__iter__")):
+            raise StackError(f"layer names must be a list of {n_layers} strings, not {self.names!r}")
+        names = tuple(str(v) for v in self.names) if self.names else tuple(f"layer {i}" for i in range(n_layers))
         if len(names) != n_layers:
             raise StackError(f"{len(names)} layer names given for {n_layers} layers")
         object.__setattr__(self, "names", names)

@@ -52,7 +52,7 @@ FINDINGS = [
         "input": "Stack(..., names=5)",
         "escaped": "TypeError",
         "where": "matgen/transport/stack.py Stack.__post_init__",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_stack_names_not_a_sequence_is_stack_error",
     },
     {
@@ -108,7 +108,7 @@ FINDINGS = [
         "input": "EXR with attribute type 'chlist' overwritten by b'ch\\xc9ist'",
         "escaped": "UnicodeDecodeError from oiio.geterror()",
         "where": "matgen/bake/maps.py map_info",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_exr_with_non_utf8_attribute_type_is_image_error",
     },
     {
@@ -124,7 +124,7 @@ FINDINGS = [
         "input": "'weight.npy' declaring shape (10**11,) with 16 bytes of data",
         "escaped": "numpy _ArrayMemoryError (373 GiB requested)",
         "where": "matgen/transport/records.py PhotonRecords.load",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_records_file_declaring_huge_arrays_is_refused_before_allocation",
     },
     {
@@ -132,7 +132,7 @@ FINDINGS = [
         "input": "np.savez failing midway in PhotonRecords.save",
         "escaped": "partial rec.npz left at the destination",
         "where": "matgen/transport/records.py PhotonRecords.save",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_records_save_failing_midway_leaves_no_partial_file",
     },
     {

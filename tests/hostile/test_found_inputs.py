@@ -50,9 +50,6 @@ def test_path_with_nul_byte_is_path_error(tmp_path):
         resolve_inside(tmp_path, "\x00aps/melanin.exr", "texture path")
 
 
-@pytest.mark.xfail(
-    strict=True, reason="open: Stack.__post_init__ calls tuple(names) unguarded (matgen/transport/stack.py)"
-)
 def test_stack_names_not_a_sequence_is_stack_error():
     """Stack(names=5) (a layer-name field from a hostile STACK.json) raised TypeError."""
     from matgen.transport.stack import Stack
@@ -215,11 +212,6 @@ def test_table_with_unknown_compression_method_is_table_error(tmp_path):
 # pigment maps (matgen/bake/maps.py)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="open: oiio.geterror() raises UnicodeDecodeError on a message holding the "
-    "file's non-UTF-8 bytes (matgen/bake/maps.py map_info)",
-)
 def test_exr_with_non_utf8_attribute_type_is_image_error(tmp_path):
     """An EXR whose 'channels' attribute type 'chlist' is overwritten by b'ch\\xc9ist' raised UnicodeDecodeError."""
     pytest.importorskip("OpenImageIO")
@@ -277,11 +269,6 @@ def test_records_file_with_bad_crc_is_data_error(tmp_path):
         PhotonRecords.load(p)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="open: PhotonRecords.load checks no ceiling before np.load allocates the "
-    "declared arrays (matgen/transport/records.py)",
-)
 def test_records_file_declaring_huge_arrays_is_refused_before_allocation(tmp_path):
     """A records .npz whose 'weight.npy' declares shape (10**11,) with 16 bytes of data raised MemoryError."""
     import zipfile
@@ -302,11 +289,6 @@ def test_records_file_declaring_huge_arrays_is_refused_before_allocation(tmp_pat
         PhotonRecords.load(p)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="open: PhotonRecords.save writes the destination in place (not through "
-    "matgen.fsutil.atomic_path), so a failure or kill mid-write leaves a partial file",
-)
 def test_records_save_failing_midway_leaves_no_partial_file(tmp_path, monkeypatch):
     """np.savez failing after writing some bytes (a full disk, a kill) must not leave a partial rec.npz."""
     import numpy as np
