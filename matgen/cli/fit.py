@@ -17,6 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
+from matgen import limits
 from matgen.cli import add_command
 from matgen.errors import ClampWarning, ConfigError, FitError
 from matgen.spectra.bands import BandSet
@@ -68,8 +69,8 @@ def register(sub):
 
 def _read(path: Path):
     try:
-        text = path.read_text()
-    except (OSError, UnicodeDecodeError) as exc:
+        text = limits.read_text_limited(path, "transport result")
+    except OSError as exc:
         raise ConfigError(f"cannot read {path}: {exc}") from exc
     try:
         doc = json.loads(text)

@@ -19,6 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
+from matgen import limits
 from matgen.errors import DataError
 
 #: Names of the built-in pass responses.
@@ -88,8 +89,8 @@ def load_response(name_or_csv_path):
             f"response curve {key!r} is neither a built-in pass ({', '.join(BUILTIN_PASSES)}) nor a readable CSV file"
         )
     try:
-        text = path.read_text()
-    except (OSError, UnicodeDecodeError) as exc:
+        text = limits.read_text_limited(path, "response curve")
+    except OSError as exc:
         raise DataError(f"cannot read response curve {path.name}: {exc}") from exc
     return (*read_response_csv(text, path.name), path.name)
 
