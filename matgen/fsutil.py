@@ -52,11 +52,21 @@ def atomic_path(path, suffix: str | None = None):
     tmp = Path(tmp)
     try:
         yield tmp
+        # mkstemp creates 0600; give the file the permissions an ordinary open() would (0666 less the umask),
+        # so farm nodes running as other users can read what was written.
+        with contextlib.suppress(OSError):
+            os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
         raise
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def atomic_write_bytes(path, data: bytes) -> None:

@@ -62,3 +62,12 @@ def test_resolve_inside_refuses_escape(tmp_path):
     with pytest.raises(PathError, match="outside"):
         resolve_inside(tmp_path, "link/x", "map")
     assert resolve_inside(tmp_path / "inner", "../a.exr", "map", allow_outside=True) == (tmp_path / "a.exr").resolve()
+
+
+def test_atomic_write_gives_ordinary_permissions(tmp_path):
+    """mkstemp's 0600 must not leak into outputs that other users (farm nodes) read."""
+    target = tmp_path / "out.bin"
+    atomic_write_text(target, "x")
+    mask = os.umask(0)
+    os.umask(mask)
+    assert (target.stat().st_mode & 0o777) == (0o666 & ~mask)
