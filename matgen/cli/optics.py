@@ -16,10 +16,10 @@ import json
 import math
 import os
 import sys
-import tempfile
 
 from matgen.cli import add_command
 from matgen.errors import ParameterError, PathError
+from matgen.fsutil import atomic_write_bytes
 from matgen.spectra.bands import BandSet
 from matgen.tissue.optics import SkinOptics, skin_optics
 from matgen.tissue.packaging import PACKAGING_MODES
@@ -215,17 +215,10 @@ def _check_plot_path(path: str) -> str:
 
 
 def _write_atomic(path: str, data: bytes):
-    parent = os.path.dirname(os.path.abspath(path))
     try:
-        fd, tmp = tempfile.mkstemp(prefix=".matgen-", suffix=".png", dir=parent)
-        umask = os.umask(0)
-        os.umask(umask)
-        os.fchmod(fd, 0o666 & ~umask)  # mkstemp makes 0600; give the plot ordinary file permissions
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, path)
-    except OSError as exc:
-        raise PathError(f"--plot {path!r}: cannot write ({exc.strerror or exc})") from exc
+        atomic_write_bytes(path, data)
+    except (OSError, PathError) as exc:
+        raise PathError(f"--plot {path!r}: cannot write ({getattr(exc, 'strerror', None) or exc})") from exc
 
 
 def run(args) -> int:
