@@ -15,6 +15,8 @@ from matgen.errors import ImageError, MatgenWarning
 from matgen.export.exr import read_exr
 from matgen.export.job import bake, load_table
 from matgen.fsutil import atomic_path
+from matgen.preview.gallery import descriptor_previews
+from matgen.preview.report import build_report
 from matgen.scenario import DEFAULT_SEED, write_scenario
 from matgen.tables.store import Table, default_table_path
 
@@ -174,6 +176,9 @@ def run(args) -> int:
     for msg in sorted({str(w.message) for w in caught}):
         print(f"matgen demo: warning: {msg}", file=sys.stderr)
     previews = _previews(out, out / "bake", config, table, maps)
+    sheets = descriptor_previews(out / "preview", result.descriptor)  # contact sheet with colour bars and units
+    previews.extend(sheets.values())
+    report = build_report(result.descriptor, out / "report.html")
     dt = time.perf_counter() - t0
     print(f"Low Tide Lantern demo (invented scenario): {args.size} x {args.size} texels baked in {dt:.1f} s")
     print(f"  pigment maps and material config: {inputs}")
@@ -185,5 +190,6 @@ def run(args) -> int:
     print(f"  UV 365 nm and IR 850 nm passes: {out / 'bake' / 'passes'}   QA map: {out / 'bake' / 'qa'}")
     print(f"  descriptor: {result.descriptor}   MaterialX: {out / 'bake' / 'material.mtlx'}")
     print(f"  previews: {', '.join(str(p) for p in previews)}")
+    print(f"  report (self-contained HTML): {report}")
     print(f"  check the textures: matgen inspect {result.descriptor}")
     return 0

@@ -315,11 +315,11 @@ def plot_contact_sheet(path, panels: list, *, title: str = "", columns: int = 3,
             v = np.asarray(p["values"], dtype=np.float64)
             finite = v[np.isfinite(v)]
             lo, hi = np.percentile(finite, [1, 99]) if finite.size else (0.0, 1.0)
-            title = p["title"]
+            panel_title = p["title"]
             if hi <= lo:  # a flat map: show it on a unit-wide scale and say so
-                title = f"{title} (all {lo:g})"
+                panel_title = f"{panel_title} (all {lo:g})"
                 hi = lo + max(abs(lo), 1.0)
-            p = dict(p, title=title)
+            p = dict(p, title=panel_title)
             im = ax.imshow(v, cmap=p.get("cmap", "magma"), vmin=lo, vmax=hi, interpolation="nearest")
             fig.colorbar(im, ax=ax, fraction=0.046, pad=0.04, label=p.get("unit", ""))
         ax.set_title(p["title"], fontsize=9)

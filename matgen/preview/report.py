@@ -94,7 +94,7 @@ def material_panels(descriptor_path, doc: dict) -> list:
         t, arr, _ = found
         panels.append(
             {
-                "title": f"albedo A, {space} through sRGB view",
+                "title": f"albedo A ({space}), sRGB view",
                 "image": images.working_to_display(arr[..., :3], space),
             }
         )
