@@ -23,7 +23,6 @@ from __future__ import annotations
 import difflib
 import io
 import json
-import tokenize
 import zipfile
 import zlib
 from dataclasses import dataclass, field
@@ -32,7 +31,6 @@ from pathlib import Path
 
 import numpy as np
 
-from matgen import limits
 from matgen.errors import MatgenError, ParameterError, TableError
 from matgen.fsutil import atomic_path, atomic_write_text
 from matgen.npzio import read_npz_checked as _read_npz_checked
@@ -146,7 +144,7 @@ def write_json_atomic(path: Path, obj) -> None:
 
 
 def read_npz_checked(path: Path, what: str) -> dict:
-    """Read a table or task ``.npz`` with limit checks first (:func:`matgen.npzio.read_npz_checked`); TableError."""
+    """Read a table or task ``.npz``, limits checked first (:func:`matgen.npzio.read_npz_checked`)."""
     return _read_npz_checked(path, what, error=TableError)
 
 
