@@ -83,7 +83,7 @@ def atomic_write_text(path, text: str) -> None:
     atomic_write_bytes(path, text.encode("utf-8"))
 
 
-def _pid_alive(pid: int) -> bool:
+def pid_alive(pid: int) -> bool:
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
@@ -127,7 +127,7 @@ class FolderLock:
                 owner = self._owner()
                 same_host = owner.get("host") == socket.gethostname()
                 pid = owner.get("pid")
-                if same_host and isinstance(pid, int) and not _pid_alive(pid):
+                if same_host and isinstance(pid, int) and not pid_alive(pid):
                     warnings.warn(f"removing stale lock {self.path} left by process {pid}", StaleLockWarning,
                                   stacklevel=2)
                     with contextlib.suppress(FileNotFoundError):

@@ -16,6 +16,23 @@ import numpy as np
 from matgen import limits
 from matgen.errors import DataError, MatgenError
 
+#: Exceptions that numpy, zipfile and zlib raise on a truncated, corrupt or hostile archive.
+CORRUPT_ARCHIVE_ERRORS = (
+    OSError,
+    ValueError,
+    KeyError,
+    TypeError,
+    AttributeError,
+    IndexError,
+    SyntaxError,
+    EOFError,
+    NotImplementedError,
+    RuntimeError,
+    zipfile.BadZipFile,
+    zlib.error,
+    tokenize.TokenError,
+)
+
 def _npy_shape(zf: zipfile.ZipFile, member: str) -> tuple:
     """Shape declared by the ``.npy`` header of a zip member, read without loading its data."""
     with zf.open(member) as fh:
@@ -47,20 +64,6 @@ def read_npz_checked(path: Path, what: str, error: type[MatgenError] = DataError
                     out[member[:-4]] = np.lib.format.read_array(fh, allow_pickle=False)
     except MatgenError:
         raise
-    except (
-        OSError,
-        ValueError,
-        KeyError,
-        TypeError,
-        AttributeError,
-        IndexError,
-        SyntaxError,
-        EOFError,
-        NotImplementedError,
-        RuntimeError,
-        zipfile.BadZipFile,
-        zlib.error,
-        tokenize.TokenError,
-    ) as exc:
+    except CORRUPT_ARCHIVE_ERRORS as exc:
         raise error(f"{what} {path} is truncated or corrupt ({type(exc).__name__}: {exc})") from exc
     return out

@@ -29,7 +29,7 @@ from matgen.bake.run import BakePlan, check_inputs, iter_strips, plan_bake
 from matgen.errors import DataError, PathError
 from matgen.export.descriptor import DESCRIPTOR_FORMAT, DESCRIPTOR_VERSION, descriptor_json, texture_entry
 from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture, set_io_threads
-from matgen.fsutil import FolderLock
+from matgen.fsutil import FolderLock, pid_alive
 from matgen.provenance import hash_json, sha256_file
 from matgen.tables.store import Table, default_table_path, load_default_table
 
@@ -92,23 +92,13 @@ def check_writable(out_dir: Path) -> None:
         raise PathError(f"output folder {out_dir} is not writable")
 
 
-def _process_alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
-
-
 def _remove_stale_staging(out_dir: Path) -> None:
     for entry in out_dir.glob(STAGING_PREFIX + "*"):
         try:
             pid = int(entry.name[len(STAGING_PREFIX) :].split("-")[0])
         except ValueError:
             continue
-        if not _process_alive(pid) or pid == os.getpid():
+        if not pid_alive(pid) or pid == os.getpid():
             shutil.rmtree(entry, ignore_errors=True)
 
 

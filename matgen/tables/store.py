@@ -24,7 +24,6 @@ import difflib
 import io
 import json
 import zipfile
-import zlib
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
@@ -33,6 +32,7 @@ import numpy as np
 
 from matgen.errors import MatgenError, ParameterError, TableError
 from matgen.fsutil import atomic_path, atomic_write_text
+from matgen.npzio import CORRUPT_ARCHIVE_ERRORS
 from matgen.npzio import read_npz_checked as _read_npz_checked
 from matgen.provenance import sha256_file
 from matgen.spectra.bands import BandSet
@@ -500,20 +500,7 @@ class Table:
             )
         except MatgenError:
             raise
-        except (
-            OSError,
-            ValueError,
-            KeyError,
-            TypeError,
-            AttributeError,
-            IndexError,
-            SyntaxError,
-            EOFError,
-            NotImplementedError,
-            RuntimeError,
-            zipfile.BadZipFile,
-            zlib.error,
-        ) as exc:
+        except CORRUPT_ARCHIVE_ERRORS as exc:
             raise TableError(
                 f"table file {path} is truncated or corrupt ({type(exc).__name__}: {exc})"
             ) from exc
