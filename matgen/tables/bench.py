@@ -18,7 +18,6 @@ from __future__ import annotations
 import json
 import tempfile
 import time
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -42,7 +41,9 @@ def add_arguments(parser) -> None:
 
 
 def _default_spec() -> Path:
-    return Path(str(resources.files("matgen.lut").joinpath("specs", "default.toml")))
+    from matgen.tables.store import lut_files
+
+    return lut_files() / "specs" / "default.toml"
 
 
 def bench_build(spec_path, workers=None) -> dict:

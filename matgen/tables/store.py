@@ -506,9 +506,29 @@ class Table:
             ) from exc
 
 
+def lut_files() -> Path:
+    """Folder of the shipped tables and their specs.
+
+    Installed, this is the package ``matgen.lut`` (the repository's top-level ``lut/`` folder, mapped by
+    ``pyproject.toml``). Imported from a source checkout (``python -m pytest`` in the repository puts the
+    checkout's ``matgen/`` first on ``sys.path``), ``matgen.lut`` does not exist as a subfolder, and the
+    checkout's ``lut/`` beside ``matgen/`` is used instead.
+    """
+    try:
+        return Path(str(resources.files("matgen.lut")))
+    except ModuleNotFoundError:
+        checkout = Path(__file__).resolve().parents[2] / "lut"
+        if (checkout / "__init__.py").is_file():
+            return checkout
+        raise TableError(
+            "the shipped tables cannot be found: neither the package matgen.lut is installed nor is there "
+            f"a lut/ folder at {checkout}; reinstall matgen with 'pip install .'"
+        ) from None
+
+
 def default_table_path() -> Path:
-    """Path of the shipped default table (``default.npz`` of the installed ``matgen.lut`` package)."""
-    return Path(str(resources.files("matgen.lut").joinpath("default.npz")))
+    """Path of the shipped default table (``default.npz`` in :func:`lut_files`)."""
+    return lut_files() / "default.npz"
 
 
 def load_default_table() -> Table:
@@ -516,7 +536,7 @@ def load_default_table() -> Table:
     path = default_table_path()
     if not path.is_file():
         raise TableError(
-            f"the default table {path.name} is missing from the installed matgen.lut package; "
+            f"the default table {path.name} is missing from {path.parent}; "
             "build one with 'matgen table build' and pass it explicitly"
         )
     return Table.load(path)

@@ -7,18 +7,19 @@ run (see killlib.py); the whole process group is killed, as when a farm node die
 """
 
 import warnings
-from importlib import resources
 from pathlib import Path
 
 import pytest
 from killlib import digest_tree, kill_campaign, run_child
+
+from matgen.tables.store import lut_files
 
 TABLE_IGNORE = ("t.json", "t.job/tasks/*.json")  # wall times, host and PID: run-dependent by design
 
 
 def _tiny_spec(tmp_path, photons=1500) -> Path:
     """lut/specs/tiny.toml with fewer photons and two bands (the kill test needs a real build, not accuracy)."""
-    text = resources.files("matgen.lut").joinpath("specs", "tiny.toml").read_text()
+    text = lut_files().joinpath("specs", "tiny.toml").read_text()
     for old, new in (
         ("photons_per_band = 4000", f"photons_per_band = {photons}"),
         ("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [450.0, 650.0]"),

@@ -117,12 +117,12 @@ def test_lock_of_another_host_is_not_taken_over(tmp_path):
 
 def test_same_table_task_run_twice_at_once_is_computed_once(tmp_path):
     """Two `matgen table run-task JOB 0` processes started together: both exit 0, one output, one record."""
-    from importlib import resources
+    from matgen.tables.store import lut_files
 
     from matgen.tables.build import plan_job
     from matgen.tables.tasks import task_state
 
-    text = resources.files("matgen.lut").joinpath("specs", "tiny.toml").read_text()
+    text = lut_files().joinpath("specs", "tiny.toml").read_text()
     text = text.replace("photons_per_band = 4000", "photons_per_band = 1000")
     spec = tmp_path / "spec.toml"
     spec.write_text(text)

@@ -8,11 +8,12 @@ reverse order and merged; bakes with 1 and 2 lookup threads and UDIM tiles baked
 
 import hashlib
 import warnings
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
 import pytest
+
+from matgen.tables.store import lut_files
 
 
 def _sha(path) -> str:
@@ -97,7 +98,7 @@ def test_reweight_is_bit_identical_for_1_and_2_threads():
 
 def _spec(tmp_path) -> Path:
     """lut/specs/tiny.toml with two bands and fewer photons: a real build, small enough to run four times."""
-    text = resources.files("matgen.lut").joinpath("specs", "tiny.toml").read_text()
+    text = lut_files().joinpath("specs", "tiny.toml").read_text()
     for old, new in (
         ("photons_per_band = 4000", "photons_per_band = 1500"),
         ("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [450.0, 650.0]"),

@@ -281,9 +281,9 @@ def known_open(failure) -> str | None:
 
 
 def _lut_spec_texts() -> list:
-    import importlib.resources as ir
+    from matgen.tables.store import lut_files
 
-    root = ir.files("matgen.lut").joinpath("specs")
+    root = lut_files().joinpath("specs")
     return [root.joinpath(n).read_bytes() for n in ("tiny.toml", "default.toml")]
 
 

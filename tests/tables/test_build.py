@@ -11,7 +11,6 @@ import signal
 import subprocess
 import sys
 import time
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -23,9 +22,10 @@ from matgen.tables.build import build_table, merge_job, plan_job
 from matgen.tables.executors import run_job
 from matgen.tables.plan import JobFolder, task_seed
 from matgen.tables.spec import load_spec
+from matgen.tables.store import lut_files
 from matgen.tables.tasks import job_states, run_task
 
-SPEC = Path(str(resources.files("matgen.lut").joinpath("specs", "tiny.toml")))
+SPEC = lut_files() / "specs" / "tiny.toml"
 
 
 @pytest.fixture(scope="module")

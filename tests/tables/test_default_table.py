@@ -1,16 +1,15 @@
 """The shipped default table: built from the shipped spec, complete, finite, and within its error target."""
 
-from importlib import resources
 
 import numpy as np
 
 from matgen.tables.spec import load_spec
-from matgen.tables.store import default_table_path, load_default_table
+from matgen.tables.store import default_table_path, load_default_table, lut_files
 
 
 def test_default_table_matches_its_spec_and_error_target():
     table = load_default_table()  # also checks the .npz against the SHA-256 in default.json
-    spec = load_spec(resources.files("matgen.lut").joinpath("specs", "default.toml"))
+    spec = load_spec(lut_files().joinpath("specs", "default.toml"))
     assert table.manifest["spec"] == spec.to_dict()  # built from the spec that ships beside it
     assert table.axis_names == spec.axis_names and table.grid_shape == spec.grid_shape
     assert len(table.bands) == 71

@@ -94,9 +94,9 @@ def test_load_spec_file_and_toml_errors(tmp_path):
 
 
 def test_shipped_specs_parse():
-    from importlib import resources
+    from matgen.tables.store import lut_files
 
-    root = resources.files("matgen.lut").joinpath("specs")
+    root = lut_files().joinpath("specs")
     names = [e.name for e in root.iterdir() if e.name.endswith(".toml")]
     assert "default.toml" in names
     for name in names:
