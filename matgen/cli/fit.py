@@ -4,8 +4,11 @@ Input: the JSON that ``matgen simulate STACK.json --profile --json`` writes: one
 (:meth:`TransportResult.to_dict`, one band, optionally with ``wavelength_nm``), or ``{"bands": [one result
 per band, each with wavelength_nm]}`` (bands of 10 nm around each wavelength, narrower where neighbours are
 closer). Also accepted: ``{"bands": {centre_nm, lower_nm, upper_nm}, "results": [...]}`` with explicit band
-edges. A ``"stack"`` entry (``Stack.to_dict``), if present, supplies the default boundary index (its first
-layer's n); otherwise give ``--ior`` (default 1.0, index matched).
+edges. A ``"stack"`` entry (``Stack.to_dict``, written by ``matgen simulate --json`` beside every result)
+supplies the effective medium's defaults: the boundary index is the first layer's n, and g is the mean layer g
+over the scattering events (each layer weighted by mu_s times the path length its absorbed fraction implies,
+:func:`matgen.fit.layered.effective_anisotropy`). Without a stack give ``--ior`` and ``--anisotropy``
+(defaults 1.0, index matched, and 0, isotropic).
 """
 
 from __future__ import annotations
@@ -42,7 +45,11 @@ def register(sub):
         "--json", action="store_true", help="write JSON to standard output instead of a text table"
     )
     p.add_argument(
-        "--anisotropy", type=float, default=0.0, help="Henyey-Greenstein g of the effective medium"
+        "--anisotropy",
+        type=float,
+        default=None,
+        help="Henyey-Greenstein g of the effective medium (default: the stack's scattering-weighted mean "
+        "layer g per band when the result carries its stack, else 0)",
     )
     p.add_argument(
         "--ior",
@@ -64,6 +71,14 @@ def register(sub):
     )
     p.add_argument("--working-space", default="ACEScg", help="RGB working space for the RGB targets")
     p.add_argument("--illuminant", default="D65", help="illuminant for the RGB targets")
+    p.add_argument(
+        "--passes",
+        nargs="*",
+        default=None,
+        metavar="NAME_OR_CSV",
+        help="single-channel camera + filter passes to report (built-in uv365, nir850, nir940, or CSV files "
+        "wavelength_nm,weight; default: every built-in pass the bands reach)",
+    )
     p.set_defaults(func=run)
 
 
@@ -108,19 +123,90 @@ def _read(path: Path):
     for i, r in enumerate(results[1:], start=1):
         if not np.array_equal(np.asarray(r.ring_edges_mm), edges):
             raise ConfigError(f"{path.name}: result {i} uses other ring edges than result 0")
-    stack = doc.get("stack")
-    return results, bands, stack
+    if isinstance(doc.get("bands"), list):
+        stacks = [r.get("stack") if isinstance(r, dict) else None for r in doc["bands"]]
+    else:
+        stacks = [doc.get("stack")]
+    if not all(isinstance(st, dict) for st in stacks):
+        stacks = None
+    return results, bands, stacks
+
+
+def _stack_defaults(path: Path, results, stacks) -> tuple:
+    """(ior, g per band) of the effective medium from the stacks the results carry (see the module doc)."""
+    from matgen.errors import StackError
+    from matgen.fit.layered import effective_anisotropy, layer_path_lengths_mm
+
+    gs = []
+    try:
+        for b, (r, st) in enumerate(zip(results, stacks, strict=True)):
+            layers = st["layers"]
+            cols = {
+                k: np.array([float(layer[k]) for layer in layers])
+                for k in ("mu_a", "mu_s", "g", "thickness_mm")
+            }
+            absorbed = np.asarray(r.absorbed, dtype=np.float64)
+            if absorbed.shape != cols["mu_a"].shape:
+                raise StackError(
+                    f"{path.name}: result {b} has {absorbed.size} absorbed fractions for {len(layers)} layers"
+                )
+            path_mm = layer_path_lengths_mm(cols["mu_a"], absorbed, cols["thickness_mm"])
+            gs.append(float(effective_anisotropy(cols["g"], cols["mu_s"], path_mm)))
+        ior = float(stacks[0]["layers"][0]["n"])
+    except (KeyError, TypeError, ValueError, IndexError) as exc:
+        raise ConfigError(f"{path.name}: the 'stack' entry is not a matgen stack ({exc})") from exc
+    if not (np.all(np.isfinite(gs)) and np.isfinite(ior) and ior >= 1.0):
+        raise ConfigError(
+            f"{path.name}: the 'stack' entry gives g {gs} and n {ior}; need finite g and n >= 1"
+        )
+    return ior, np.array(gs)
+
+
+def _pass_values(bands, a, a_err, passes) -> dict:
+    """Pass values (weights @ A, with standard error) for named or CSV passes; {} without labelled bands."""
+    from matgen.color import BUILTIN_PASSES, pass_weights
+    from matgen.errors import DataError
+
+    out = {}
+    for name in BUILTIN_PASSES if passes is None else passes:
+        try:
+            w = pass_weights(name, bands)
+        except DataError:
+            if passes is None:  # a built-in pass the bands do not reach is left out of the default list
+                continue
+            raise
+        out[str(name)] = {
+            "value": float(w @ a),
+            "stderr": float(np.sqrt((w * w) @ (a_err * a_err))),
+        }
+    return out
 
 
 def fit_document(
-    results, bands, *, anisotropy, ior, inversion, metres_per_scene_unit, working_space, illuminant
+    results,
+    bands,
+    *,
+    anisotropy,
+    ior,
+    inversion,
+    metres_per_scene_unit,
+    working_space,
+    illuminant,
+    passes=None,
 ):
-    """All fits for a list of per-band results: a JSON-ready dict (also the Python API of ``matgen fit``)."""
+    """All fits for a list of per-band results: a JSON-ready dict (also the Python API of ``matgen fit``).
+
+    ``anisotropy`` is one g or one per band; ``passes`` lists pass names or CSV paths (None: every built-in
+    pass the bands reach; passes need labelled bands).
+    """
+    from matgen.color.colorimetry import resolve_illuminant, resolve_space
     from matgen.fit.fitting import fit_dipole_Jensen2001, fit_gaussians_dEon2007
     from matgen.fit.inversion import albedo_single_OpenPBR2024
     from matgen.fit.summary import resolve_inversion, summarize
     from matgen.fit.targets import TARGETS, EffectiveMedium
 
+    resolve_space(working_space)  # an unknown name is an error even when no band is visible
+    resolve_illuminant(illuminant)
     method = resolve_inversion(inversion)
     nb = len(results)
     if bands is None:
@@ -133,7 +219,7 @@ def fit_document(
     a_err = np.array([[r.diffuse_reflectance.stderr for r in results]])
     y = np.array([[np.asarray(r.radial_reflectance_per_mm2) for r in results]])
     s = np.array([[np.asarray(r.radial_stderr_per_mm2) for r in results]])
-    g = np.full(nb, float(anisotropy))
+    g = np.broadcast_to(np.asarray(anisotropy, dtype=np.float64), (nb,)).copy()
     rgb_ok = labelled and bool(np.any((bands.upper_nm > 360.0) & (bands.lower_nm < 830.0)))
     space = working_space if rgb_ok else "ACEScg"
     if rgb_ok:
@@ -203,11 +289,15 @@ def fit_document(
             targets[name] = TARGETS[name].to_inputs(
                 spectral, metres_per_scene_unit=metres_per_scene_unit, **opts
             )
+            targets[name]["fit_residual"] = q["fit_residual"][0].tolist()
         if rgb_ok:
+            from matgen.fit.channels import channel_anisotropy, rgb_weights
+
+            rgb_g = channel_anisotropy(rgb_weights(bands, space, illuminant), a, g)[0]
             rgb = EffectiveMedium(
                 q["rgb_albedo_single"][0],
                 q["rgb_mean_free_path_mm"][0],
-                float(anisotropy),
+                rgb_g,
                 ior,
                 albedo_multiple=q["rgb_albedo_multiple"][0],
             )
@@ -224,6 +314,10 @@ def fit_document(
         "targets": targets,
         "clamp_warnings": clamps,
     }
+    if labelled:
+        doc["passes"] = _pass_values(bands, a[0], a_err[0], passes)
+    elif passes:
+        raise FitError("passes need bands with wavelengths (a result with wavelength_nm)")
     if rgb_ok:
         doc["rgb"] = {
             "working_space": space,
@@ -244,21 +338,20 @@ def fit_document(
 
 def run(args) -> int:
     path = Path(args.result)
-    results, bands, stack = _read(path)
-    ior = args.ior
-    if ior is None:
-        ior = 1.0
-        if isinstance(stack, dict) and stack.get("layers"):
-            ior = float(stack["layers"][0].get("n", 1.0))
+    results, bands, stacks = _read(path)
+    stack_ior, stack_g = (1.0, 0.0) if stacks is None else _stack_defaults(path, results, stacks)
+    ior = stack_ior if args.ior is None else args.ior
+    anisotropy = stack_g if args.anisotropy is None else args.anisotropy
     doc = fit_document(
         results,
         bands,
-        anisotropy=args.anisotropy,
+        anisotropy=anisotropy,
         ior=ior,
         inversion=args.inversion,
         metres_per_scene_unit=args.metres_per_scene_unit,
         working_space=args.working_space,
         illuminant=args.illuminant,
+        passes=args.passes,
     )
     if args.json:
         json.dump(doc, sys.stdout, indent=2)
@@ -286,6 +379,8 @@ def run(args) -> int:
             if isinstance(v, list) and len(v) > 6:
                 v = f"[{len(v)} values: {v[0]:.6g} ... {v[-1]:.6g}]"
             out.write(f"  {k}: {v}\n")
+    for name, v in doc.get("passes", {}).items():
+        out.write(f"pass {name}: {v['value']:.5f} +- {v['stderr']:.5f}\n")
     for msg in doc["clamp_warnings"]:
         out.write(f"warning: {msg}\n")
     return 0

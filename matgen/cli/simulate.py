@@ -146,6 +146,7 @@ def run(args) -> int:
         d = r.to_dict(profile=args.profile)
         d.pop("tally_fixed_point", None)
         d["layers"] = list(stack.names)
+        d["stack"] = stack.to_dict()  # matgen fit takes the effective medium's default g and n from it
         if wave is not None:
             d = {"wavelength_nm": wave, **d}
         results.append(d)

@@ -152,7 +152,7 @@ def shape_scaling_Christensen2015(albedo_multiple, configuration="searchlight_mf
 
     References
     ----------
-    ``Christensen2015``, Sec. 5 (coefficients from memory, as quoted in the project's design notes; the
+    ``Christensen2015``, Sec. 5 (coefficients recalled from memory of the paper, not re-read; the
     assignment of each fit to a length scale is the one matgen's transport confirms, see above).
 
     """
@@ -201,7 +201,7 @@ def shape_scaling(albedo_multiple, method="Christensen2015_searchlight_mfp"):
 # --------------------------------------------------------------------------------------------------------
 
 #: Variances (mm^2) of the six Gaussians of d'Eon & Luebke 2007, GPU Gems 3 ch. 14, Table 14-1
-#: (their three-layer skin fit); values as quoted in the project's design notes (from memory).
+#: (their three-layer skin fit); values recalled from memory of the chapter, not re-read.
 GAUSSIAN_VARIANCES_DEON2007_MM2 = np.array([0.0064, 0.0484, 0.187, 0.567, 1.99, 7.41])
 
 

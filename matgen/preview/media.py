@@ -14,6 +14,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from matgen.errors import DependencyError
+from matgen.fit.layered import effective_anisotropy as effective_anisotropy_of_paths
+from matgen.fit.layered import layer_path_lengths_mm
 from matgen.spectra.bands import BandSet
 from matgen.transport.stack import Stack
 
@@ -105,13 +107,12 @@ def skin_runs(label: str, params, bands: BandSet, photons: int, seed: int = 0) -
 
 
 def effective_anisotropy(stack: Stack, absorbed) -> float:
-    """Mean HG g over the scattering events in a layered stack, weighted by each layer's mean path length.
+    """Mean HG g over the scattering events in a layered stack (``matgen.fit.layered``).
 
-    ``g_eff = sum_i g_i mu_s,i l_i / sum_i mu_s,i l_i`` with the weight-averaged path length of light in layer
-    i, ``l_i = absorbed_i / mu_a,i`` (the absorbed fraction of a layer is mu_a,i times the path length it
-    integrates, [Alerstam2008white]); a layer with mu_a = 0 uses its thickness. The table build weights the
-    same sum by the path lengths of reflected light only, where photon records are at hand; for the effective
-    medium's g the two differ little, and the collapse comparison prints the g it used.
+    The path length of light in layer i comes from its absorbed fraction, ``l_i = absorbed_i / mu_a,i``
+    (:func:`matgen.fit.layered.layer_path_lengths_mm`; a layer with mu_a = 0 uses its thickness). The table
+    build weights the same sum by the path lengths of reflected light only, where photon records are at hand;
+    for the effective medium's g the two differ little, and the collapse comparison prints the g it used.
 
     Parameters
     ----------
@@ -126,12 +127,8 @@ def effective_anisotropy(stack: Stack, absorbed) -> float:
         Effective anisotropy.
 
     """
-    mu_a = np.asarray(stack.mu_a, np.float64)
-    ab = np.asarray(absorbed, np.float64)
-    path = np.where(mu_a > 0, ab / np.where(mu_a > 0, mu_a, 1.0), np.asarray(stack.thickness_mm, np.float64))
-    w = path * np.asarray(stack.mu_s, np.float64)
-    total = float(w.sum())
-    return float((w * np.asarray(stack.g)).sum() / total) if total > 0 else float(np.mean(stack.g))
+    path = layer_path_lengths_mm(stack.mu_a, absorbed, stack.thickness_mm)
+    return float(effective_anisotropy_of_paths(stack.g, stack.mu_s, path))
 
 
 def skin_summary(runs: SkinRuns) -> dict:

@@ -20,6 +20,7 @@ from __future__ import annotations
 import numpy as np
 
 from matgen.errors import TableError
+from matgen.fit.layered import effective_anisotropy
 from matgen.tables.plan import JobFolder
 from matgen.tables.store import Table
 from matgen.tables.tasks import job_states, load_task_output
@@ -66,29 +67,6 @@ def _ranges(indices) -> str:
     if start is not None:
         out.append(f"{start}-{prev}" if prev > start else f"{start}")
     return ", ".join(out)
-
-
-def effective_anisotropy(g, mu_s_per_mm, reflected_path_mm):
-    """Mean Henyey-Greenstein g over the scattering events of reflected light in a layered stack.
-
-    Parameters
-    ----------
-    g, mu_s_per_mm : ndarray, shape (L,)
-        Layer anisotropy and scattering coefficient (1/mm).
-    reflected_path_mm : ndarray, shape (K, L)
-        Weight-averaged path length (mm) of the diffusely reflected light in each layer, for K grid points.
-
-    Returns
-    -------
-    ndarray, shape (K,)
-        ``sum g mu_s l / sum mu_s l``; the plain mean of g where no light was reflected.
-        Source: ``Alerstam2008white`` (path lengths from photon records).
-
-    """
-    w = np.asarray(reflected_path_mm, np.float64) * np.asarray(mu_s_per_mm, np.float64)[None, :]
-    total = w.sum(axis=1)
-    g_eff = (w * np.asarray(g, np.float64)[None, :]).sum(axis=1) / np.where(total > 0, total, 1.0)
-    return np.where(total > 0, g_eff, float(np.mean(g)))
 
 
 def assemble(job: JobFolder) -> dict:

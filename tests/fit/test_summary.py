@@ -173,3 +173,60 @@ def test_simulate_then_fit_end_to_end(tmp_path, capsys):
     alpha_true = 20.0 / (20.0 + np.array([0.3, 0.1, 0.02]))
     np.testing.assert_allclose([b["albedo_single"] for b in out["bands"]], alpha_true, atol=0.01)
     assert "openpbr" in out["targets"]
+
+
+def test_fit_takes_the_effective_g_and_n_from_the_stack_and_reports_passes(tmp_path, capsys):
+    """Without --anisotropy / --ior, `matgen fit` uses the stack that `matgen simulate --json` writes beside
+    each result: n of the first layer, and g as the scattering-weighted mean layer g (a single homogeneous
+    layer must give back its own g exactly). Passes and the spectral targets' fit residuals are reported."""
+    stack = {
+        "n_above": 1.0,
+        "n_below": 1.4,
+        "wavelength_nm": [350.0, 550.0, 850.0],
+        "layers": [
+            {"name": "top", "thickness_mm": 0.1, "n": 1.45, "mu_a": [2.0, 1.0, 0.3], "mu_s": 30.0, "g": 0.7},
+            {"name": "bulk", "thickness_mm": 20.0, "n": 1.45, "mu_a": [0.3, 0.1, 0.02], "mu_s": 20.0,
+             "g": 0.9},
+        ],
+    }
+    (tmp_path / "stack.json").write_text(json.dumps(stack))
+    assert main(["simulate", str(tmp_path / "stack.json"), "--photons", "4000", "--profile", "--json"]) == 0
+    (tmp_path / "result.json").write_text(capsys.readouterr().out)
+    assert main(["fit", str(tmp_path / "result.json"), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["ior"] == 1.45
+    g = np.array([b["anisotropy"] for b in out["bands"]])
+    assert np.all((g > 0.7) & (g < 0.9))  # strictly between the layers' g: both layers scatter
+    # deeper-reaching light (less absorption, longer wavelength) spends more of its path in the g = 0.9 bulk
+    assert g[0] < g[1] < g[2]
+    for name in ("spectral_medium", "reflectance_mfp"):
+        assert len(out["targets"][name]["fit_residual"]) == 3
+    assert set(out["passes"]) == {"uv365", "nir850"}  # nir940 lies outside the 845-855 nm band
+    assert out["passes"]["nir850"]["value"] == pytest.approx(out["bands"][2]["albedo_multiple"], rel=1e-12)
+    # explicit options win over the stack
+    assert main(["fit", str(tmp_path / "result.json"), "--json", "--anisotropy", "0.5", "--ior", "1.3"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["ior"] == 1.3 and all(b["anisotropy"] == 0.5 for b in out["bands"])
+
+
+def test_effective_anisotropy_of_one_layer_and_of_equal_paths():
+    from matgen.fit.layered import effective_anisotropy, layer_path_lengths_mm
+
+    path = layer_path_lengths_mm([0.5, 0.0], [0.1, 0.2], [1.0, 3.0])
+    np.testing.assert_allclose(path, [0.2, 3.0])  # absorbed / mu_a; thickness where mu_a = 0
+    assert effective_anisotropy([0.8], [10.0], [[0.4]])[0] == pytest.approx(0.8)
+    # equal scattering events in both layers: the plain mean
+    assert effective_anisotropy([0.6, 0.9], [10.0, 20.0], [2.0, 1.0]) == pytest.approx(0.75)
+    # no light scattered anywhere: the plain mean of g, not a division by zero
+    assert effective_anisotropy([0.6, 0.9], [0.0, 0.0], [1.0, 1.0]) == pytest.approx(0.75)
+
+
+def test_fit_refuses_unknown_working_space_without_visible_bands(tmp_path, capsys):
+    """An unknown working space is an error even when no band reaches the visible (it used to be ignored)."""
+    stack = {"n_above": 1.0, "n_below": 1.0, "wavelength_nm": [900.0],
+             "layers": [{"thickness_mm": 5.0, "n": 1.0, "mu_a": [0.05], "mu_s": 10.0, "g": 0.0}]}
+    (tmp_path / "stack.json").write_text(json.dumps(stack))
+    assert main(["simulate", str(tmp_path / "stack.json"), "--photons", "2000", "--profile", "--json"]) == 0
+    (tmp_path / "result.json").write_text(capsys.readouterr().out)
+    assert main(["fit", str(tmp_path / "result.json"), "--working-space", "no-such-space"]) == 2
+    assert "no-such-space" in capsys.readouterr().err
