@@ -27,6 +27,9 @@ name                   default          environment variable            meaning
                        (16 GiB)                                         records, image) in bytes
 ``text_bytes``         67108864         ``MATGEN_MAX_TEXT_BYTES``       size of a text input file (TOML, JSON,
                        (64 MiB)                                         CSV) in bytes
+``records_bytes``      8589934592       ``MATGEN_MAX_RECORDS_BYTES``    memory of the photon records of one
+                       (8 GiB)                                          transport run or records file (photons x
+                                                                        (8 x layers + 17) bytes)
 =====================  ===============  ==============================  =========================================
 
 Precedence: a value set with :func:`set_limit` or :func:`override` wins over the environment variable, which
@@ -55,6 +58,7 @@ DEFAULTS: dict[str, tuple[int, str, str]] = {
     "photons": (MAX_PHOTONS, "MATGEN_MAX_PHOTONS", "photons"),
     "file_bytes": (16 << 30, "MATGEN_MAX_FILE_BYTES", "bytes"),
     "text_bytes": (64 << 20, "MATGEN_MAX_TEXT_BYTES", "bytes"),
+    "records_bytes": (8 << 30, "MATGEN_MAX_RECORDS_BYTES", "bytes"),
 }
 
 _overrides: dict[str, int] = {}

@@ -17,7 +17,9 @@ field              dtype        meaning
 =================  ===========  =====================================================================
 
 Memory: 8 L + 17 bytes per photon (57 bytes for 5 layers: 57 MB per 10^6 photons), plus a few hundred
-bytes of metadata (the stack, reference absorption, seed, photon range, launch).
+bytes of metadata (the stack, reference absorption, seed, photon range, launch). The ``records_bytes``
+ceiling of :mod:`matgen.limits` (environment variable ``MATGEN_MAX_RECORDS_BYTES``, default 8 GiB) bounds
+it: a run, a concatenation or a records file that would need more is refused before anything is allocated.
 
 References: ``Alerstam2008white``, ``Graaff1993condensed``.
 """
@@ -31,9 +33,10 @@ from pathlib import Path
 
 import numpy as np
 
-from matgen.errors import DataError, ParameterError
+from matgen import limits
+from matgen.errors import DataError, MatgenError, ParameterError
 from matgen.fsutil import atomic_path
-from matgen.npzio import read_npz_checked
+from matgen.npzio import CORRUPT_ARCHIVE_ERRORS, read_npz_checked
 
 _ARRAYS = ("path_mm", "weighted_path_mm", "exit_radius_mm", "exit_cos", "max_depth_mm", "weight", "side")
 _FORMAT = "matgen.photon_records/1"
@@ -42,6 +45,60 @@ _FORMAT = "matgen.photon_records/1"
 def bytes_per_photon(n_layers: int) -> int:
     """Memory of one photon record in bytes: 8 per layer plus 17."""
     return 8 * int(n_layers) + 17
+
+
+def check_records_memory(photons: int, n_layers: int, what: str = "photon records") -> int:
+    """Check the memory that records of ``photons`` photons on ``n_layers`` layers need, before allocating.
+
+    Parameters
+    ----------
+    photons : int
+        Photon records to hold (dimensionless).
+    n_layers : int
+        Layers of the stack (each adds two float32 path lengths per photon).
+    what : str
+        What the records are, for the message (a run, a file).
+
+    Returns
+    -------
+    int
+        The memory in bytes (``photons x bytes_per_photon(n_layers)``).
+
+    Raises
+    ------
+    LimitError
+        Above the ``records_bytes`` ceiling (``MATGEN_MAX_RECORDS_BYTES``).
+
+    """
+    per = bytes_per_photon(n_layers)
+    need = int(photons) * per
+    if need <= 0:
+        return 0
+    return limits.check_count(
+        need,
+        "records_bytes",
+        f"the memory of {what} ({int(photons)} photons x {per} bytes for {n_layers} layers)",
+    )
+
+
+def _declared_records_bytes(path: Path) -> int:
+    """Bytes the arrays of a records ``.npz`` declare in their ``.npy`` headers (no data is read)."""
+    total = 0
+    with zipfile.ZipFile(path) as zf:
+        for member in zf.namelist():
+            if not member.endswith(".npy"):
+                continue  # read_npz_checked names the unexpected member
+            with zf.open(member) as fh:
+                version = np.lib.format.read_magic(fh)
+                if version == (1, 0):
+                    shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
+                else:
+                    shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
+            count = 1
+            for n in shape:
+                count *= max(0, int(n))  # Python ints: no overflow on hostile shapes
+            total += count * int(dtype.itemsize)
+    return total
 
 
 @dataclass
@@ -98,8 +155,30 @@ class PhotonRecords:
 
     @classmethod
     def load(cls, path) -> PhotonRecords:
-        """Read records written by :meth:`save`; a malformed file raises :class:`DataError` naming it."""
+        """Read records written by :meth:`save`.
+
+        Raises
+        ------
+        DataError
+            A malformed, truncated or corrupt file (the message names it).
+        LimitError
+            A file larger than the ``file_bytes`` ceiling, or whose arrays declare more memory than the
+            ``records_bytes`` ceiling (checked on the ``.npy`` headers before any array is read).
+
+        """
         p = Path(path)
+        limits.check_file_size(p, "photon records file")
+        try:
+            declared = _declared_records_bytes(p)
+        except MatgenError:
+            raise
+        except CORRUPT_ARCHIVE_ERRORS as exc:
+            raise DataError(
+                f"photon records file '{p}' is truncated or corrupt ({type(exc).__name__}: {exc})"
+            ) from exc
+        limits.check_count(
+            max(declared, 1), "records_bytes", f"the memory the arrays of photon records file '{p}' declare"
+        )
         try:
             z = read_npz_checked(p, "photon records file")  # declared shapes checked against limits first
             meta = json.loads(str(z["meta"]))
@@ -147,6 +226,9 @@ class PhotonRecords:
                         f"photon records part {i} differs from part 0 in '{k}'; "
                         "only records of the same stack, absorption, seed and launch join"
                     )
+        check_records_memory(
+            sum(p.photons for p in parts), first.n_layers, f"the concatenation of {len(parts)} photon records"
+        )
         arrays = {a: np.concatenate([getattr(p, a) for p in parts]) for a in _ARRAYS}
         meta = dict(first.meta)
         meta["photons"] = int(arrays["weight"].size)

@@ -25,7 +25,7 @@ from matgen import limits
 from matgen.errors import LimitError, ParameterError, StackError
 from matgen.transport import kernels as K
 from matgen.transport.boundary import fresnel
-from matgen.transport.records import PhotonRecords
+from matgen.transport.records import PhotonRecords, check_records_memory
 from matgen.transport.results import TransportResult
 from matgen.transport.stack import Stack
 from matgen.transport.tallies import result_from_tallies
@@ -159,7 +159,8 @@ def simulate(
     Raises
     ------
     StackError, ParameterError, LimitError
-        For a malformed stack, bad settings or a photon count above the ceiling.
+        For a malformed stack, bad settings, a photon count above the ceiling, or (with ``records``) photon
+        records needing more memory than the ``records_bytes`` ceiling (checked before allocating them).
 
     Notes
     -----
@@ -174,6 +175,8 @@ def simulate(
             f"the photon count {n} exceeds {FIXED_POINT_PHOTON_CEILING}, the most one run's "
             "fixed-point tallies hold exactly; split the run with first_photon and combine()"
         )
+    if records:  # before anything of the run is allocated
+        check_records_memory(n, stack.n_layers, f"the photon records of a {n}-photon run")
     seed = _check_int(seed, "seed", 0, 2**64 - 1)
     first = _check_int(first_photon, "first_photon", 0, 2**62)
     nthreads = resolve_threads(threads)

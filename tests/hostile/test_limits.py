@@ -180,3 +180,71 @@ def test_text_file_grown_past_the_ceiling_is_refused(tmp_path):
     with limits.override(text_bytes=(2 << 20) + 5):
         with pytest.raises(LimitError):
             limits.read_text_limited(p, "config")
+
+
+# ---------------------------------------------------------------------------------------------------------
+# photon records: 8 x layers + 17 bytes per photon, bounded by the records_bytes ceiling
+
+
+def _five_layers():
+    from matgen.transport.stack import Stack
+
+    return Stack([0.1] * 5, [1.4] * 5, [0.5] * 5, [30.0] * 5, [0.8] * 5)
+
+
+def test_records_run_above_the_records_ceiling_is_a_limit_error(monkeypatch):
+    """1000 photons on 5 layers need 57000 bytes of records: refused under MATGEN_MAX_RECORDS_BYTES=50000."""
+    from matgen.transport.simulate import simulate
+
+    monkeypatch.setenv("MATGEN_MAX_RECORDS_BYTES", "50000")
+    with pytest.raises(LimitError, match="MATGEN_MAX_RECORDS_BYTES") as exc:
+        simulate(_five_layers(), 1000, seed=1, threads=1, records=True)
+    assert "57000" in str(exc.value) and "50000" in str(exc.value)
+    # the same run without records needs no record memory, and 877 photons (49989 bytes) fit
+    simulate(_five_layers(), 1000, seed=1, threads=1)
+    _, rec = simulate(_five_layers(), 877, seed=1, threads=1, records=True)
+    assert rec.nbytes == 877 * 57
+
+
+def test_records_of_a_large_run_are_refused_before_allocation():
+    """10^9 photons (under the photon ceiling) with records on 5 layers need 57 GB: LimitError, no MemoryError."""
+    import tracemalloc
+
+    from matgen.transport.simulate import simulate
+
+    assert 10**9 <= limits.get_limit("photons")
+    tracemalloc.start()
+    try:
+        with pytest.raises(LimitError, match="records"):
+            simulate(_five_layers(), 10**9, seed=1, threads=1, records=True)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak < 50e6, f"{peak / 1e6:.0f} MB allocated while refusing the records"
+
+
+def test_records_concatenation_above_the_ceiling_is_a_limit_error():
+    from matgen.transport.records import PhotonRecords
+    from matgen.transport.simulate import simulate
+
+    parts = [
+        simulate(_five_layers(), 500, seed=1, threads=1, first_photon=i * 500, records=True)[1]
+        for i in range(2)
+    ]
+    with limits.override(records_bytes=57 * 999):
+        with pytest.raises(LimitError, match="concatenation"):
+            PhotonRecords.concatenate(parts)
+    assert PhotonRecords.concatenate(parts).photons == 1000
+
+
+def test_records_file_declaring_more_than_the_ceiling_is_refused_before_reading(tmp_path):
+    """A saved 1000-photon records file (57000 bytes of arrays) loads by default, is refused under 50000."""
+    from matgen.transport.records import PhotonRecords
+    from matgen.transport.simulate import simulate
+
+    _, rec = simulate(_five_layers(), 1000, seed=1, threads=1, records=True)
+    rec.save(tmp_path / "rec.npz")
+    assert PhotonRecords.load(tmp_path / "rec.npz").photons == 1000
+    with limits.override(records_bytes=50000):
+        with pytest.raises(LimitError, match="rec.npz"):
+            PhotonRecords.load(tmp_path / "rec.npz")
