@@ -207,7 +207,7 @@ def test_records_run_above_the_records_ceiling_is_a_limit_error(monkeypatch):
 
 
 def test_records_of_a_large_run_are_refused_before_allocation():
-    """10^9 photons (under the photon ceiling) with records on 5 layers need 57 GB: LimitError, no MemoryError."""
+    """10^9 photons (under the photon ceiling) with records on 5 layers need 57 GB: LimitError first."""
     import tracemalloc
 
     from matgen.transport.simulate import simulate
