@@ -156,3 +156,52 @@ def test_preview_command_for_a_preset(tmp_path):
     assert rc == 0
     for name in ("spectra.png", "profiles.png", "patch.png"):
         assert not images.image_check(out / name)["blank"], name
+
+
+def test_preview_command_for_a_descriptor_and_a_table_slice(tmp_path, baked_material, test_table):
+    """``matgen preview --descriptor ... --table ... --slice X Y``: the contact sheet of the baked maps, the
+    spectra of three texels and the table heat map, each a real (non-blank) image of a sensible size."""
+    from matgen.preview import images
+
+    table_path = test_table.save(tmp_path / "t.npz")
+    out = tmp_path / "pv"
+    rc = main(
+        [
+            "preview",
+            "--descriptor",
+            str(baked_material),
+            "--table",
+            str(table_path),
+            "--slice",
+            "melanin_fraction",
+            "blood_fraction",
+            "--out",
+            str(out),
+        ]
+    )
+    assert rc == 0
+    names = [
+        "contact_sheet.png",
+        "texel_spectra.png",
+        "table_albedo_multiple_melanin_fraction_blood_fraction.png",
+    ]
+    for name in names:
+        info = images.image_check(out / name)
+        assert info["width"] >= 400 and info["height"] >= 300, (name, info)
+        assert not info["blank"], name
+    # a slice over an axis the table does not have is one error line and exit status 2
+    assert (
+        main(
+            [
+                "preview",
+                "--table",
+                str(table_path),
+                "--slice",
+                "melanin",
+                "blood_fraction",
+                "--out",
+                str(tmp_path / "bad"),
+            ]
+        )
+        == 2
+    )
