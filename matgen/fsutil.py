@@ -18,7 +18,8 @@ import time
 import warnings
 from pathlib import Path
 
-from matgen.errors import LockError, MatgenWarning, PathError
+from matgen.errors import LockError, MatgenError, MatgenWarning, PathError
+from matgen.limits import read_text_limited
 
 
 class StaleLockWarning(MatgenWarning):
@@ -27,7 +28,7 @@ class StaleLockWarning(MatgenWarning):
 
 @contextlib.contextmanager
 def atomic_path(path, suffix: str | None = None):
-    """Yield a temporary path beside ``path``; on success it replaces ``path`` atomically, on error it is removed.
+    """Yield a temporary path beside ``path``: on success it replaces ``path`` atomically, on error it goes.
 
     Parameters
     ----------
@@ -36,6 +37,7 @@ def atomic_path(path, suffix: str | None = None):
     suffix : str, optional
         Suffix of the temporary file (writers such as OpenImageIO choose the format from it); defaults to
         the destination's suffix.
+
     """
     path = Path(path)
     folder = path.parent
@@ -84,6 +86,7 @@ def atomic_write_text(path, text: str) -> None:
 
 
 def pid_alive(pid: int) -> bool:
+    """Whether process ``pid`` exists on this host (signal 0; a process of another user counts as alive)."""
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
@@ -109,17 +112,30 @@ class FolderLock:
         self._held = False
 
     def _owner(self) -> dict:
+        """Return the lock file's owner record, or ``{}`` when it cannot be read or is not one.
+
+        The file is read through the size-limited text reader; a record that is not a JSON object with a
+        host name and a plausible PID (a whole number in 1 .. 2^31 - 1) is unknown, and an unknown owner is
+        never taken for a dead one.
+        """
         try:
-            return json.loads(self.path.read_text())
-        except (OSError, ValueError):
+            doc = json.loads(read_text_limited(self.path, "lock file"))
+        except (MatgenError, ValueError, RecursionError):
             return {}
+        if not isinstance(doc, dict) or not isinstance(doc.get("host"), str):
+            return {}
+        pid = doc.get("pid")
+        if not (isinstance(pid, int) and not isinstance(pid, bool) and 0 < pid < 2**31):
+            return {}
+        return doc
 
     def acquire(self) -> None:
         """Take the lock or raise :class:`LockError`."""
         self.folder.mkdir(parents=True, exist_ok=True)
         deadline = time.monotonic() + self.wait_s
-        record = json.dumps({"host": socket.gethostname(), "pid": os.getpid(), "since": time.time(),
-                             "purpose": self.purpose})
+        record = json.dumps(
+            {"host": socket.gethostname(), "pid": os.getpid(), "since": time.time(), "purpose": self.purpose}
+        )
         while True:
             try:
                 fd = os.open(self.path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
@@ -128,8 +144,11 @@ class FolderLock:
                 same_host = owner.get("host") == socket.gethostname()
                 pid = owner.get("pid")
                 if same_host and isinstance(pid, int) and not pid_alive(pid):
-                    warnings.warn(f"removing stale lock {self.path} left by process {pid}", StaleLockWarning,
-                                  stacklevel=2)
+                    warnings.warn(
+                        f"removing stale lock {self.path} left by process {pid}",
+                        StaleLockWarning,
+                        stacklevel=2,
+                    )
                     with contextlib.suppress(FileNotFoundError):
                         self.path.unlink()
                     continue
@@ -138,8 +157,8 @@ class FolderLock:
                     continue
                 who = f"process {pid} on {owner.get('host', '?')}" if owner else "another process"
                 raise LockError(
-                    f"{self.folder} is locked by {who} (lock file {self.path}); wait for it to finish, or remove "
-                    "the lock file if that process is gone"
+                    f"{self.folder} is locked by {who} (lock file {self.path}); wait for it to finish, "
+                    "or remove the lock file if that process is gone"
                 ) from None
             except OSError as exc:
                 raise PathError(f"cannot create lock file {self.path}: {exc.strerror or exc}") from exc
@@ -177,11 +196,15 @@ def resolve_inside(base, relative, what: str, allow_outside: bool = False) -> Pa
     full = (candidate if candidate.is_absolute() else base_resolved / candidate).resolve()
     if not allow_outside:
         if candidate.is_absolute():
-            raise PathError(f"{what} '{relative}' is an absolute path; give a path relative to {base_resolved} "
-                            "(or allow paths outside explicitly)")
+            raise PathError(
+                f"{what} '{relative}' is an absolute path; give a path relative to {base_resolved} "
+                "(or allow paths outside explicitly)"
+            )
         try:
             full.relative_to(base_resolved)
         except ValueError:
-            raise PathError(f"{what} '{relative}' leads outside {base_resolved} (through '..' or a symbolic "
-                            "link); keep it inside, or allow paths outside explicitly") from None
+            raise PathError(
+                f"{what} '{relative}' leads outside {base_resolved} (through '..' or a symbolic "
+                "link); keep it inside, or allow paths outside explicitly"
+            ) from None
     return full

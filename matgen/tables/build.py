@@ -12,11 +12,13 @@ import time
 from pathlib import Path
 
 from matgen.errors import TableError
+from matgen.limits import read_text_limited
 from matgen.tables.executors import cpu_count, run_job
 from matgen.tables.merge import merge
 from matgen.tables.plan import JobFolder, make_plan
 from matgen.tables.spec import TableSpec, load_spec
 from matgen.tables.store import Table
+from matgen.tables.tasks import read_task_record
 
 
 def default_jobdir(out) -> Path:
@@ -30,7 +32,7 @@ def plan_job(spec_or_path, jobdir) -> JobFolder:
         spec, text = spec_or_path, None
     else:
         spec = load_spec(spec_or_path)
-        text = Path(spec_or_path).read_text()
+        text = read_text_limited(spec_or_path, "table spec")
     return JobFolder.create(jobdir, make_plan(spec), spec_text=text)
 
 
@@ -50,14 +52,12 @@ def merge_job(job: JobFolder, out, run_stats: dict | None = None) -> Table:
 
 
 def _task_wall_sum(job: JobFolder) -> float:
-    import json
-
+    """Sum of the tasks' recorded wall times in seconds (records that fail their check count 0)."""
     total = 0.0
     for i in range(len(job.plan.tasks)):
-        try:
-            total += float(json.loads(job.record_path(i).read_text()).get("wall_s", 0.0))
-        except (OSError, ValueError):
-            pass
+        record, _ = read_task_record(job, i)
+        if record is not None:
+            total += float(record["wall_s"])
     return total
 
 

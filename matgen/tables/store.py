@@ -30,8 +30,9 @@ from pathlib import Path
 
 import numpy as np
 
-from matgen.errors import MatgenError, ParameterError, TableError
+from matgen.errors import ConfigError, MatgenError, ParameterError, TableError
 from matgen.fsutil import atomic_path, atomic_write_text
+from matgen.limits import read_text_limited
 from matgen.npzio import CORRUPT_ARCHIVE_ERRORS
 from matgen.npzio import read_npz_checked as _read_npz_checked
 from matgen.provenance import sha256_file
@@ -457,8 +458,10 @@ class Table:
         side_doc = None
         if side.is_file():
             try:
-                side_doc = json.loads(side.read_text())
-            except (OSError, ValueError) as exc:
+                side_doc = json.loads(read_text_limited(side, "table manifest"))
+            except ConfigError as exc:  # unreadable or not UTF-8 (a LimitError above the text ceiling passes)
+                raise TableError(str(exc)) from exc
+            except (ValueError, RecursionError) as exc:  # RecursionError: nesting too deep to parse
                 raise TableError(f"table manifest {side} is not valid JSON ({exc})") from exc
             if not isinstance(side_doc, dict):
                 raise TableError(

@@ -15,6 +15,7 @@ process arriving while the first runs waits for the lock and then finds the task
 from __future__ import annotations
 
 import json
+import math
 import os
 import socket
 import time
@@ -22,8 +23,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from matgen.errors import TableError
+from matgen.errors import MatgenError, TableError
 from matgen.fsutil import FolderLock, atomic_write_text
+from matgen.limits import read_text_limited
 from matgen.provenance import sha256_file
 from matgen.tables.plan import JobFolder, Plan, Task, base_parameters, parameters_at
 from matgen.tables.store import _write_npz_deterministic, read_npz_checked
@@ -196,38 +198,190 @@ class TaskState:
     reason: str = ""
 
 
+def _is_int(v) -> bool:
+    return isinstance(v, int) and not isinstance(v, bool)
+
+
+def _is_real(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def record_problem(record, index: int, task_id: str) -> str:
+    """Why a task record (the parsed ``.json`` beside a task output) is unusable; ``""`` when it is sound.
+
+    A record written by :func:`run_task` holds ``index``, ``task_id``, ``sha256`` (64 hex digits of the
+    output), ``bytes`` (its size, >= 0), ``wall_s`` and ``cpu_s`` (seconds, finite, >= 0), ``photons`` and
+    ``grid_points`` (whole numbers >= 1); ``host`` and ``pid`` are informative only.
+    """
+    if not isinstance(record, dict):
+        return f"record is a JSON {type(record).__name__}, not an object"
+    if record.get("task_id") != task_id:
+        return "record belongs to another task id"
+    if not _is_int(record.get("index")) or record["index"] != index:
+        return f"record field 'index' is {record.get('index')!r}, not {index}"
+    sha = record.get("sha256")
+    if not (isinstance(sha, str) and len(sha) == 64 and all(c in "0123456789abcdef" for c in sha)):
+        return f"record field 'sha256' is {str(sha)[:80]!r}, not 64 lowercase hex digits"
+    if not _is_int(record.get("bytes")) or record["bytes"] < 0:
+        return f"record field 'bytes' is {str(record.get('bytes'))[:80]!r}, not a whole number >= 0"
+    for key in ("wall_s", "cpu_s"):
+        v = record.get(key)
+        if not _is_real(v) or v < 0:
+            return f"record field '{key}' is {str(v)[:80]!r}, not a finite number of seconds >= 0"
+    for key in ("photons", "grid_points"):
+        v = record.get(key)
+        if not _is_int(v) or v < 1:
+            return f"record field '{key}' is {str(v)[:80]!r}, not a whole number >= 1"
+    return ""
+
+
+def read_task_record(job: JobFolder, index: int) -> tuple:
+    """Read and check task ``index``'s record.
+
+    Returns
+    -------
+    (dict or None, str)
+        The record and ``""``, or None and why it is missing or unusable. The file is read through the
+        size-limited text reader (``text_bytes`` ceiling of :mod:`matgen.limits`).
+
+    """
+    rec = job.record_path(index)
+    if not rec.exists():
+        return None, "no record"
+    try:
+        record = json.loads(read_text_limited(rec, f"record of task {index}"))
+    except MatgenError as exc:  # too large, not UTF-8, unreadable
+        return None, f"record cannot be read ({exc})"
+    except (ValueError, RecursionError):  # RecursionError: nesting deeper than the parser's stack
+        return None, "record is not valid JSON"
+    problem = record_problem(record, index, job.plan.tasks[index].task_id)
+    return (None, problem) if problem else (record, "")
+
+
 def task_state(job: JobFolder, index: int) -> TaskState:
-    """Check task ``index``'s output: present, of this task id, and matching its recorded SHA-256."""
-    task = job.plan.tasks[index]
+    """Check task ``index``'s output: present, of this task id, and matching its recorded SHA-256.
+
+    A record that is not what :func:`run_task` writes (see :func:`record_problem`) makes the task
+    ``corrupt``, so that a build recomputes it and a merge names it.
+    """
     out, rec = job.output_path(index), job.record_path(index)
     if not rec.exists():
         return TaskState(index, "missing", "no record" if not out.exists() else "output without record")
-    try:
-        record = json.loads(rec.read_text())
-    except (OSError, ValueError):
-        return TaskState(index, "corrupt", "record is not valid JSON")
-    if not isinstance(record, dict):
-        return TaskState(index, "corrupt", "record is not a JSON object")
-    if record.get("task_id") != task.task_id:
-        return TaskState(index, "corrupt", "record belongs to another task id")
+    record, problem = read_task_record(job, index)
+    if record is None:
+        return TaskState(index, "corrupt", problem)
     if not out.exists():
         return TaskState(index, "corrupt", "output file missing")
-    if out.stat().st_size != record.get("bytes") or sha256_file(out) != record.get("sha256"):
+    if out.stat().st_size != record["bytes"] or sha256_file(out) != record["sha256"]:
         return TaskState(
             index, "corrupt", "output does not match its recorded SHA-256 (truncated or altered)"
         )
     return TaskState(index, "done")
 
 
+def _check_task_arrays(arrays: dict, job: JobFolder, index: int) -> None:
+    """Check a task output's arrays against :data:`TASK_ARRAYS` and the plan before anything merges them.
+
+    Raises
+    ------
+    TableError
+        Naming the task, the array and what was expected: a missing or extra array, a wrong shape or dtype,
+        grid indices other than the task's grid points, ring edges other than the plan's, non-finite or
+        negative values.
+
+    """
+    plan = job.plan
+    where = f"task {index} output of {job.path}"
+    missing = sorted(set(TASK_ARRAYS) - set(arrays))
+    extra = sorted(set(arrays) - set(TASK_ARRAYS))
+    if missing or extra:
+        raise TableError(f"{where}: arrays missing {missing} / unexpected {extra}")
+    idx = arrays["grid_index"]
+    for name, ndim in (("grid_index", 2), ("g", 1)):
+        if arrays[name].ndim != ndim:
+            raise TableError(
+                f"{where}: array '{name}' has shape {arrays[name].shape}; expected {ndim} dimensions"
+            )
+    k, n_layers = idx.shape[0], arrays["g"].shape[0]
+    n_rings = plan.ring_edges_mm.size - 1
+    shapes = {
+        "grid_index": (k, len(plan.spec.axes)),
+        "diffuse_reflectance": (k,),
+        "diffuse_reflectance_stderr": (k,),
+        "radial_reflectance_per_mm2": (k, n_rings),
+        "radial_stderr_per_mm2": (k, n_rings),
+        "reflected_path_mm": (k, n_layers),
+        "mu_a_per_mm": (k, n_layers),
+        "mu_a_reference_per_mm": (n_layers,),
+        "mu_s_per_mm": (n_layers,),
+        "g": (n_layers,),
+        "n": (n_layers,),
+        "thickness_mm": (n_layers,),
+        "n_ambient": (2,),
+        "specular_reflectance": (1,),
+        "ring_edges_mm": (n_rings + 1,),
+        "photons": (1,),
+    }
+    for name, shape in shapes.items():
+        a = arrays[name]
+        kind = "i" if name in ("grid_index", "photons") else "f"
+        if a.dtype.kind != kind or a.shape != shape or min(shape) < 1:
+            raise TableError(
+                f"{where}: array '{name}' is {a.dtype} {a.shape}; expected "
+                f"{'integer' if kind == 'i' else 'float'} {shape} ({TASK_ARRAYS[name]})"
+            )
+        if kind == "f" and not np.all(np.isfinite(a)):
+            raise TableError(f"{where}: array '{name}' holds NaN or infinite values")
+    want_idx, _ = plan.task_grid_points(plan.tasks[index])
+    if not np.array_equal(idx, want_idx):
+        raise TableError(
+            f"{where}: array 'grid_index' does not list the task's {want_idx.shape[0]} grid points"
+        )
+    if not np.array_equal(arrays["ring_edges_mm"], plan.ring_edges_mm):
+        raise TableError(f"{where}: array 'ring_edges_mm' differs from the plan's ring edges")
+    for name in (
+        "diffuse_reflectance",
+        "diffuse_reflectance_stderr",
+        "radial_reflectance_per_mm2",
+        "radial_stderr_per_mm2",
+        "reflected_path_mm",
+        "mu_a_per_mm",
+        "mu_a_reference_per_mm",
+        "mu_s_per_mm",
+        "thickness_mm",
+    ):
+        if np.any(arrays[name] < 0):
+            raise TableError(f"{where}: array '{name}' holds negative values (allowed range >= 0)")
+    for name in ("diffuse_reflectance", "specular_reflectance"):
+        if np.any(arrays[name] > 1):
+            raise TableError(f"{where}: array '{name}' holds values above 1 (allowed range [0, 1])")
+    if np.any(np.abs(arrays["g"]) > 1):
+        raise TableError(f"{where}: array 'g' holds values outside the allowed range [-1, 1]")
+    if np.any(arrays["n"] < 1) or np.any(arrays["n_ambient"] < 1):
+        raise TableError(f"{where}: arrays 'n' / 'n_ambient' hold refractive indices below 1")
+    if int(arrays["photons"][0]) < 1:
+        raise TableError(f"{where}: array 'photons' is {int(arrays['photons'][0])}; allowed range >= 1")
+
+
 def load_task_output(job: JobFolder, index: int) -> dict:
-    """Read a finished task's arrays, checking its checksum and task id."""
+    """Read a finished task's arrays, checking its checksum, task id, array shapes and values.
+
+    Raises
+    ------
+    TableError
+        If the task is not done (missing or corrupt) or its output is not what :func:`compute_task` makes
+        for this task (see :func:`_check_task_arrays`).
+
+    """
     st = task_state(job, index)
     if st.state != "done":
         raise TableError(f"task {index} of {job.path} is {st.state} ({st.reason})")
-    arrays = read_npz_checked(job.output_path(index), "task output")
-    tid = bytes(arrays.get("task_id", np.zeros(0, np.uint8))).decode("ascii", "replace")
+    arrays = read_npz_checked(job.output_path(index), "task output", TableError)
+    tid_arr = arrays.get("task_id", np.zeros(0, np.uint8))
+    tid = bytes(tid_arr).decode("ascii", "replace") if tid_arr.dtype == np.uint8 else ""
     if tid != job.plan.tasks[index].task_id:
-        raise TableError(f"task {index} output of {job.path} carries task id {tid[:12]}..., not its own")
+        raise TableError(f"task {index} output of {job.path} carries task id {tid[:12]!r}..., not its own")
+    _check_task_arrays(arrays, job, index)
     return arrays
 
 
