@@ -206,6 +206,12 @@ def _is_real(v) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
 
 
+def _show(v) -> str:
+    """Return a record value as JSON text, shortened for messages."""
+    text = json.dumps(v)
+    return text if len(text) <= 80 else text[:77] + "..."
+
+
 def record_problem(record, index: int, task_id: str) -> str:
     """Why a task record (the parsed ``.json`` beside a task output) is unusable; ``""`` when it is sound.
 
@@ -218,20 +224,20 @@ def record_problem(record, index: int, task_id: str) -> str:
     if record.get("task_id") != task_id:
         return "record belongs to another task id"
     if not _is_int(record.get("index")) or record["index"] != index:
-        return f"record field 'index' is {record.get('index')!r}, not {index}"
+        return f"record field 'index' is {_show(record.get('index'))}, not {index}"
     sha = record.get("sha256")
     if not (isinstance(sha, str) and len(sha) == 64 and all(c in "0123456789abcdef" for c in sha)):
-        return f"record field 'sha256' is {str(sha)[:80]!r}, not 64 lowercase hex digits"
+        return f"record field 'sha256' is {_show(sha)}, not 64 lowercase hex digits"
     if not _is_int(record.get("bytes")) or record["bytes"] < 0:
-        return f"record field 'bytes' is {str(record.get('bytes'))[:80]!r}, not a whole number >= 0"
+        return f"record field 'bytes' is {_show(record.get('bytes'))}, not a whole number >= 0"
     for key in ("wall_s", "cpu_s"):
         v = record.get(key)
         if not _is_real(v) or v < 0:
-            return f"record field '{key}' is {str(v)[:80]!r}, not a finite number of seconds >= 0"
+            return f"record field '{key}' is {_show(v)}, not a finite number of seconds >= 0"
     for key in ("photons", "grid_points"):
         v = record.get(key)
         if not _is_int(v) or v < 1:
-            return f"record field '{key}' is {str(v)[:80]!r}, not a whole number >= 1"
+            return f"record field '{key}' is {_show(v)}, not a whole number >= 1"
     return ""
 
 
@@ -376,7 +382,7 @@ def load_task_output(job: JobFolder, index: int) -> dict:
     st = task_state(job, index)
     if st.state != "done":
         raise TableError(f"task {index} of {job.path} is {st.state} ({st.reason})")
-    arrays = read_npz_checked(job.output_path(index), "task output", TableError)
+    arrays = read_npz_checked(job.output_path(index), "task output")
     tid_arr = arrays.get("task_id", np.zeros(0, np.uint8))
     tid = bytes(tid_arr).decode("ascii", "replace") if tid_arr.dtype == np.uint8 else ""
     if tid != job.plan.tasks[index].task_id:
