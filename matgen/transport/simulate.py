@@ -15,6 +15,7 @@ References: ``Wang1995mcml``, ``Alerstam2008white``.
 
 from __future__ import annotations
 
+import hashlib
 import math
 import time
 
@@ -241,7 +242,13 @@ def simulate(
         elapsed = time.perf_counter() - t0
     finally:
         numba.set_num_threads(old_threads)
-    extra = {"seed": seed, "first_photon": first, "incidence_cos": cos_i, "tally_fixed_point": tally}
+    extra = {
+        "seed": seed,
+        "first_photon": first,
+        "incidence_cos": cos_i,
+        "stack_key": stack_key(stack),
+        "tally_fixed_point": tally,
+    }
     result = result_from_tallies(
         tally,
         n,
@@ -269,6 +276,49 @@ def simulate(
     return result, rec
 
 
+def stack_key(stack: Stack) -> str:
+    """Short SHA-256 of everything in a stack that a run depends on (its layer arrays and ambient indices)."""
+    h = hashlib.sha256()
+    for arr in (stack.thickness_mm, stack.n, stack.mu_a, stack.mu_s, stack.g, [stack.n_above, stack.n_below]):
+        h.update(np.ascontiguousarray(arr, dtype=np.float64).tobytes())
+    return h.hexdigest()[:16]
+
+
+def _check_combinable(results, stack: Stack) -> None:
+    """Refuse results that are not runs of one simulation over disjoint photon ranges (ParameterError)."""
+    first = results[0]
+    own_key = stack_key(stack)
+    for i, r in enumerate(results):
+        if r.extra.get("stack_key", own_key) != own_key:
+            raise ParameterError(f"combine: result {i} was run on another stack than the one given")
+        if "tally_fixed_point" not in r.extra:
+            raise ParameterError(
+                f"combine: result {i} carries no integer tallies (was it read back from JSON?)"
+            )
+        for key in ("seed", "incidence_cos"):
+            if r.extra.get(key) != first.extra.get(key):
+                raise ParameterError(
+                    f"combine: result {i} has {key} {r.extra.get(key)!r}, result 0 {first.extra.get(key)!r}; "
+                    "only runs of the same simulation can be combined"
+                )
+        same_bins = np.array_equal(r.ring_edges_mm, first.ring_edges_mm) and np.array_equal(
+            r.exit_cos_edges, first.exit_cos_edges
+        )
+        if not same_bins or np.shape(r.extra["tally_fixed_point"]) != np.shape(
+            first.extra["tally_fixed_point"]
+        ):
+            raise ParameterError(f"combine: result {i} uses other bins or another layer count than result 0")
+        if r.specular_reflectance.value != first.specular_reflectance.value:
+            raise ParameterError(f"combine: result {i} has another specular reflectance: not the same stack")
+    ranges = sorted((int(r.extra.get("first_photon", 0)), int(r.photons)) for r in results)
+    for (a0, na), (b0, _) in zip(ranges, ranges[1:], strict=False):
+        if b0 < a0 + na:
+            raise ParameterError(
+                f"combine: photon ranges [{a0}, {a0 + na}) and [{b0}, ...) overlap; the same photons would "
+                "count twice"
+            )
+
+
 def combine(results, stack: Stack) -> TransportResult:
     """Combine results of runs with the same seed, stack and bins over disjoint photon ranges.
 
@@ -277,6 +327,7 @@ def combine(results, stack: Stack) -> TransportResult:
     results = list(results)
     if not results:
         raise ParameterError("combine needs at least one TransportResult")
+    _check_combinable(results, stack)
     tally = sum(np.asarray(r.extra["tally_fixed_point"], dtype=np.int64) for r in results)
     n = sum(r.photons for r in results)
     first = results[0]
@@ -285,6 +336,7 @@ def combine(results, stack: Stack) -> TransportResult:
         "seed": first.extra.get("seed"),
         "first_photon": min(r.extra.get("first_photon", 0) for r in results),
         "incidence_cos": first.extra.get("incidence_cos"),
+        "stack_key": stack_key(stack),
         "tally_fixed_point": tally,
     }
     return result_from_tallies(

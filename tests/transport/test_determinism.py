@@ -31,6 +31,28 @@ def test_one_run_vs_three_chunks_bit_identical():
     _same(whole, combine(parts, stack))
 
 
+def test_combine_refuses_runs_of_different_simulations():
+    """Overlapping photon ranges, other seeds, other incidence or another stack would silently give a wrong
+    result; each is one ParameterError naming the problem."""
+    import pytest
+
+    from matgen.errors import ParameterError
+
+    stack = benchmark_stack(550)
+    a = simulate(stack, 500, seed=4, first_photon=0)
+    cases = {
+        "overlap": [a, simulate(stack, 500, seed=4, first_photon=400)],
+        "seed": [a, simulate(stack, 500, seed=5, first_photon=500)],
+        "incidence_cos": [a, simulate(stack, 500, seed=4, first_photon=500, incidence_cos=0.5)],
+        "another stack": [a, simulate(benchmark_stack(800), 500, seed=4, first_photon=500)],
+    }
+    for words, parts in cases.items():
+        with pytest.raises(ParameterError, match=words.split()[-1] if words != "another stack" else "stack"):
+            combine(parts, stack)
+    # disjoint ranges in any order are fine
+    combine([simulate(stack, 500, seed=4, first_photon=500), a], stack)
+
+
 def test_records_of_chunks_concatenate_to_one_run(tmp_path):
     stack = benchmark_stack(550)
     _, whole = simulate(stack, 900, seed=6, records=True)
