@@ -22,13 +22,15 @@ from matgen.errors import ColourSpaceWarning, ImageError
 from matgen.limits import check_count, check_image_dims
 
 
-
 def _oiio_error(source=None) -> str:
-    """OpenImageIO's pending error message; a message holding the file's non-UTF-8 bytes is decoded loosely."""
+    """Return OpenImageIO's pending error message (non-UTF-8 bytes of a file name decoded loosely)."""
     try:
         return (source if source is not None else oiio).geterror().strip()
     except UnicodeDecodeError as exc:
-        return exc.object.decode("utf-8", "replace").strip() if isinstance(exc.object, bytes) else "undecodable error"
+        if isinstance(exc.object, bytes):
+            return exc.object.decode("utf-8", "replace").strip()
+        return "undecodable error"
+
 
 def udim_of(u: int, v: int) -> int:
     """UDIM tile number of tile column ``u`` (0..9) and row ``v`` (0..): 1001 + u + 10 v."""
@@ -91,9 +93,7 @@ def map_info(path, tile=None, *, channel: int = 0, what: str = "map") -> MapInfo
         raise ImageError(f"{what} {_where(path, tile)} does not exist")
     inp = oiio.ImageInput.open(str(path))
     if inp is None:
-        raise ImageError(
-            f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {_oiio_error()}"
-        )
+        raise ImageError(f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {_oiio_error()}")
     try:
         spec = inp.spec()
         info = MapInfo(
@@ -153,8 +153,7 @@ class MapReader:
         self._inp = oiio.ImageInput.open(str(self.info.path))
         if self._inp is None:
             raise ImageError(
-                f"{self.what} {_where(self.info.path, self.info.tile)} cannot be read: "
-                f"{_oiio_error()}"
+                f"{self.what} {_where(self.info.path, self.info.tile)} cannot be read: {_oiio_error()}"
             )
         return self
 

@@ -229,15 +229,18 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         if config.udim_tiles:
             tiles = list(config.udim_tiles)
         else:
-            tiles = discover_tiles(udim[0].map_pattern)
-            if not tiles:
-                raise ImageError(
-                    f"no UDIM tiles found for {udim[0].map_pattern} (map of parameter '{udim[0].name}')"
-                )
+            # the set is the union of every UDIM map's tiles: a tile that one map has and another lacks is
+            # then named as missing below, instead of being skipped because the first map lacks it
+            found = sorted({t for p in udim for t in discover_tiles(p.map_pattern)})
+            if not found:
+                patterns = ", ".join(f"{p.map_pattern} (parameter '{p.name}')" for p in udim)
+                raise ImageError(f"no UDIM tiles found for any UDIM map: {patterns}")
+            tiles = found
         check_udim_tiles(len(tiles), str(udim[0].map_pattern))
         if tile is not None:
             if tile not in tiles:
-                raise ConfigError(f"UDIM tile {tile} is not in the set {tiles} of {udim[0].map_pattern}")
+                patterns = ", ".join(str(p.map_pattern) for p in udim)
+                raise ConfigError(f"UDIM tile {tile} is not in the set {tiles} of {patterns}")
             tiles = [tile]
     else:
         if tile is not None:
@@ -456,8 +459,10 @@ def check_inputs(plan: BakePlan) -> InputReport:
 
 @dataclass
 class Strip:
-    """Rows ``y0 .. y1-1`` of one tile: every output's texels (rows, width, channels), float16 for half
-    outputs, else float32."""
+    """Rows ``y0 .. y1-1`` of one tile: every output's texels (rows, width, channels).
+
+    Float16 for half outputs, else float32.
+    """
 
     tile: int | None
     y0: int
@@ -504,7 +509,7 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
             if "fit_residual" in spec.channels:
                 cols.append(vals["rgb_fit_residual"].max(axis=1))
             v = np.stack(cols, axis=1)
-        # half outputs are rounded here (numpy's round-to-nearest-even cast), so the writer passes them through
+        # half outputs are rounded here (numpy's round-to-nearest-even cast); the writer passes them through
         dtype = np.float16 if plan.config.outputs.pixel_type == "half" else np.float32
         out[spec.key] = np.ascontiguousarray(np.asarray(v).reshape(h, w, -1), dtype=dtype)
     return out, int(clamped.sum())

@@ -9,6 +9,7 @@ from pathlib import Path
 from matgen.bake.config import load_config
 from matgen.cli import add_command
 from matgen.errors import MatgenWarning
+from matgen.export.assemble import assemble_tiles
 from matgen.export.job import bake
 from matgen.tables.store import Table
 
@@ -24,17 +25,27 @@ def register(sub):
             "Read the pigment maps a material config names (EXR, TIFF, PNG; single files or UDIM sets), look "
             "every texel up in the skin table, and write spectral EXR stacks (one channel per band), RGB "
             "maps in the working space, OpenPBR subsurface maps, UV/IR pass maps, a QA map, a JSON "
-            "descriptor with checksums and a MaterialX document. Outputs appear only when the whole bake succeeded."
+            "descriptor with checksums and a MaterialX document. Outputs appear only when the whole bake "
+            "succeeded. On a farm, bake each UDIM tile with --tile N, then run --assemble-tiles once to "
+            "write the set's material.json and material.mtlx. Exit status 0 on success, 2 when refused (one "
+            "line naming the file, tile, texel or lock)."
         ),
     )
     p.add_argument("config", help="material config (TOML)")
     p.add_argument("--out", default="matgen_out", help="output folder")
     p.add_argument("--jobs", type=int, default=None, help="lookup threads (default: all cores)")
-    p.add_argument(
+    farm = p.add_mutually_exclusive_group()
+    farm.add_argument(
         "--tile",
         type=int,
         default=None,
         help="bake only this UDIM tile (farm use); writes material.<tile>.json",
+    )
+    farm.add_argument(
+        "--assemble-tiles",
+        action="store_true",
+        help="after every tile was baked with --tile into --out: check them all (descriptors, SHA-256, same "
+        "config and table) and write the set's material.json and material.mtlx",
     )
     p.add_argument(
         "--dry-run", action="store_true", help="check config and maps, print what would be written"
@@ -45,7 +56,13 @@ def register(sub):
         action="store_true",
         help="allow paths in the config that leave its folder (through '..' or absolute)",
     )
-    p.add_argument("--memory-mb", type=int, default=256, help="memory budget of one strip of texels, MiB")
+    p.add_argument(
+        "--memory-mb",
+        type=int,
+        default=256,
+        help="memory budget of the texels in flight, MiB (also the most that making tiled mip-mapped "
+        "textures may take)",
+    )
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=run)
 
@@ -54,12 +71,23 @@ def run(args) -> int:
     """Run ``matgen bake``; returns the exit status."""
     config = load_config(args.config, allow_outside=args.allow_outside)
     table = Table.load(args.table) if args.table else None
+    if args.assemble_tiles:
+        return _assemble(args, config, table)
     bar = None
     progress = None
     if not args.quiet and not args.dry_run:
         from tqdm import tqdm
 
-        bar = tqdm(total=0, unit="texel", unit_scale=True, desc="bake", file=sys.stderr, dynamic_ncols=True)
+        bar = tqdm(
+            total=0,
+            unit=" texels",
+            unit_scale=True,
+            desc="bake",
+            file=sys.stderr,
+            dynamic_ncols=True,
+            bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} texels "
+            "[{rate_fmt}, elapsed {elapsed}, ETA {remaining}]",
+        )
 
         def progress(done, total):
             if bar.total != total:
@@ -92,7 +120,10 @@ def run(args) -> int:
             print(f"matgen bake: warning: {msg}", file=sys.stderr)
     out = Path(args.out)
     if result.dry_run:
-        print(f"dry run: config and maps are valid; {result.texels} texels; would write into {out}:")
+        print(
+            f"dry run: config, maps, output folder and documents are valid; {result.texels} texels; "
+            f"would write into {out}:"
+        )
         for rel in result.files:
             print(f"  {rel}")
         return 0
@@ -105,4 +136,25 @@ def run(args) -> int:
             "the "
             "encoding range (see qa/qa*.exr)"
         )
+    return 0
+
+
+def _assemble(args, config, table) -> int:
+    """``--assemble-tiles``: the set's descriptor and documents from its one-tile bakes."""
+    result = assemble_tiles(
+        config,
+        args.out,
+        table=table,
+        table_source=args.table,
+        dry_run=args.dry_run,
+        allow_outside=args.allow_outside,
+    )
+    out = Path(args.out)
+    if result.dry_run:
+        print(f"dry run: every UDIM tile in {out} is complete and matches; would write:")
+        for rel in result.files:
+            print(f"  {rel}")
+        return 0
+    print(f"assembled the UDIM tiles in {out} ({result.texels} texels): {', '.join(result.files)}")
+    print(f"  descriptor {result.descriptor}")
     return 0

@@ -176,7 +176,8 @@ def run(args) -> int:
     for msg in sorted({str(w.message) for w in caught}):
         print(f"matgen demo: warning: {msg}", file=sys.stderr)
     previews = _previews(out, out / "bake", config, table, maps)
-    sheets = descriptor_previews(out / "preview", result.descriptor)  # contact sheet with colour bars and units
+    # contact sheet with colour bars and units
+    sheets = descriptor_previews(out / "preview", result.descriptor)
     previews.extend(sheets.values())
     report = build_report(result.descriptor, out / "report.html")
     dt = time.perf_counter() - t0

@@ -20,7 +20,7 @@ import jsonschema
 from matgen.errors import ConfigError, DataError, PathError
 from matgen.fsutil import resolve_inside
 from matgen.limits import read_text_limited
-from matgen.provenance import sha256_file
+from matgen.provenance import hash_json, sha256_file
 
 #: Format name and version of descriptors written by this matgen.
 DESCRIPTOR_FORMAT = "matgen-material"
@@ -58,17 +58,27 @@ def validate_descriptor(doc: dict, where: str = "material descriptor") -> None:
             )
 
 
+#: Checksum of a texture that a dry run plans but has not written (the descriptor is only validated, never
+#: written with it).
+PLANNED_SHA256 = "0" * 64
+
+
 def texture_entry(
-    spec, rel_path: str, file_path: Path, tile, width: int, height: int, pixel_type: str, tiled: bool
+    spec, rel_path: str, file_path: Path | None, tile, width: int, height: int, pixel_type: str, tiled: bool
 ) -> dict:
-    """Return the descriptor entry of one written texture (checksum computed from the file's bytes)."""
+    """Return the descriptor entry of one texture.
+
+    The checksum and size come from the file's bytes; with ``file_path=None`` (a dry run: the texture is
+    planned, not written) they are the placeholders :data:`PLANNED_SHA256` and 1 byte, so that the rest
+    of the descriptor can be validated against the schema.
+    """
     return {
         "key": spec.key,
         "kind": spec.kind,
         "quantity": spec.quantity,
         "path": str(PurePosixPath(rel_path)),
-        "sha256": sha256_file(file_path),
-        "bytes": int(Path(file_path).stat().st_size),
+        "sha256": PLANNED_SHA256 if file_path is None else sha256_file(file_path),
+        "bytes": 1 if file_path is None else int(Path(file_path).stat().st_size),
         "udim": None if tile is None else int(tile),
         "width": int(width),
         "height": int(height),
@@ -77,6 +87,161 @@ def texture_entry(
         "pixel_type": pixel_type,
         "tiled_mipmapped": bool(tiled),
         "description": spec.description,
+    }
+
+
+def _texture_pattern(plan, spec) -> str:
+    """Relative map path of an output as a renderer reads it: ``<UDIM>`` in place of the tile of a set."""
+    return f"{spec.key}.<UDIM>.exr" if plan.tile_numbers[0] is not None else f"{spec.key}.exr"
+
+
+def _map_type(spec) -> str:
+    return "color3" if len(spec.channels) == 3 else "float"
+
+
+def renderer_targets(plan, ior: float | None) -> dict:
+    """Return the descriptor's ``targets``: per renderer target of the config, its inputs (maps or constants).
+
+    Parameters
+    ----------
+    plan : matgen.bake.run.BakePlan
+        The bake's plan (its target outputs and tiles).
+    ior : float or None
+        The table's boundary refractive index (mean over its grid), None when the table has none.
+
+    Returns
+    -------
+    dict
+        ``{"openpbr": {...}, "standard_surface": {...}}`` for the targets the config asks for; Standard
+        Surface reads the OpenPBR maps (its RGB radius is OpenPBR's radius scale, its scale the radius).
+
+    """
+    targets = {}
+    maps = [spec for spec in plan.outputs if spec.kind == "target"]
+    if "openpbr" in plan.config.outputs.targets:
+        inputs = {"subsurface_weight": {"value": 1.0, "type": "float"}}
+        for spec in maps:
+            inputs[spec.quantity] = {
+                "texture": _texture_pattern(plan, spec),
+                "unit": spec.unit,
+                "type": _map_type(spec),
+            }
+        if ior is not None:
+            inputs["specular_ior"] = {"value": ior, "type": "float", "unit": "1"}
+        targets["openpbr"] = {
+            "shading_model": "OpenPBR Surface (MaterialX 1.39 open_pbr_surface)",
+            "albedo_convention": "spec_remap: subsurface_color is van de Hulst's A of the "
+            "effective single-scattering albedo (matgen.fit.targets)",
+            "inputs": inputs,
+        }
+    if "standard_surface" in plan.config.outputs.targets:
+        rename = {
+            "subsurface_color": "subsurface_color",
+            "subsurface_radius_scale": "subsurface_radius",
+            "subsurface_radius": "subsurface_scale",
+            "subsurface_scatter_anisotropy": "subsurface_anisotropy",
+        }
+        inputs = {"subsurface": {"value": 1.0, "type": "float"}}
+        for spec in maps:
+            if spec.quantity in rename:
+                inputs[rename[spec.quantity]] = {
+                    "texture": _texture_pattern(plan, spec),
+                    "unit": spec.unit,
+                    "type": _map_type(spec),
+                }
+        if ior is not None:
+            inputs["specular_IOR"] = {"value": ior, "type": "float", "unit": "1"}
+        targets["standard_surface"] = {
+            "shading_model": "Autodesk Standard Surface (MaterialX standard_surface)",
+            "inputs": inputs,
+        }
+    return targets
+
+
+def build_descriptor(
+    plan,
+    table,
+    *,
+    matgen_version: str,
+    table_identity: tuple,
+    spectra_provenance,
+    textures: list,
+    targets: dict,
+    documents: dict,
+    table_clamped: int,
+    encoding_clamped: int,
+    output_sums: dict | None = None,
+) -> dict:
+    """Assemble a descriptor (not yet validated) from a bake's plan, table and written files.
+
+    Parameters
+    ----------
+    plan : matgen.bake.run.BakePlan
+        The bake's plan (config, tiles, spectral bands, pass weights).
+    table : matgen.tables.store.Table
+        The table used (bands, working space, illuminant, manifest).
+    matgen_version : str
+        Version of matgen that baked.
+    table_identity : tuple of str
+        (name, SHA-256) of the table.
+    spectra_provenance : object
+        Where the table's spectra came from (from its manifest).
+    textures : list of dict
+        Entries of :func:`texture_entry`, in tile order then output order.
+    targets : dict
+        From :func:`renderer_targets`.
+    documents : dict
+        Name -> ``{"path", "sha256"}`` of the documents written beside the textures.
+    table_clamped, encoding_clamped : int
+        Texels clamped to the table's range and to the encoding range.
+    output_sums : dict, optional
+        Output key -> per-channel sum of its texels over the descriptor's tiles (recorded by one-tile farm
+        bakes so that the tiles' preview scene can be assembled).
+
+    Returns
+    -------
+    dict
+
+    """
+    cfg = plan.config
+    source = dict(cfg.source)
+    statistics = {
+        "texels": int(plan.texels),
+        "table_clamped_texels": int(table_clamped),
+        "encoding_clamped_texels": int(encoding_clamped),
+    }
+    if output_sums:
+        statistics["output_sums"] = {k: [float(x) for x in v] for k, v in output_sums.items()}
+    return {
+        "format": DESCRIPTOR_FORMAT,
+        "format_version": DESCRIPTOR_VERSION,
+        "name": cfg.name,
+        "units": {
+            "wavelength": "nm",
+            "length": "mm",
+            "scene_length": "scene_unit",
+            "metres_per_scene_unit": cfg.metres_per_scene_unit,
+        },
+        "bands": {"table": table.bands.to_dict(), "spectral_stacks": plan.spectral_bands.to_dict()},
+        "working_space": table.working_space,
+        "illuminant": table.illuminant,
+        "udim_tiles": None if plan.tile_numbers[0] is None else [int(t) for t in plan.tile_numbers],
+        "textures": textures,
+        "passes": {k: {"weights": v.tolist()} for k, v in plan.pass_weights.items()},
+        "targets": targets,
+        "documents": documents,
+        "provenance": {
+            "matgen_version": matgen_version,
+            "table": table_identity[0],
+            "table_sha256": table_identity[1],
+            "table_manifest": {
+                k: v for k, v in (table.manifest or {}).items() if k in ("spec", "spec_hash", "name", "hash")
+            },
+            "spectra": spectra_provenance,
+            "config": source,
+            "config_sha256": hash_json(source),
+        },
+        "statistics": statistics,
     }
 
 

@@ -1,19 +1,27 @@
-"""A whole bake into an output folder: lock, check, compute strip by strip, write, checksum, commit.
+"""A bake into an output folder: lock, check, compute strip by strip, write, checksum, commit; tile assembly.
 
-:func:`bake` is the Python entry point behind ``matgen bake``. It holds a lock on the output folder (a
-second bake into the same folder refuses, naming the lock; a one-tile farm bake locks only its tile), reads
+:func:`bake` is the Python entry point behind ``matgen bake``. It holds a lock on the output folder, reads
 and checks every map before it computes anything, writes every texture into a hidden staging folder inside
 the output folder, validates the MaterialX document and the descriptor, and only then moves each file into
 place with ``os.replace``, the descriptor last. A bake that fails or is killed part-way therefore leaves no
 partial output file; the staging folder of a killed bake is removed by the next bake into that folder.
-Units: lengths in mm; renderer-target lengths in scene units.
+
+Locks: a whole bake (and a tile assembly) holds ``.matgen-bake.lock``, a one-tile farm bake
+``.matgen-bake.<tile>.lock``. Each takes its own lock first and then looks at the others, so a whole bake
+refuses while a live one-tile bake works in the folder and a one-tile bake refuses while a whole bake does,
+whichever started first; one-tile bakes of different tiles share a folder. :func:`assemble_tiles` turns the
+one-tile descriptors of a UDIM set into the set's ``material.json`` and ``material.mtlx``.
+Units: lengths in mm; renderer-target lengths in scene units; memory in bytes.
 """
 
 from __future__ import annotations
 
 import hashlib
+import math
 import os
+import re
 import shutil
+import socket
 import time
 import uuid
 from concurrent.futures import ThreadPoolExecutor, wait
@@ -26,15 +34,40 @@ from matgen import __version__
 from matgen.bake.config import BakeConfig
 from matgen.bake.lookup import TexelLookup, set_threads
 from matgen.bake.run import BakePlan, check_inputs, iter_strips, plan_bake
-from matgen.errors import DataError, PathError
-from matgen.export.descriptor import DESCRIPTOR_FORMAT, DESCRIPTOR_VERSION, descriptor_json, texture_entry
+from matgen.errors import DataError, LimitError, LockError, PathError
+from matgen.export.descriptor import (
+    build_descriptor,
+    descriptor_json,
+    renderer_targets,
+    texture_entry,
+)
 from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture, set_io_threads
 from matgen.fsutil import FolderLock, pid_alive
-from matgen.provenance import hash_json, sha256_file
+from matgen.provenance import sha256_file
 from matgen.tables.store import Table, default_table_path, load_default_table
 
 #: Prefix of the hidden staging folders inside an output folder.
 STAGING_PREFIX = ".matgen-staging-"
+
+#: Lock file of a whole bake or a tile assembly in its output folder.
+BAKE_LOCK = ".matgen-bake.lock"
+
+_TILE_LOCK = re.compile(r"^\.matgen-bake\.(\d+)\.lock$")
+
+#: Outputs whose texel sums make the preview scene's mean texel.
+SCENE_KEYS = ("spectral/albedo_single", "spectral/mean_free_path_mm", "openpbr/subsurface_scatter_anisotropy")
+
+#: Peak memory of :func:`matgen.export.exr.make_texture` per byte of one file's whole image as float32
+#: (width x height x channels x 4): measured 2.01-2.03 with a constant ~3 MiB for 31-channel half files of
+#: 1024 x 1024 and 2048 x 2048 texels (OpenImageIO 3.2; peak RSS of a child process).
+TEXTURE_MEMORY_FACTOR = 2.0
+#: Constant part of that peak, bytes (rounded up from the measured ~3 MiB).
+TEXTURE_MEMORY_OVERHEAD_BYTES = 16 << 20
+
+
+def tile_lock_name(tile: int) -> str:
+    """Lock file name of a one-tile bake of UDIM ``tile``."""
+    return f".matgen-bake.{int(tile)}.lock"
 
 
 def load_table(config: BakeConfig):
@@ -80,16 +113,104 @@ class BakeResult:
     dry_run: bool = False
 
 
-def check_writable(out_dir: Path) -> None:
-    """Refuse an output folder that exists as a file or cannot be created or written."""
+def check_writable(out_dir: Path, create: bool = True) -> None:
+    """Refuse an output folder that exists as a file or cannot be created or written.
+
+    With ``create=False`` (a dry run) nothing is created: the nearest existing folder on the way to
+    ``out_dir`` must be a writable folder.
+    """
+    out_dir = Path(out_dir)
     if out_dir.exists() and not out_dir.is_dir():
         raise PathError(f"output folder {out_dir} exists and is not a folder")
+    if not create:
+        base = out_dir.absolute()
+        while not base.exists() and base != base.parent:
+            base = base.parent
+        if not base.is_dir():
+            raise PathError(f"cannot create output folder {out_dir}: {base} is not a folder")
+        if not os.access(base, os.W_OK | os.X_OK):
+            what = (
+                "is not writable"
+                if base == out_dir.absolute()
+                else f"cannot be created: {base} is not writable"
+            )
+            raise PathError(f"output folder {out_dir} {what}")
+        return
     try:
         out_dir.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise PathError(f"cannot create output folder {out_dir}: {exc.strerror or exc}") from exc
     if not os.access(out_dir, os.W_OK | os.X_OK):
         raise PathError(f"output folder {out_dir} is not writable")
+
+
+def _live_owner(path: Path) -> dict | None:
+    """Return the record (host, pid) of lock file ``path`` if a live process holds it, else None."""
+    if not path.is_file():
+        return None
+    owner = FolderLock(path.parent, name=path.name)._owner()  # the lock's own reading of its file
+    if not owner and not path.exists():
+        return None  # released while it was read
+    pid = owner.get("pid")
+    if owner.get("host") == socket.gethostname() and isinstance(pid, int) and not pid_alive(pid):
+        return None  # its process is gone: stale, taken over by the next bake that needs it
+    return owner
+
+
+def _conflicting_locks(out_dir: Path, tile: int | None) -> list:
+    """Live locks in ``out_dir`` that exclude a bake of ``tile`` (None: a whole bake or an assembly)."""
+    if tile is None:
+        names = sorted(p.name for p in out_dir.iterdir() if _TILE_LOCK.match(p.name))
+    else:
+        names = [BAKE_LOCK]
+    held = [(out_dir / n, _live_owner(out_dir / n)) for n in names]
+    return [(p, o) for p, o in held if o is not None]
+
+
+def _locked_error(out_dir: Path, held: list) -> LockError:
+    parts = []
+    for path, owner in held:
+        m = _TILE_LOCK.match(path.name)
+        what = f"a bake of UDIM tile {m.group(1)}" if m else "a whole bake or tile assembly"
+        who = f"process {owner['pid']} on {owner.get('host', '?')}" if "pid" in owner else "another process"
+        parts.append(f"{what} by {who} (lock file {path})")
+    return LockError(
+        f"{out_dir} is locked by {'; '.join(parts)}: a whole bake and one-tile bakes of the same folder "
+        "exclude each other; wait for it to finish, or remove the lock file if that process is gone"
+    )
+
+
+class _BakeLock:
+    """The lock of a bake of ``tile`` (None: whole bake or assembly) that also honours the others' locks."""
+
+    def __init__(self, out_dir: Path, tile: int | None):
+        self.out_dir, self.tile = Path(out_dir), tile
+        name = BAKE_LOCK if tile is None else tile_lock_name(tile)
+        self.lock = FolderLock(out_dir, name=name, purpose="bake" if tile is None else f"bake of tile {tile}")
+
+    def __enter__(self):
+        self.lock.acquire()
+        held = _conflicting_locks(self.out_dir, self.tile)  # looked at after taking ours: no gap between
+        if held:
+            self.lock.release()
+            raise _locked_error(self.out_dir, held)
+        return self
+
+    def __exit__(self, *exc):
+        self.lock.release()
+        return False
+
+
+def check_unlocked(out_dir: Path, tile: int | None) -> None:
+    """Raise :class:`LockError` when a live process holds a lock that a bake of ``tile`` would meet."""
+    out_dir = Path(out_dir)
+    if not out_dir.is_dir():
+        return
+    own = out_dir / (BAKE_LOCK if tile is None else tile_lock_name(tile))
+    held = [(own, o) for o in [_live_owner(own)] if o is not None]
+    held += _conflicting_locks(out_dir, tile)
+    if held:
+        raise _locked_error(out_dir, held)
 
 
 def _remove_stale_staging(out_dir: Path) -> None:
@@ -105,55 +226,132 @@ def _remove_stale_staging(out_dir: Path) -> None:
 def planned_files(plan: BakePlan, name: str) -> list:
     """Relative paths of every file a bake of ``plan`` writes, descriptor last."""
     files = [spec.file_name(t) for t in plan.tile_numbers for spec in plan.outputs]
+    return files + _document_names(plan)
+
+
+def _document_names(plan: BakePlan) -> list:
+    """Return the documents written beside the textures, descriptor last."""
+    files = []
     if plan.config.outputs.materialx and plan.single_tile is None:
         files.append("material.mtlx")
     if plan.config.outputs.mitsuba_scene and plan.single_tile is None:
         files.append("scene_mitsuba.xml")
-    files.append(_descriptor_name(plan))
-    return files
+    return files + [_descriptor_name(plan)]
 
 
 def _descriptor_name(plan: BakePlan) -> str:
     return "material.json" if plan.single_tile is None else f"material.{plan.single_tile}.json"
 
 
-def _openpbr_inputs(plan: BakePlan, spec_ior: float) -> dict:
-    udim = plan.tile_numbers[0] is not None
-    inputs = {"subsurface_weight": {"value": 1.0, "type": "float"}}
-    for spec in plan.outputs:
-        if spec.kind == "target":
-            path = f"{spec.key}.<UDIM>.exr" if udim else f"{spec.key}.exr"
-            inputs[spec.quantity] = {
-                "texture": path,
-                "unit": spec.unit,
-                "type": "color3" if len(spec.channels) == 3 else "float",
-            }
-    if spec_ior is not None:  # the table's boundary index (mean over its grid)
-        inputs["specular_ior"] = {"value": spec_ior, "type": "float", "unit": "1"}
-    return inputs
+def texture_memory_bytes(plan: BakePlan) -> int:
+    """Bytes that making the plan's largest tiled mip-mapped texture takes (0 when ``texture`` is off)."""
+    if not plan.config.outputs.texture:
+        return 0
+    texels = max(t.width * t.height for t in plan.tiles)
+    channels = max(len(spec.channels) for spec in plan.outputs)
+    return int(TEXTURE_MEMORY_FACTOR * texels * channels * 4) + TEXTURE_MEMORY_OVERHEAD_BYTES
 
 
-def _standard_surface_inputs(plan: BakePlan, spec_ior: float) -> dict:
-    """Map Standard Surface inputs onto the OpenPBR maps (RGB radius = radius scale, scale = radius)."""
-    udim = plan.tile_numbers[0] is not None
-    rename = {
-        "subsurface_color": "subsurface_color",
-        "subsurface_radius_scale": "subsurface_radius",
-        "subsurface_radius": "subsurface_scale",
-        "subsurface_scatter_anisotropy": "subsurface_anisotropy",
+def check_texture_memory(plan: BakePlan, memory_budget_bytes: int) -> None:
+    """Refuse ``texture = true`` when making a file's mip-maps would need more than the memory budget.
+
+    Raises
+    ------
+    LimitError
+        Naming the largest output, its size, the memory it needs and the budget.
+
+    """
+    need = texture_memory_bytes(plan)
+    if need <= memory_budget_bytes:
+        return
+    ti = max(plan.tiles, key=lambda t: t.width * t.height)
+    spec = max(plan.outputs, key=lambda s: len(s.channels))
+    need_mib, budget_mib = math.ceil(need / (1 << 20)), memory_budget_bytes // (1 << 20)
+    raise LimitError(
+        f"outputs.exr.texture = true makes each tiled mip-mapped file from the whole image: "
+        f"{spec.file_name(ti.tile)} ({ti.width} x {ti.height} texels, {len(spec.channels)} channels) needs "
+        f"about {need_mib} MiB, more than the memory budget of {budget_mib} MiB; give --memory-mb "
+        f"{need_mib} or more, or set texture = false"
+    )
+
+
+def _scene_mean(plan: BakePlan, sums: dict) -> dict:
+    return {k: np.asarray(sums[k], dtype=np.float64) / max(plan.texels, 1) for k in SCENE_KEYS}
+
+
+def _planned_sums(plan: BakePlan, table) -> dict:
+    """Stand-in texel sums for a dry run's preview scene: the table grid's mean values times the texels."""
+    n, idx = plan.texels, plan.spectral_index
+
+    def grid_mean(q):
+        return np.asarray(table.quantities[q], dtype=np.float64)[..., idx].reshape(-1, idx.size).mean(axis=0)
+
+    g = float(np.sum(plan.derived["openpbr_g_num"]) / np.sum(plan.derived["openpbr_g_den"]))
+    return {
+        SCENE_KEYS[0]: grid_mean("albedo_single") * n,
+        SCENE_KEYS[1]: grid_mean("mean_free_path_mm") * n,
+        SCENE_KEYS[2]: np.array([g * n]),
     }
-    inputs = {"subsurface": {"value": 1.0, "type": "float"}}
-    for spec in plan.outputs:
-        if spec.kind == "target" and spec.quantity in rename:
-            path = f"{spec.key}.<UDIM>.exr" if udim else f"{spec.key}.exr"
-            inputs[rename[spec.quantity]] = {
-                "texture": path,
-                "unit": spec.unit,
-                "type": "color3" if len(spec.channels) == 3 else "float",
-            }
-    if spec_ior is not None:
-        inputs["specular_IOR"] = {"value": spec_ior, "type": "float", "unit": "1"}
-    return inputs
+
+
+def _build_documents(
+    plan: BakePlan, table, table_source, entries: list, sums, n_table: int, n_enc: int, output_sums=None
+) -> list:
+    """Build and validate the documents and the descriptor of a bake: ``[(relative path, bytes)]``.
+
+    The MaterialX document passes MaterialX's validation and the descriptor its schema before anything is
+    written; the descriptor comes last. ``sums`` (output key -> per-channel texel sum over all tiles) feed
+    the preview scene's mean texel.
+    """
+    cfg = plan.config
+    ior = float(np.mean(table.quantities["ior"])) if "ior" in table.quantities else None
+    targets = renderer_targets(plan, ior)
+    names = _document_names(plan)
+    out, documents = [], {}
+    if "material.mtlx" in names:
+        from matgen.export.materialx import document_text, openpbr_document
+
+        inputs = targets.get("openpbr", {}).get("inputs", {"subsurface_weight": {"value": 1.0}})
+        doc = openpbr_document(
+            cfg.name,
+            {k: {kk: vv for kk, vv in v.items() if kk in ("texture", "value")} for k, v in inputs.items()},
+            table.working_space,
+        )
+        data = document_text(doc).encode("utf-8")
+        out.append(("material.mtlx", data))
+        documents["materialx"] = {"path": "material.mtlx", "sha256": hashlib.sha256(data).hexdigest()}
+    if "scene_mitsuba.xml" in names:
+        from matgen.export.scene import mitsuba_scene_xml
+
+        if ior is None:
+            raise DataError("the preview scene needs the table's boundary refractive index (quantity 'ior')")
+        mean = _scene_mean(plan, sums)
+        data = mitsuba_scene_xml(
+            plan.spectral_bands.centre_nm,
+            mean["spectral/albedo_single"],
+            mean["spectral/mean_free_path_mm"],
+            float(mean["openpbr/subsurface_scatter_anisotropy"][0]),
+            ior,
+            cfg.metres_per_scene_unit,
+            name=cfg.name,
+        ).encode("utf-8")
+        out.append(("scene_mitsuba.xml", data))
+        documents["mitsuba_scene"] = {"path": "scene_mitsuba.xml", "sha256": hashlib.sha256(data).hexdigest()}
+    desc = build_descriptor(
+        plan,
+        table,
+        matgen_version=__version__,
+        table_identity=_table_identity(table, table_source),
+        spectra_provenance=_spectra_provenance(table),
+        textures=entries,
+        targets=targets,
+        documents=documents,
+        table_clamped=n_table,
+        encoding_clamped=n_enc,
+        output_sums=output_sums,
+    )
+    out.append((_descriptor_name(plan), descriptor_json(desc).encode("utf-8")))
+    return out
 
 
 def bake(
@@ -188,13 +386,15 @@ def bake(
     tile : int, optional
         Bake only this UDIM tile (writes ``material.<tile>.json``); tiles are independent and deterministic.
     dry_run : bool
-        Check the config and every map, list the files, write nothing.
+        Check the config, every map, the output folder (writable, not locked; nothing is created) and that
+        the descriptor and documents build and validate; list the files; write nothing.
     allow_outside : bool
         Allow pass-response paths outside the config's folder.
     progress : callable, optional
         Called as ``progress(texels_done, texels_total)`` after each strip.
     memory_budget_bytes : int
-        Bytes one strip of all channels may take (float32); bounds memory.
+        Bytes one strip of all channels may take (float32); bounds memory. Also the most that making a
+        tiled mip-mapped texture may take (``texture = true``; :func:`check_texture_memory`).
     rows : int, optional
         Fixed strip height in rows (overrides the budget).
 
@@ -210,14 +410,17 @@ def bake(
         table_source = default_table_path() if config.table_path == "default" else config.table_path
     plan = plan_bake(config, table, tile=tile, allow_outside=allow_outside)
     files = planned_files(plan, config.name)
+    check_texture_memory(plan, memory_budget_bytes)
     if dry_run:
+        check_writable(out_dir, create=False)
+        check_unlocked(out_dir, tile)
+        _dry_run_documents(plan, table, table_source)
         check_inputs(plan)
         return BakeResult(
             out_dir, None, files, plan.texels, dry_run=True, seconds=time.perf_counter() - t_start
         )
     check_writable(out_dir)
-    lock_name = ".matgen-bake.lock" if tile is None else f".matgen-bake.{int(tile)}.lock"
-    with FolderLock(out_dir, name=lock_name, purpose="bake"):
+    with _BakeLock(out_dir, tile):
         _remove_stale_staging(out_dir)
         report = check_inputs(plan)
         set_threads(jobs)
@@ -237,6 +440,22 @@ def bake(
     return result
 
 
+def _dry_run_documents(plan: BakePlan, table, table_source) -> None:
+    """Build (and validate) the descriptor and documents a bake would write, with planned texture entries."""
+    opts = plan.config.outputs
+    entries = [
+        texture_entry(
+            spec, spec.file_name(ti.tile), None, ti.tile, ti.width, ti.height, opts.pixel_type, opts.texture
+        )
+        for ti in plan.tiles
+        for spec in plan.outputs
+    ]
+    scene = opts.mitsuba_scene
+    sums = _planned_sums(plan, table) if scene else None
+    tile_sums = sums if scene and plan.single_tile is not None else None
+    _build_documents(plan, table, table_source, entries, sums, 0, 0, output_sums=tile_sums)
+
+
 def _finish(pending: list) -> None:
     """Wait for one strip's file writes; the first failure is raised."""
     for f in pending:
@@ -252,7 +471,9 @@ def _bake_into(
     total = plan.texels
     done = 0
     entries, written = [], []
-    sums = {spec.key: np.zeros(len(spec.channels)) for spec in plan.outputs}  # for the preview scene
+    scene_keys = [s.key for s in plan.outputs if s.key in SCENE_KEYS] if opts.mitsuba_scene else []
+    widths = {s.key: len(s.channels) for s in plan.outputs}
+    sums = {k: np.zeros(widths[k]) for k in scene_keys}  # per tile, then over tiles in order
     n_table, n_enc = 0, report.total_clamped
     base_attrs = {"matgen:version": __version__}
     # strip k is written in worker threads (OpenImageIO releases the GIL while it compresses) while strip
@@ -262,6 +483,7 @@ def _bake_into(
     ) as pool:
         for ti in plan.tiles:
             writers, pending = {}, []
+            tile_sums = {k: np.zeros(widths[k]) for k in scene_keys}
             try:
                 for spec in plan.outputs:
                     rel = spec.file_name(ti.tile)
@@ -294,8 +516,8 @@ def _bake_into(
                     pending = [
                         pool.submit(w.write_rows, strip.y0, strip.values[key]) for key, w in writers.items()
                     ]
-                    for key in writers:
-                        sums[key] += strip.values[key].sum(axis=(0, 1), dtype=np.float64)
+                    for key in scene_keys:
+                        tile_sums[key] += strip.values[key].sum(axis=(0, 1), dtype=np.float64)
                     n_table += strip.table_clamped
                     done += (strip.y1 - strip.y0) * ti.width
                     if progress is not None:
@@ -308,6 +530,8 @@ def _bake_into(
                 for w in writers.values():
                     w.abort()
                 raise
+            for key in scene_keys:
+                sums[key] += tile_sums[key]
             for spec in plan.outputs:
                 rel = spec.file_name(ti.tile)
                 if opts.texture:
@@ -319,94 +543,11 @@ def _bake_into(
                     )
                 )
                 written.append(rel)
-    ior = float(np.mean(table.quantities["ior"])) if "ior" in table.quantities else None
-    targets = {}
-    if "openpbr" in opts.targets:
-        targets["openpbr"] = {
-            "shading_model": "OpenPBR Surface (MaterialX 1.39 open_pbr_surface)",
-            "albedo_convention": "spec_remap: subsurface_color is van de Hulst's A of the "
-            "effective single-scattering albedo (matgen.fit.targets)",
-            "inputs": _openpbr_inputs(plan, ior),
-        }
-    if "standard_surface" in opts.targets:
-        targets["standard_surface"] = {
-            "shading_model": "Autodesk Standard Surface (MaterialX standard_surface)",
-            "inputs": _standard_surface_inputs(plan, ior),
-        }
-    documents = {}
-    if "material.mtlx" in planned_files(plan, cfg.name):
-        from matgen.export.materialx import document_text, openpbr_document
-
-        inputs = targets.get("openpbr", {}).get("inputs", {"subsurface_weight": {"value": 1.0}})
-        doc = openpbr_document(
-            cfg.name,
-            {k: {kk: vv for kk, vv in v.items() if kk in ("texture", "value")} for k, v in inputs.items()},
-            table.working_space,
-        )
-        (staging / "material.mtlx").write_text(document_text(doc))
-        documents["materialx"] = {"path": "material.mtlx", "sha256": sha256_file(staging / "material.mtlx")}
-        written.append("material.mtlx")
-    if "scene_mitsuba.xml" in planned_files(plan, cfg.name):
-        from matgen.export.scene import mitsuba_scene_xml
-
-        if ior is None:
-            raise DataError("the preview scene needs the table's boundary refractive index (quantity 'ior')")
-        mean = {k: v / max(total, 1) for k, v in sums.items()}
-        xml = mitsuba_scene_xml(
-            plan.spectral_bands.centre_nm,
-            mean["spectral/albedo_single"],
-            mean["spectral/mean_free_path_mm"],
-            float(mean["openpbr/subsurface_scatter_anisotropy"][0]),
-            ior,
-            cfg.metres_per_scene_unit,
-            name=cfg.name,
-        )
-        (staging / "scene_mitsuba.xml").write_text(xml)
-        documents["mitsuba_scene"] = {
-            "path": "scene_mitsuba.xml",
-            "sha256": sha256_file(staging / "scene_mitsuba.xml"),
-        }
-        written.append("scene_mitsuba.xml")
-    table_name, table_hash = _table_identity(table, table_source)
-    source = {k: v for k, v in cfg.source.items()}
-    desc = {
-        "format": DESCRIPTOR_FORMAT,
-        "format_version": DESCRIPTOR_VERSION,
-        "name": cfg.name,
-        "units": {
-            "wavelength": "nm",
-            "length": "mm",
-            "scene_length": "scene_unit",
-            "metres_per_scene_unit": cfg.metres_per_scene_unit,
-        },
-        "bands": {"table": table.bands.to_dict(), "spectral_stacks": plan.spectral_bands.to_dict()},
-        "working_space": table.working_space,
-        "illuminant": table.illuminant,
-        "udim_tiles": None if plan.tile_numbers[0] is None else [int(t) for t in plan.tile_numbers],
-        "textures": entries,
-        "passes": {k: {"weights": v.tolist()} for k, v in plan.pass_weights.items()},
-        "targets": targets,
-        "documents": documents,
-        "provenance": {
-            "matgen_version": __version__,
-            "table": table_name,
-            "table_sha256": table_hash,
-            "table_manifest": {
-                k: v for k, v in (table.manifest or {}).items() if k in ("spec", "spec_hash", "name", "hash")
-            },
-            "spectra": _spectra_provenance(table),
-            "config": source,
-            "config_sha256": hash_json(source),
-        },
-        "statistics": {
-            "texels": int(plan.texels),
-            "table_clamped_texels": int(n_table),
-            "encoding_clamped_texels": int(n_enc),
-        },
-    }
-    name = _descriptor_name(plan)
-    (staging / name).write_text(descriptor_json(desc))
-    written.append(name)
+    # a one-tile farm bake records its texel sums so that the set's preview scene can be assembled
+    output_sums = sums if scene_keys and plan.single_tile is not None else None
+    for rel, data in _build_documents(plan, table, table_source, entries, sums, n_table, n_enc, output_sums):
+        (staging / rel).write_bytes(data)
+        written.append(rel)
     return BakeResult(staging, None, written, plan.texels, n_table, n_enc)
 
 
