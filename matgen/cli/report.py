@@ -20,6 +20,12 @@ def register(sub):
     p.add_argument("--out", help="HTML file to write (default: report.html beside the descriptor)")
     p.add_argument("--validation", help="JSON written by 'matgen validate --json' to include")
     p.add_argument("--figure", nargs="+", default=[], metavar="PNG", help="further PNG figures to embed")
+    p.add_argument(
+        "--allow-outside",
+        action="store_true",
+        help="read textures whose path leads outside the descriptor's folder (absolute, '..' or a symbolic "
+        "link out of it); refused by default",
+    )
     p.set_defaults(func=run)
 
 
@@ -29,6 +35,12 @@ def run(args) -> int:
 
     out = Path(args.out) if args.out else Path(args.descriptor).parent / "report.html"
     figures = [(f, Path(f).name) for f in args.figure]
-    path = build_report(args.descriptor, out, validation=args.validation, extra_figures=figures)
+    path = build_report(
+        args.descriptor,
+        out,
+        validation=args.validation,
+        extra_figures=figures,
+        allow_outside=args.allow_outside,
+    )
     print(f"report: {path}")
     return 0

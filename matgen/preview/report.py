@@ -19,7 +19,13 @@ import numpy as np
 
 from matgen import __version__
 from matgen.errors import DataError, ImageError, MatgenError
+from matgen.fsutil import resolve_inside
+from matgen.limits import check_file_size
 from matgen.preview import images, plots
+from matgen.preview.validation_json import check_validation, load_validation
+
+#: The eight bytes every PNG file starts with (PNG specification, W3C 2003, sec. 5.2).
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 
 _STYLE = """
 body{font-family:sans-serif;margin:2em auto;max-width:1100px;color:#222;line-height:1.4}
@@ -65,31 +71,62 @@ def _table(headers, rows) -> str:
     return f"<table><tr>{head}</tr>{body}</table>"
 
 
-def _texture(folder: Path, doc: dict, quantity: str = None, kind: str = None, key: str = None):
+def texture_path(folder: Path, entry: dict, allow_outside: bool = False) -> Path:
+    """Return the file of a descriptor's texture entry; refuse one leading outside the descriptor's folder.
+
+    Parameters
+    ----------
+    folder : Path
+        The descriptor's folder.
+    entry : dict
+        A ``textures`` entry of the descriptor.
+    allow_outside : bool
+        Follow absolute paths, ``..`` and symbolic links leading out of ``folder`` (the user's explicit
+        choice, ``--allow-outside``).
+
+    Raises
+    ------
+    PathError
+        If the path (after following symbolic links) lies outside ``folder`` and that is not allowed.
+
+    """
+    return resolve_inside(folder, entry["path"], f"texture path of '{entry['key']}'", allow_outside)
+
+
+def _texture(
+    folder: Path,
+    doc: dict,
+    quantity: str = None,
+    kind: str = None,
+    key: str = None,
+    allow_outside: bool = False,
+):
     for t in doc["textures"]:
         if (
             (quantity is None or t["quantity"] == quantity)
             and (kind is None or t["kind"] == kind)
             and (key is None or t["key"] == key)
         ):
-            path = folder / t["path"]
+            path = texture_path(folder, t, allow_outside)
             if path.is_file():
                 arr, names = images.read_texture(path)
                 return t, arr, names
     return None
 
 
-def material_panels(descriptor_path, doc: dict) -> list:
+def material_panels(descriptor_path, doc: dict, *, allow_outside: bool = False) -> list:
     """Contact-sheet panels of a baked material (first UDIM tile where there are several).
 
     The ACEScg (working-space) albedo through the sRGB view (``matgen.preview.images.working_to_display``),
     each UV / IR pass map, the mean-free-path and radius maps with a colour bar and their unit, and the QA
-    maps (texels clamped to the table, fit residual).
+    maps (texels clamped to the table, fit residual). Texture files are found through
+    :func:`texture_path`: one leading outside the descriptor's folder (an absolute path, ``..``, a symbolic
+    link out of it) is a :class:`~matgen.errors.PathError` unless ``allow_outside`` is true.
     """
     folder = Path(descriptor_path).parent
     panels = []
     space = doc.get("working_space", "ACEScg")
-    found = _texture(folder, doc, quantity="rgb_albedo_multiple", kind="rgb")
+    found = _texture(folder, doc, quantity="rgb_albedo_multiple", kind="rgb", allow_outside=allow_outside)
     if found:
         t, arr, _ = found
         panels.append(
@@ -100,7 +137,7 @@ def material_panels(descriptor_path, doc: dict) -> list:
         )
     for t in doc["textures"]:
         if t["kind"] == "pass":
-            arr, _ = images.read_texture(folder / t["path"])
+            arr, _ = images.read_texture(texture_path(folder, t, allow_outside))
             panels.append(
                 {
                     "title": f"pass {t['quantity']}",
@@ -112,12 +149,12 @@ def material_panels(descriptor_path, doc: dict) -> list:
         ("rgb_shape_distance_mm", "shape distance d (red channel)"),
         ("subsurface_radius", "OpenPBR subsurface_radius"),
     ):
-        found = _texture(folder, doc, quantity=quantity)
+        found = _texture(folder, doc, quantity=quantity, allow_outside=allow_outside)
         if found:
             t, arr, _ = found
             unit = {"scene_unit": "scene units", "mm": "mm"}.get(t["unit"], t["unit"])
             panels.append({"title": label, "values": arr[..., 0], "unit": unit, "cmap": "viridis"})
-    found = _texture(folder, doc, kind="qa")
+    found = _texture(folder, doc, kind="qa", allow_outside=allow_outside)
     if found:
         t, arr, names = found
         for i, name in enumerate(names):
@@ -125,8 +162,10 @@ def material_panels(descriptor_path, doc: dict) -> list:
     return panels
 
 
-def texel_spectra(descriptor_path, doc: dict, n_texels: int = 3):
+def texel_spectra(descriptor_path, doc: dict, n_texels: int = 3, *, allow_outside: bool = False):
     """Spectra of the baked albedo A at a few texels: the darkest, the median and the brightest (by mean A).
+
+    The spectral stack's file is found through :func:`texture_path` (``allow_outside`` as there).
 
     Returns
     -------
@@ -135,7 +174,13 @@ def texel_spectra(descriptor_path, doc: dict, n_texels: int = 3):
     """
     from matgen.spectra.bands import BandSet
 
-    found = _texture(Path(descriptor_path).parent, doc, quantity="albedo_multiple", kind="spectral")
+    found = _texture(
+        Path(descriptor_path).parent,
+        doc,
+        quantity="albedo_multiple",
+        kind="spectral",
+        allow_outside=allow_outside,
+    )
     if not found:
         return None
     t, arr, names = found
@@ -150,7 +195,7 @@ def texel_spectra(descriptor_path, doc: dict, n_texels: int = 3):
     return bands, curves
 
 
-def _qa_rows(descriptor_path, doc: dict, inspect) -> list:
+def _qa_rows(descriptor_path, doc: dict, inspect, allow_outside: bool = False) -> list:
     s = doc.get("statistics", {})
     rows = [
         ["texels", _esc(s.get("texels", "?"))],
@@ -161,7 +206,7 @@ def _qa_rows(descriptor_path, doc: dict, inspect) -> list:
             _esc(f"{inspect.checked} / {len(inspect.missing)} / {len(inspect.modified)}"),
         ],
     ]
-    found = _texture(Path(descriptor_path).parent, doc, kind="qa")
+    found = _texture(Path(descriptor_path).parent, doc, kind="qa", allow_outside=allow_outside)
     if found:
         _, arr, names = found
         if "fit_residual" in names:
@@ -177,6 +222,27 @@ def _qa_rows(descriptor_path, doc: dict, inspect) -> list:
     return rows
 
 
+def _check_figure(path) -> Path:
+    """Check an extra figure to embed: an existing regular file starting with the PNG signature."""
+    p = Path(path)
+    if not p.is_file():
+        raise DataError(f"figure {p} does not exist or is not a regular file")
+    check_file_size(p, "figure")
+    try:
+        with open(p, "rb") as fh:
+            head = fh.read(len(PNG_SIGNATURE))
+    except OSError as exc:
+        raise DataError(f"figure {p} cannot be read: {exc.strerror or exc}") from None
+    if head != PNG_SIGNATURE:
+        raise DataError(f"figure {p} is not a PNG file (it does not start with the PNG signature)")
+    return p
+
+
+def _plot_label(text: str) -> str:
+    """Text for a matplotlib label: a '$' would start mathtext, which may not parse; show it literally."""
+    return text.replace("$", r"\$")
+
+
 def _validation_section(validation: dict, tmp: Path) -> str:
     parts = []
     verdict = "PASS" if validation.get("passed") else "FAIL"
@@ -188,8 +254,17 @@ def _validation_section(validation: dict, tmp: Path) -> str:
         f"standard errors plus the stated allowance {_esc(validation.get('allowances', {}))}.</p>"
     )
     comps = validation.get("comparisons", [])
-    if comps:
-        fig = plots.plot_validation(tmp / "validation.png", comps)
+    drawn = [
+        {
+            **c,
+            "name": _plot_label(c["name"]),
+            "rows": [{**r, "label": _plot_label(r["label"])} for r in c["rows"]],
+        }
+        for c in comps
+        if c["rows"]
+    ]
+    if drawn:
+        fig = plots.plot_validation(tmp / "validation.png", drawn)
         parts.append(_figure(fig, "difference per case with its bound (green band)"))
     for comp in comps:
         cls = "pass" if comp["passed"] else "fail"
@@ -219,7 +294,9 @@ def _validation_section(validation: dict, tmp: Path) -> str:
     return "\n".join(parts)
 
 
-def build_report(descriptor_path, out_path, *, validation=None, extra_figures=None) -> Path:
+def build_report(
+    descriptor_path, out_path, *, validation=None, extra_figures=None, allow_outside: bool = False
+) -> Path:
     """Write the HTML report of the baked material described by ``descriptor_path``.
 
     Parameters
@@ -230,27 +307,36 @@ def build_report(descriptor_path, out_path, *, validation=None, extra_figures=No
         HTML file to write.
     validation : dict or str or Path, optional
         A ``matgen validate --json`` result (or its path) to include; without it the report says that no
-        validation is attached.
+        validation is attached. Checked by :func:`check_validation` (a file by :func:`load_validation`).
     extra_figures : list of (path, caption), optional
         Further PNG files to embed.
+    allow_outside : bool
+        Read texture files whose path leads outside the descriptor's folder (absolute, ``..`` or a symbolic
+        link out of it); by default such a path is a :class:`~matgen.errors.PathError`.
 
     Returns
     -------
     Path
         The file written.
 
+    Raises
+    ------
+    MatgenError
+        A descriptor, texture, validation file or figure that cannot be used, naming the file; nothing is
+        written then.
+
     """
     from matgen.export.descriptor import inspect_descriptor
     from matgen.fsutil import atomic_path
 
     descriptor_path = Path(descriptor_path)
+    figures = [(_check_figure(p), caption) for p, caption in extra_figures or []]
+    if isinstance(validation, (str, Path)):
+        validation = load_validation(validation)
+    elif validation is not None:
+        validation = check_validation(validation)
     inspect = inspect_descriptor(descriptor_path)
     doc = inspect.doc
-    if isinstance(validation, (str, Path)):
-        try:
-            validation = json.loads(Path(validation).read_text())
-        except (OSError, ValueError) as exc:
-            raise DataError(f"cannot read validation results {validation}: {exc}") from exc
     body = [
         f"<h1>matgen material report: {_esc(doc['name'])}</h1>",
         "<p class='note'>For imagery only: these numbers are no basis for clinical, dosimetric or "
@@ -320,30 +406,30 @@ def build_report(descriptor_path, out_path, *, validation=None, extra_figures=No
         )
         # previews
         body.append("<h2>Previews</h2>")
-        panels = material_panels(descriptor_path, doc)
+        panels = material_panels(descriptor_path, doc, allow_outside=allow_outside)
         if panels:
             sheet = plots.plot_contact_sheet(tmp / "sheet.png", panels, title=f"{doc['name']}: baked maps")
             body.append(
                 _figure(sheet, "contact sheet of the baked maps; scalar maps with colour bars and units")
             )
-        spectra = texel_spectra(descriptor_path, doc)
+        spectra = texel_spectra(descriptor_path, doc, allow_outside=allow_outside)
         if spectra:
             bands, curves = spectra
             fig = plots.plot_reflectance_spectra(
                 tmp / "spectra.png", bands, curves, title="baked albedo A at three texels"
             )
             body.append(_figure(fig, "reflectance spectra of the baked spectral stack at three texels"))
-            body.append(_patch_section(descriptor_path, doc, bands, curves, tmp))
+            body.append(_patch_section(descriptor_path, doc, bands, curves, tmp, allow_outside))
         else:
             body.append(
                 "<p class='note'>No spectral albedo stack in this bake: spectra and patch preview "
                 "left out.</p>"
             )
-        for path, caption in extra_figures or []:
+        for path, caption in figures:
             body.append(_figure(path, caption))
         # QA
         body.append("<h2>QA</h2>")
-        body.append(_table(["check", "result"], _qa_rows(descriptor_path, doc, inspect)))
+        body.append(_table(["check", "result"], _qa_rows(descriptor_path, doc, inspect, allow_outside)))
         for p in inspect.missing:
             body.append(f"<p class='fail'>missing file: {_esc(p)}</p>")
         for p in inspect.modified:
@@ -367,8 +453,8 @@ def build_report(descriptor_path, out_path, *, validation=None, extra_figures=No
     return out_path
 
 
-def _patch_section(descriptor_path, doc, bands, curves, tmp: Path) -> str:
-    """The patch preview of the median texel from the baked spectral stacks (or a note why not).
+def _patch_section(descriptor_path, doc, bands, curves, tmp: Path, allow_outside: bool = False) -> str:
+    """Build the patch preview of the median texel from the baked spectral stacks (or a note why not).
 
     Baked stacks carry A and d (or the mean free path) but not the full effective medium, so this preview is
     always the labelled built-in approximation; ``matgen preview`` renders with the path tracer.
@@ -378,14 +464,20 @@ def _patch_section(descriptor_path, doc, bands, curves, tmp: Path) -> str:
     folder = Path(descriptor_path).parent
     label = next((k for k in curves if k.startswith("median")), next(iter(curves)))
     a = curves[label]
-    d_found = _texture(folder, doc, quantity="shape_distance_mm", kind="spectral")
-    l_found = _texture(folder, doc, quantity="mean_free_path_mm", kind="spectral")
+    d_found = _texture(
+        folder, doc, quantity="shape_distance_mm", kind="spectral", allow_outside=allow_outside
+    )
+    l_found = _texture(
+        folder, doc, quantity="mean_free_path_mm", kind="spectral", allow_outside=allow_outside
+    )
     if d_found is None and l_found is None:
         return (
             "<p class='note'>Patch preview left out: the bake wrote neither shape_distance_mm nor "
             "mean_free_path_mm spectral stacks.</p>"
         )
-    _, arr_a, _ = _texture(folder, doc, quantity="albedo_multiple", kind="spectral")
+    _, arr_a, _ = _texture(
+        folder, doc, quantity="albedo_multiple", kind="spectral", allow_outside=allow_outside
+    )
     flat_a = arr_a.reshape(-1, arr_a.shape[2]).astype(np.float64)
     i = int(np.argsort(flat_a.mean(axis=1), kind="stable")[flat_a.shape[0] // 2])
     if d_found is not None:
