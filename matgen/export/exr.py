@@ -180,24 +180,36 @@ def make_texture(src, dst, tile_size: int = 64) -> None:
 def read_exr(path):
     """Read an EXR file whole: returns (pixels float32 (h, w, c), channel names tuple, attributes dict).
 
+    The declared width, height and channel count are checked against :mod:`matgen.limits` before any pixel
+    memory is allocated.
+
     Raises
     ------
     ImageError
-        If OpenImageIO cannot open or read it (missing, truncated, not an image).
+        If OpenImageIO cannot open or read it (missing, truncated, not an image; an error text holding the
+        file's non-UTF-8 bytes is decoded loosely), or it declares a zero or negative size.
+    LimitError
+        If the declared size exceeds a ceiling (``image_side``, ``image_pixels``, ``image_channels``,
+        ``image_bytes``).
 
     """
+    from matgen.bake.maps import _oiio_error
+    from matgen.limits import check_image_dims
+
     path = Path(path)
     inp = oiio.ImageInput.open(str(path))
     if inp is None:
-        raise ImageError(f"{path} cannot be read: {oiio.geterror().strip()}")
+        raise ImageError(f"{path} cannot be read: {_oiio_error()}")
     try:
         spec = inp.spec()
-        data = inp.read_image(0, 0, 0, spec.nchannels, oiio.FLOAT)
+        width, height, nchannels = int(spec.width), int(spec.height), int(spec.nchannels)
+        check_image_dims(width, height, nchannels, path=path)  # before read_image allocates
+        data = inp.read_image(0, 0, 0, nchannels, oiio.FLOAT)
         if data is None:
-            raise ImageError(f"{path} cannot be read: {inp.geterror().strip()}")
+            raise ImageError(f"{path} cannot be read: {_oiio_error(inp)}")
         attrs = {a.name: a.value for a in spec.extra_attribs}
         return (
-            np.asarray(data, dtype=np.float32).reshape(spec.height, spec.width, spec.nchannels),
+            np.asarray(data, dtype=np.float32).reshape(height, width, nchannels),
             tuple(spec.channelnames),
             attrs,
         )

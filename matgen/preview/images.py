@@ -84,27 +84,38 @@ def linear_to_display(values) -> np.ndarray:
 def read_texture(path) -> tuple[np.ndarray, list]:
     """Read an image (EXR, TIFF, PNG) with OpenImageIO as float32 (H, W, C) and its channel names.
 
+    The declared width, height and channel count are checked against :mod:`matgen.limits` before any pixel
+    memory is allocated.
+
     Raises
     ------
     ImageError
-        Naming the path when the file cannot be opened or read.
+        Naming the path when the file cannot be opened or read, or declares a zero or negative size.
+    LimitError
+        When the declared size exceeds a ceiling (``image_side``, ``image_pixels``, ``image_channels``,
+        ``image_bytes``).
 
     """
     import OpenImageIO as oiio
 
+    from matgen.bake.maps import _oiio_error
+    from matgen.limits import check_image_dims
+
     p = Path(path)
     inp = oiio.ImageInput.open(str(p))
     if inp is None:
-        raise ImageError(f"cannot open texture {p}: {oiio.geterror() or 'unreadable'}")
+        raise ImageError(f"cannot open texture {p}: {_oiio_error() or 'unreadable'}")
     try:
         spec = inp.spec()
-        pixels = inp.read_image(0, 0, 0, spec.nchannels, oiio.FLOAT)
+        width, height, nchannels = int(spec.width), int(spec.height), int(spec.nchannels)
+        check_image_dims(width, height, nchannels, path=p)  # before read_image allocates
+        pixels = inp.read_image(0, 0, 0, nchannels, oiio.FLOAT)
         if pixels is None:
-            raise ImageError(f"cannot read pixels of {p}: {inp.geterror() or 'read failed'}")
+            raise ImageError(f"cannot read pixels of {p}: {_oiio_error(inp) or 'read failed'}")
         names = list(spec.channelnames)
     finally:
         inp.close()
-    arr = np.asarray(pixels, dtype=np.float32).reshape(spec.height, spec.width, spec.nchannels)
+    arr = np.asarray(pixels, dtype=np.float32).reshape(height, width, nchannels)
     return arr, names
 
 

@@ -1,8 +1,9 @@
-"""Hostile pigment maps: truncated, zero-sized, huge declared dimensions, wrong channel counts, NaN/inf texels.
+"""Hostile pigment maps: truncated, zero-sized, huge declared sizes, wrong channel counts, NaN/inf texels.
 
 Each case runs a real bake (material config + table + maps made by tests/hostile/projects.py) and checks that
 it ends in one MatgenError naming the map, that nothing is written to the output folder, and that a huge
 declared size is refused before memory for it is allocated (tracemalloc peak, which numpy reports to).
+The whole-image readers of the export and preview stages (read_exr, read_texture) get the same checks.
 File-format facts used to forge headers: OpenEXR attribute layout name\\0type\\0size(int32) value
 (dataWindow is a box2i of four int32: xmin, ymin, xmax, ymax; OpenEXR file layout documentation);
 PNG IHDR = length, b"IHDR", width, height (big-endian uint32) ..., CRC-32 over type and data (PNG spec,
@@ -159,7 +160,7 @@ def test_non_finite_texels_are_refused_with_their_position(tmp_path, bad):
 
 
 def test_many_channel_map_with_lowered_channel_ceiling(tmp_path):
-    """Channel ceiling: a 1-channel read of a 40-channel map is fine by default and refused under a ceiling of 8."""
+    """Channel ceiling: reading 1 channel of a 40-channel map passes by default, not under a ceiling of 8."""
     cfg = make_project(tmp_path)
     from projects import pigment_maps
 
@@ -170,3 +171,69 @@ def test_many_channel_map_with_lowered_channel_ceiling(tmp_path):
 
     with limits.override(image_channels=8):
         _expect_refusal(cfg, tmp_path / "out", LimitError, match="channel")
+
+
+# ---------------------------------------------------------------------------------------------------------
+# whole-image readers outside the bake: matgen.export.exr.read_exr (tests, inspection) and
+# matgen.preview.images.read_texture (report, previews, gallery)
+
+
+def _readers():
+    from matgen.export.exr import read_exr
+    from matgen.preview.images import read_texture
+
+    return {"read_exr": read_exr, "read_texture": read_texture}
+
+
+def _small_exr(tmp_path):
+    from projects import pigment_maps
+
+    p = tmp_path / "tex.exr"
+    write_map(p, pigment_maps(16, 16)[0])
+    return p
+
+
+@pytest.mark.parametrize("reader", ["read_exr", "read_texture"])
+def test_whole_image_readers_check_the_ceilings_before_reading(tmp_path, reader):
+    """A 16 x 16 EXR reads by default and is a LimitError naming the file under image_pixels=100."""
+    from matgen import limits
+
+    p = _small_exr(tmp_path)
+    read = _readers()[reader]
+    assert read(p)[0].shape[:2] == (16, 16)
+    with limits.override(image_pixels=100):
+        with pytest.raises(LimitError, match="tex.exr"):
+            read(p)
+    with limits.override(image_channels=1):
+        assert read(p)[0].shape[2] == 1
+    write_map(p, np.zeros((4, 4, 3), np.float32))
+    with limits.override(image_channels=2):
+        with pytest.raises(LimitError, match="MATGEN_MAX_IMAGE_CHANNELS"):
+            read(p)
+
+
+@pytest.mark.parametrize("reader", ["read_exr", "read_texture"])
+@pytest.mark.parametrize("side", [30_000, 2_000_000_000])
+def test_whole_image_readers_refuse_huge_declared_dimensions_before_allocation(tmp_path, reader, side):
+    p = _small_exr(tmp_path)
+    p.write_bytes(_patch_exr_window(p.read_bytes(), side - 1, side - 1))
+    read = _readers()[reader]
+    tracemalloc.start()
+    try:
+        with pytest.raises(MatgenError, match="tex.exr"):
+            read(p)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak < 64e6, f"{peak / 1e6:.0f} MB allocated while refusing the image"
+
+
+@pytest.mark.parametrize("reader", ["read_exr", "read_texture"])
+def test_whole_image_readers_turn_non_utf8_error_text_into_image_error(tmp_path, reader):
+    """The EXR whose 'chlist' type reads b'ch\\xc9ist': OpenImageIO's error text is not UTF-8."""
+    p = _small_exr(tmp_path)
+    data = p.read_bytes()
+    assert data.count(b"chlist") == 1
+    p.write_bytes(data.replace(b"chlist", b"ch\xc9ist"))
+    with pytest.raises(ImageError, match="tex.exr"):
+        _readers()[reader](p)
