@@ -7,6 +7,13 @@ misspelt input or a wrong type is refused. Image nodes use MaterialX's ``<UDIM>`
 Inputs (OpenPBR 1.1 names): ``subsurface_weight`` (float), ``subsurface_color`` (color3, an albedo in the
 working space), ``subsurface_radius`` (float, scene units), ``subsurface_radius_scale`` (color3,
 dimensionless), ``subsurface_scatter_anisotropy`` (float), ``specular_ior`` (float).
+
+Colour management: only ``subsurface_color`` is a colour; its image's file carries the working space, so a
+renderer in another working space converts it. Every other map is data (a ratio of lengths, a length, g) and
+must reach the shader unchanged: MaterialX colour-manages only colour types (the "color" type semantic of the
+MaterialX 1.39 specification), so such maps are read by images of a non-colour type (``float``, or
+``vector3`` turned into the ``color3`` input by a ``convert`` node) whose file input says ``colorspace =
+"none"``, the name MaterialX reserves for "no colour space conversion".
 """
 
 from __future__ import annotations
@@ -31,6 +38,13 @@ OPENPBR_INPUT_TYPES = {
     "subsurface_scatter_anisotropy": "float",
     "specular_ior": "float",
 }
+
+
+#: OpenPBR inputs that are colours (colour-managed from the working space); every other map is data.
+COLOUR_INPUTS = ("subsurface_color",)
+
+#: MaterialX's reserved colour-space name for "no conversion" (MaterialX 1.39 specification, Color Spaces).
+RAW_COLORSPACE = "none"
 
 
 def _libraries(mx):
@@ -83,12 +97,19 @@ def openpbr_document(name: str, inputs: dict, working_space: str):
         typ = OPENPBR_INPUT_TYPES[key]
         inp = shader.addInput(key, typ)
         if "texture" in entry:
-            img = doc.addNode("image", f"{safe}_{key}_image", typ)
+            colour = key in COLOUR_INPUTS
+            # data maps: a non-colour image type, so that no colour management touches the values
+            read = typ if colour or typ == "float" else "vector3"
+            img = doc.addNode("image", f"{safe}_{key}_image", read)
             f = img.addInput("file", "filename")
             f.setValueString(entry["texture"])
-            if key == "subsurface_color":
-                f.setColorSpace(cs)
-            inp.setNodeName(img.getName())
+            f.setColorSpace(cs if colour else RAW_COLORSPACE)
+            if read == typ:
+                inp.setNodeName(img.getName())
+            else:
+                conv = doc.addNode("convert", f"{safe}_{key}_{typ}", typ)
+                conv.addInput("in", read).setNodeName(img.getName())
+                inp.setNodeName(conv.getName())
         else:
             inp.setValue(float(entry["value"]))
     doc.addMaterialNode(safe, shader)

@@ -32,7 +32,8 @@ def make_test_table(bands=None) -> Table:
         "shape_distance_mm": 0.2 + 1.5 * wl * a_mult,
         "albedo_single": 1.0 - 0.1 * (1.0 - a_mult) ** 2,
         "mean_free_path_mm": 0.05 + 2.0 * wl**2 * a_mult,
-        "anisotropy": 0.8 + 0.0 * a_mult + 0.05 * wl,
+        # g varies with band and pigment, so that albedo weighting and its blending can be told apart
+        "anisotropy": 0.75 + 0.0 * a_mult + 0.05 * wl + 0.2 * m,
         "fit_residual": 0.01 + 0.01 * m * np.ones_like(wl),
     }
     rgb_idx = [bands.index_of(x) for x in (610.0, 550.0, 460.0)]

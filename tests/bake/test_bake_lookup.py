@@ -77,13 +77,12 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
             "subsurface_scatter_anisotropy",
         )
     }
+    g_blend = _blended_g(table, pts[ys, xs])
     for i in range(len(ys)):
-        a = ref["albedo_multiple"][i].astype(np.float64)
-        g = float(np.sum(a * ref["anisotropy"][i]) / np.sum(a))  # A-weighted mean g, as from_summary
         medium = EffectiveMedium(
             ref["rgb_albedo_single"][i],
             ref["rgb_mean_free_path_mm"][i],
-            np.full(3, g),
+            np.full(3, g_blend[i]),
             ior=float(ref["ior"][i, 0]),
         )
         inputs = target.to_inputs(medium, metres_per_scene_unit=0.01)
@@ -92,11 +91,71 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
         np.testing.assert_allclose(
             maps["subsurface_radius_scale"][i], inputs["subsurface_radius_scale"], rtol=1e-6
         )
-        # the test table's g does not vary with pigment, so blending A g and A separately is exact here
         np.testing.assert_allclose(
             maps["subsurface_scatter_anisotropy"][i, 0], inputs["subsurface_scatter_anisotropy"], rtol=1e-6
         )
+    # the test table's g varies with pigment and band: the texels' g differ, and the albedo-weighted mean
+    # differs from the plain mean over bands by far more than the tolerance, so a wrong weighting would fail
+    g_plain = ref["anisotropy"].astype(np.float64).mean(axis=1)
+    assert np.ptp(g_blend) > 0.02 and np.min(np.abs(g_blend - g_plain)) > 1e-4
     assert res.table_clamped == 0 and res.texels == 40 * 24
+
+
+def _blended_g(table, pts):
+    """The bake's per-texel g, built independently: sum_b A_b g_b and sum_b A_b formed on the table's grid,
+    interpolated by the table's own lookup (an auxiliary Table holding just those two), then divided."""
+    a = table.quantities["albedo_multiple"].astype(np.float64)
+    g = table.quantities["anisotropy"].astype(np.float64)
+    aux = Table(
+        axes=table.axes,
+        bands=table.bands,
+        quantities={
+            "num": (a * g).sum(axis=-1, keepdims=True).astype(np.float32),
+            "den": a.sum(axis=-1, keepdims=True).astype(np.float32),
+        },
+        working_space=table.working_space,
+        illuminant=table.illuminant,
+        manifest={"name": "aux"},
+    )
+    r, _ = aux.lookup(np.asarray(pts, dtype=np.float64), ["num", "den"])
+    return r["num"][:, 0].astype(np.float64) / r["den"][:, 0]
+
+
+def test_anisotropy_and_colour_at_grid_nodes_follow_the_fit_modules_convention(tmp_path, kit):
+    """At texels on the table's grid nodes the baked g is EffectiveMedium.from_summary's albedo-weighted
+    mean g of the node's spectra (matgen.fit.targets), and subsurface_color follows from it."""
+    table = kit.make_test_table()
+    mel_nodes, eu_nodes, blood_nodes = (table.axes[i].values for i in range(3))
+    cfg = kit.make_project(tmp_path / "p", len(blood_nodes), len(mel_nodes), pixel_type="float")
+    cfg.write_text(cfg.read_text().replace("maps/blood.png", "maps/blood.exr"))
+    ix, iy = np.meshgrid(np.arange(len(mel_nodes)), np.arange(len(blood_nodes)))
+    ie = (ix + iy) % len(eu_nodes)  # every eumelanin node appears
+    maps = tmp_path / "p" / "maps"
+    kit.write_map(maps / "melanin.exr", (mel_nodes[ix] - 0.005) / (0.45 - 0.005))
+    kit.write_map(maps / "eumelanin.exr", eu_nodes[ie])
+    kit.write_map(maps / "blood.exr", (blood_nodes[iy] - 0.002) / (0.1 - 0.002))
+    out = tmp_path / "out"
+    bake(load_config(cfg), out, table=table)
+    g_map = read_exr(out / "openpbr" / "subsurface_scatter_anisotropy.exr")[0][..., 0]
+    colour = read_exr(out / "openpbr" / "subsurface_color.exr")[0]
+    i_s = int(np.flatnonzero(table.axes[3].values == 0.75)[0])
+    target = get_target("openpbr")
+    names = (
+        "albedo_multiple",
+        "anisotropy",
+        "rgb_albedo_single",
+        "rgb_albedo_multiple",
+        "rgb_mean_free_path_mm",
+        "ior",
+    )
+    for y, x in np.ndindex(g_map.shape):
+        node = (ix[y, x], ie[y, x], iy[y, x], i_s)
+        q = {n: table.quantities[n][node][None].astype(np.float64) for n in names}
+        medium = EffectiveMedium.from_summary(q, 0)
+        inputs = target.to_inputs(medium, metres_per_scene_unit=0.01)
+        np.testing.assert_allclose(g_map[y, x], inputs["subsurface_scatter_anisotropy"], rtol=1e-6)
+        np.testing.assert_allclose(colour[y, x], inputs["subsurface_color"], rtol=1e-6)
+    assert np.ptp(g_map) > 0.05  # g differs from node to node
 
 
 def test_half_float_output_within_half_precision(tmp_path, kit):
