@@ -200,3 +200,15 @@ def test_killed_bake_leaves_no_partial_output_and_rerun_completes(tmp_path, kit)
     assert not list(out.glob(".matgen-*"))  # stale lock taken over, stale staging removed, own lock released
     assert sorted(res.files) == _visible_files(out)
     assert main(["inspect", str(out / "material.json")]) == 0
+
+
+def test_udim_tile_missing_from_the_first_map_is_named(tmp_path, kit, capsys):
+    """The tile set is the union of every UDIM map's tiles: a tile that the config's first UDIM map lacks
+    but the others have is named as missing, for the whole bake, its dry run and a one-tile bake."""
+    cfg = kit.make_project(tmp_path / "p", 8, 8, tiles=[1001, 1002, 1003])
+    (tmp_path / "p" / "maps" / "melanin.1003.exr").unlink()  # melanin_fraction is the first map of the config
+    out = tmp_path / "out"
+    for extra in ([], ["--dry-run"], ["--tile", "1003"]):
+        err = _fails(capsys, ["bake", str(cfg), "--out", str(out), "--quiet", *extra])
+        assert "UDIM tile 1003" in err and "melanin.1003.exr" in err and "melanin_fraction" in err, err
+        assert _all_entries(out) == []

@@ -4,10 +4,10 @@ import json
 from pathlib import Path
 
 import numpy as np
-import OpenImageIO as oiio
 import pytest
 
 from matgen.cli import main
+from matgen.preview.images import image_check
 from matgen.scenario import MATERIAL_CONFIG_TOML, generate_maps
 from matgen.tables.store import default_table_path
 
@@ -30,12 +30,24 @@ def _check_demo_folder(out, size):
         "qa/qa",
     }
     assert len(desc["bands"]["spectral_stacks"]["centre_nm"]) == 31
-    for name in ("swatch_srgb.png", "uv365.png", "nir850.png", "spectra.png", "overview.png"):
-        inp = oiio.ImageInput.open(str(out / "preview" / name))
-        assert inp is not None, name
-        if name in ("swatch_srgb.png", "uv365.png", "nir850.png"):
-            assert (inp.spec().width, inp.spec().height) == (size, size)
-        inp.close()
+    # every preview PNG the demo writes, with its size in pixels: the maps at the map size; the demo's
+    # figures at 90 dpi (overview 16 x 4.2 in, spectra 6 x 4 in); the gallery's contact sheet (3 columns of
+    # 300 px, 3 rows of 300 + 40 px for its nine panels: albedo, two passes, mean free path, shape distance,
+    # radius, three QA maps) and texel spectra (900 x 500 px)
+    expected = {
+        "swatch_srgb.png": (size, size),
+        "uv365.png": (size, size),
+        "nir850.png": (size, size),
+        "overview.png": (1440, 378),
+        "spectra.png": (540, 360),
+        "contact_sheet.png": (900, 1020),
+        "texel_spectra.png": (900, 500),
+    }
+    assert sorted(p.name for p in (out / "preview").glob("*.png")) == sorted(expected)
+    for name, (w, h) in expected.items():
+        check = image_check(out / "preview" / name)
+        assert (check["width"], check["height"]) == (w, h), name
+        assert not check["blank"], f"{name} is blank (variance {check['variance']:.2e})"
     assert main(["inspect", str(out / "bake" / "material.json")]) == 0
 
 

@@ -7,7 +7,9 @@ reading headers back; MaterialX 1.39.5's ``Document.validate()`` with its standa
 """
 
 import json
+import re
 import shutil
+from pathlib import Path
 
 import colour
 import jsonschema
@@ -100,6 +102,91 @@ def test_textures_mipmapped_on_request(tmp_path, kit):
     assert all(t["tiled_mipmapped"] for t in json.loads(res.descriptor.read_text())["textures"])
 
 
+def test_spectral_layout_survives_tiled_mipmapped_stacks(tmp_path, kit):
+    """With texture = true every mip level of a spectral stack keeps the layout's channel names and
+    spectralLayoutVersion (read back with OpenImageIO 3.2 level by level, and by colour-science 0.4.7's
+    read_spectral_image_Fichet2021); level 0 holds the same texels as the scanline bake."""
+    cfg = kit.make_project(tmp_path / "p", 40, 24, pixel_type="half")
+    bake(load_config(cfg), tmp_path / "plain")
+    cfg.write_text(cfg.read_text().replace('pixel_type = "half"', 'pixel_type = "half"\ntexture = true'))
+    bake(load_config(cfg), tmp_path / "tex")
+    names = tuple(f"T.{c},000000nm" for c in (400, 450, 500, 550, 600, 650, 700))
+    for q in ("albedo_multiple", "mean_free_path_mm"):
+        path = tmp_path / "tex" / "spectral" / f"{q}.exr"
+        inp = oiio.ImageInput.open(str(path))
+        sizes = []
+        while inp.seek_subimage(0, len(sizes)):
+            spec = inp.spec()
+            sizes.append((spec.width, spec.height))
+            assert spec.tile_width == 64 and tuple(spec.channelnames) == names
+            assert spec.get_string_attribute("spectralLayoutVersion") == "1.0"
+            assert spec.get_string_attribute("matgen:quantity") == q
+        inp.close()
+        assert sizes == [(24, 40), (12, 20), (6, 10), (3, 5), (1, 2), (1, 1)]
+        components, _ = colour.io.read_spectral_image_Fichet2021(str(path), additional_data=True)
+        assert sorted(components["T"][0].tolist()) == [400.0, 450.0, 500.0, 550.0, 600.0, 650.0, 700.0]
+        a, ca, _ = read_exr(path)
+        b, cb, _ = read_exr(tmp_path / "plain" / "spectral" / f"{q}.exr")
+        assert ca == cb
+        np.testing.assert_array_equal(a, b)
+
+
+def test_mipmapped_textures_refused_above_the_memory_budget(tmp_path, kit, capsys):
+    """Making mip-maps reads a file whole, so texture = true is refused (naming the file, the MiB it needs
+    and the budget) when that exceeds --memory-mb; nothing is written."""
+    from matgen.bake.run import plan_bake
+    from matgen.errors import LimitError
+    from matgen.export.job import texture_memory_bytes
+
+    cfg = kit.make_project(tmp_path / "p", 64, 64, pixel_type="half")
+    cfg.write_text(cfg.read_text().replace('pixel_type = "half"', 'pixel_type = "half"\ntexture = true'))
+    config = load_config(cfg)
+    with pytest.raises(
+        LimitError, match=r"spectral/albedo_multiple\.exr \(64 x 64 texels, 7 channels\).*MiB"
+    ):
+        bake(config, tmp_path / "out", memory_budget_bytes=8 << 20)
+    assert not (tmp_path / "out").exists()
+    assert main(["bake", str(cfg), "--out", str(tmp_path / "out"), "--memory-mb", "8", "--dry-run"]) == 2
+    assert "--memory-mb" in capsys.readouterr().err
+    need = texture_memory_bytes(plan_bake(config, Table.load(tmp_path / "p" / "table.npz")))
+    bake(config, tmp_path / "out", memory_budget_bytes=need)  # exactly enough: accepted
+    assert (tmp_path / "out" / "material.json").is_file()
+
+
+@pytest.mark.skipif(not Path("/proc/self/status").is_file(), reason="needs Linux /proc (VmHWM)")
+def test_texture_memory_estimate_bounds_the_measured_peak(tmp_path):
+    """The memory the bake reserves for make_texture (texture_memory_bytes' formula) is at least the peak
+    resident memory make_texture really takes, measured in a child process (rise of /proc VmHWM) on a
+    1024 x 1024, 16-channel half file; and the peak holds the whole image (so the refusal is needed)."""
+    import subprocess
+    import sys
+
+    from matgen.export.exr import StreamingExr
+    from matgen.export.job import TEXTURE_MEMORY_FACTOR, TEXTURE_MEMORY_OVERHEAD_BYTES
+
+    w, c = 1024, 16
+    src = tmp_path / "src.exr"
+    writer = StreamingExr(src, w, w, [f"T.{400 + 10 * i},000000nm" for i in range(c)], pixel_type="half")
+    rng = np.random.default_rng(0)
+    for y0 in range(0, w, 128):
+        writer.write_rows(y0, rng.uniform(0, 1, (128, w, c)).astype(np.float16))
+    writer.close()
+    code = (
+        "import sys\nfrom matgen.export.exr import make_texture\n"
+        "def hwm():\n"
+        "    line = [x for x in open('/proc/self/status') if x.startswith('VmHWM')][0]\n"
+        "    return int(line.split()[1]) * 1024\n"
+        "a = hwm()\nmake_texture(sys.argv[1], sys.argv[2])\nprint(hwm() - a)"
+    )
+    run = subprocess.run(
+        [sys.executable, "-c", code, str(src), str(tmp_path / "dst.exr")], capture_output=True, text=True
+    )
+    assert run.returncode == 0, run.stderr
+    peak = int(run.stdout.strip())
+    image = w * w * c * 4
+    assert image <= peak <= TEXTURE_MEMORY_FACTOR * image + TEXTURE_MEMORY_OVERHEAD_BYTES
+
+
 def test_descriptor_validates_and_paths_are_relative_with_checksums(baked):
     _, out, res = baked
     doc = json.loads((out / "material.json").read_text())
@@ -158,6 +245,52 @@ def test_materialx_document_passes_materialx_validation(baked):
     assert 'value="openpbr/subsurface_color.exr"' in text and 'colorspace="acescg"' in text
 
 
+def test_materialx_only_subsurface_color_is_colour_managed(baked):
+    """Only subsurface_color's image carries a colour space; the data maps (radius scale, a ratio of
+    lengths; radius; g) are read raw. Checked on the file, and through MaterialX 1.39.5's own OSL shader
+    generator with its default colour management and a renderer working space of lin_rec709: only the
+    colour map gets an acescg -> lin_rec709 transform."""
+    import MaterialX as mx
+    import MaterialX.PyMaterialXGenOsl as mx_osl
+    import MaterialX.PyMaterialXGenShader as mx_gen
+
+    _, out, _ = baked
+    lib = mx.createDocument()
+    mx.loadLibraries(mx.getDefaultDataLibraryFolders(), mx.getDefaultDataSearchPath(), lib)
+    doc = mx.createDocument()
+    mx.readFromXmlFile(doc, str(out / "material.mtlx"))
+    doc.setDataLibrary(lib)
+    managed = {}
+    for img in doc.getNodes("image"):
+        space = img.getInput("file").getActiveColorSpace()
+        if space not in ("", "none"):
+            managed[img.getName()] = space
+        if img.getType() in ("color3", "color4"):
+            assert space not in ("", "none"), img.getName()
+    assert managed == {"test_face_subsurface_color_image": "acescg"}
+    gen = mx_osl.OslShaderGenerator.create()
+    ctx = mx_gen.GenContext(gen)
+    ctx.registerSourceCodeSearchPath(mx.getDefaultDataSearchPath())
+    cms = mx_gen.DefaultColorManagementSystem.create(gen.getTarget())
+    cms.loadLibrary(lib)
+    gen.setColorManagementSystem(cms)
+    ctx.getOptions().targetColorSpaceOverride = "lin_rec709"
+    shader = doc.getNodes("open_pbr_surface")[0]
+    transformed = {}
+    for inp in shader.getInputs():
+        node = inp.getConnectedNode()
+        if node is not None:
+            code = gen.generate(node.getName(), node, ctx).getSourceCode(mx_gen.PIXEL_STAGE)
+            transformed[inp.getName()] = "acescg_to_lin_rec709" in code
+    assert transformed == {
+        "subsurface_color": True,
+        "subsurface_radius": False,
+        "subsurface_radius_scale": False,
+        "subsurface_scatter_anisotropy": False,
+    }
+    assert shader.getInput("subsurface_radius_scale").getConnectedNode().getCategory() == "convert"
+
+
 def test_materialx_validation_catches_a_misspelt_input():
     with pytest.raises(DataError, match="subsurface_colour"):
         openpbr_document("m", {"subsurface_colour": {"value": 1.0}}, "ACEScg")
@@ -191,6 +324,97 @@ def test_dry_run_lists_files_and_writes_nothing(tmp_path, kit, capsys):
     text = capsys.readouterr().out
     assert "spectral/albedo_multiple.1002.exr" in text and "material.json" in text and "material.mtlx" in text
     assert not out.exists()
+    deep = tmp_path / "a" / "b" / "c"  # a folder the bake would create: checked, not created
+    assert main(["bake", str(cfg), "--out", str(deep), "--dry-run"]) == 0
+    assert not (tmp_path / "a").exists()
+
+
+def test_dry_run_checks_the_output_folder_without_creating_it(tmp_path, kit, capsys):
+    cfg = kit.make_project(tmp_path / "p", 8, 8)
+    blocker = tmp_path / "file.txt"
+    blocker.write_text("x")
+    for out, words in (
+        (blocker, "not a folder"),
+        (blocker / "sub" / "deeper", "cannot create output folder"),
+    ):
+        assert main(["bake", str(cfg), "--out", str(out), "--dry-run"]) == 2
+        err = capsys.readouterr().err
+        assert words in err and "file.txt" in err and err.count("\n") == 1
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["file.txt", "p"]
+
+
+def test_dry_run_reports_a_held_lock(tmp_path, kit, capsys):
+    import subprocess
+    import sys
+
+    cfg = kit.make_project(tmp_path / "p", 8, 8)
+    out = tmp_path / "out"
+    out.mkdir()
+    holder = subprocess.Popen(
+        [
+            sys.executable,
+            "-c",
+            "import time\nfrom matgen.fsutil import FolderLock\n"
+            f"l = FolderLock({str(out)!r}, name='.matgen-bake.lock'); l.acquire()\n"
+            "print('held', flush=True); time.sleep(60)",
+        ],
+        stdout=subprocess.PIPE,
+        text=True,
+    )
+    try:
+        assert holder.stdout.readline().strip() == "held"
+        assert main(["bake", str(cfg), "--out", str(out), "--dry-run"]) == 2
+        err = capsys.readouterr().err
+        assert ".matgen-bake.lock" in err and f"process {holder.pid}" in err
+    finally:
+        holder.kill()
+        holder.wait()
+        holder.stdout.close()
+    assert main(["bake", str(cfg), "--out", str(out), "--dry-run"]) == 0  # the holder is gone: stale
+
+
+def test_dry_run_builds_the_materialx_document_and_descriptor(tmp_path, kit, capsys):
+    """A table whose working space has no MaterialX colour-space name, or a preview scene without the
+    table's refractive index, fails the dry run as it would fail the bake, before any texel is computed."""
+    cfg = kit.make_project(tmp_path / "p", 8, 8)
+    odd = kit.make_test_table()
+    odd.working_space = "Display P3"
+    odd.save(tmp_path / "odd.npz")
+    argv = [
+        "bake",
+        str(cfg),
+        "--out",
+        str(tmp_path / "out"),
+        "--dry-run",
+        "--table",
+        str(tmp_path / "odd.npz"),
+    ]
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert "Display P3" in err and "MaterialX" in err
+    no_ior = kit.make_test_table()
+    del no_ior.quantities["ior"]
+    no_ior.save(tmp_path / "no_ior.npz")
+    text = cfg.read_text().replace(
+        'spectral = ["albedo_multiple", "mean_free_path_mm"]',
+        'spectral = ["albedo_single", "mean_free_path_mm"]\nmitsuba_scene = true',
+    )
+    cfg.write_text(text)
+    argv = [
+        "bake",
+        str(cfg),
+        "--out",
+        str(tmp_path / "out"),
+        "--dry-run",
+        "--table",
+        str(tmp_path / "no_ior.npz"),
+    ]
+    assert main(argv) == 2
+    assert "refractive index" in capsys.readouterr().err
+    assert (
+        main(["bake", str(cfg), "--out", str(tmp_path / "out"), "--dry-run"]) == 0
+    )  # the test table has ior
+    assert not (tmp_path / "out").exists()
 
 
 def test_srgb_tagged_png_warns_and_is_read_as_data(tmp_path, kit):
@@ -271,7 +495,9 @@ def test_user_csv_pass_and_progress_bar(tmp_path, kit, capsys):
     cfg.write_text(cfg.read_text().replace("passes = []", 'passes = ["cam.csv", "nir940"]'))
     assert main(["bake", str(cfg), "--out", str(tmp_path / "out"), "--jobs", "1"]) == 0
     captured = capsys.readouterr()
-    assert "texel" in captured.err and "100%" in captured.err  # tqdm progress with texel counts
+    # the progress bar shows texels done, a texels/s rate and an ETA
+    assert "100%" in captured.err and "30.0/30.0 texels" in captured.err
+    assert re.search(r"\[\d+(\.\d+)?[kMG]? texels/s, elapsed \d\d:\d\d, ETA \d\d:\d\d\]", captured.err)
     table = Table.load(tmp_path / "p" / "table.npz")
     w = pass_weights(str(tmp_path / "p" / "cam.csv"), table.bands)
     doc = json.loads((tmp_path / "out" / "material.json").read_text())
