@@ -27,6 +27,7 @@ References: ``Alerstam2008white``, ``Graaff1993condensed``.
 from __future__ import annotations
 
 import json
+import math
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -39,6 +40,7 @@ from matgen.fsutil import atomic_path
 from matgen.npzio import CORRUPT_ARCHIVE_ERRORS, read_npz_checked
 
 _ARRAYS = ("path_mm", "weighted_path_mm", "exit_radius_mm", "exit_cos", "max_depth_mm", "weight", "side")
+_DTYPES = {a: np.dtype(np.uint8 if a == "side" else np.float32) for a in _ARRAYS}
 _FORMAT = "matgen.photon_records/1"
 
 
@@ -99,6 +101,40 @@ def _declared_records_bytes(path: Path) -> int:
                 count *= max(0, int(n))  # Python ints: no overflow on hostile shapes
             total += count * int(dtype.itemsize)
     return total
+
+
+def _finite(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _check_meta(meta: dict, where: str, n_layers: int) -> None:
+    """Check the metadata fields that reweighting and table tasks read, with their allowed ranges."""
+
+    def bad(key: str, allowed: str):
+        shown = json.dumps(meta.get(key), default=str)
+        shown = shown if len(shown) <= 60 else shown[:57] + "..."
+        raise DataError(f"photon records {where}: metadata '{key}' is {shown}; allowed: {allowed}")
+
+    mu = meta.get("mu_a_ref")
+    if not (isinstance(mu, list) and len(mu) == n_layers and all(_finite(v) and v >= 0 for v in mu)):
+        bad("mu_a_ref", f"a list of {n_layers} finite absorption coefficients >= 0 (1/mm), one per layer")
+    for key, lo, hi, what in (
+        ("specular_reflectance", 0.0, 1.0, "a number in [0, 1]"),
+        ("launch_weight", 0.0, 1.0, "a number in [0, 1]"),
+        ("incidence_cos", 0.0, 1.0, "a number in (0, 1]"),
+    ):
+        v = meta.get(key)
+        if not (_finite(v) and lo <= v <= hi) or (key == "incidence_cos" and v == 0):
+            bad(key, what)
+    v = meta.get("depth_scale_mm")
+    if not (_finite(v) and v > 0):
+        bad("depth_scale_mm", "a finite depth > 0 (mm)")
+    for key in ("seed", "first_photon"):
+        v = meta.get(key)
+        if not (isinstance(v, int) and not isinstance(v, bool) and 0 <= v < 2**64):
+            bad(key, "a whole number in [0, 2^64)")
+    if not isinstance(meta.get("stack"), dict):
+        bad("stack", "the reference stack as a JSON object")
 
 
 @dataclass
@@ -183,18 +219,35 @@ class PhotonRecords:
             z = read_npz_checked(p, "photon records file")  # declared shapes checked against limits first
             meta = json.loads(str(z["meta"]))
             arrays = {a: z[a] for a in _ARRAYS}
-        except (OSError, KeyError, ValueError, TypeError, zipfile.BadZipFile, EOFError) as exc:
+        except (
+            OSError,
+            KeyError,
+            ValueError,
+            TypeError,
+            RecursionError,  # metadata JSON nested deeper than the parser's stack
+            zipfile.BadZipFile,
+            EOFError,
+        ) as exc:
             raise DataError(f"photon records file '{p}' cannot be read: {exc}") from exc
+        if not isinstance(meta, dict):
+            raise DataError(
+                f"photon records file '{p}': metadata is a JSON {type(meta).__name__}, not an object"
+            )
         if meta.get("format") != _FORMAT:
             raise DataError(
-                f"photon records file '{p}' has format {meta.get('format')!r}, expected {_FORMAT}"
+                f"photon records file '{p}' has format {str(meta.get('format'))[:80]!r}, expected {_FORMAT}"
             )
         meta.pop("format")
         rec = cls(meta=meta, **arrays)
-        rec._check(str(p))
+        rec._check(f"'{p}'")
         return rec
 
     def _check(self, where: str) -> None:
+        """Check array dtypes and shapes and the metadata the reweighting reads (a file's, before use)."""
+        for a in _ARRAYS:
+            dt = getattr(self, a).dtype
+            if dt != _DTYPES[a]:
+                raise DataError(f"photon records {where}: field '{a}' has dtype {dt}, expected {_DTYPES[a]}")
         n = self.weight.size
         if self.path_mm.ndim != 2 or self.path_mm.shape[0] != n:
             raise DataError(f"photon records {where}: path_mm has shape {self.path_mm.shape} for {n} photons")
@@ -205,8 +258,7 @@ class PhotonRecords:
         for a in _ARRAYS[2:]:
             if getattr(self, a).shape != (n,):
                 raise DataError(f"photon records {where}: field '{a}' has shape {getattr(self, a).shape}")
-        if len(self.meta.get("mu_a_ref", [])) != self.path_mm.shape[1]:
-            raise DataError(f"photon records {where}: mu_a_ref does not match {self.path_mm.shape[1]} layers")
+        _check_meta(self.meta, where, self.path_mm.shape[1])
 
     @staticmethod
     def concatenate(parts) -> PhotonRecords:
