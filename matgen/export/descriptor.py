@@ -4,8 +4,10 @@ The descriptor (``material.json``, or ``material.<UDIM>.json`` for a one-tile fa
 against its published JSON Schema, ``matgen/export/schema/material_descriptor.schema.json`` (format version
 1), before it is written. Texture paths are POSIX paths relative to the descriptor's folder, never absolute
 and never through ``..``; each carries the SHA-256 of its bytes. :func:`inspect_descriptor` checks that every
-texture exists and matches its checksum. Units: wavelengths in nm, lengths in mm; renderer-target lengths in
-scene units (``units.metres_per_scene_unit`` metres each).
+texture exists and matches its checksum. A one-tile descriptor of a bake with a preview scene also records
+``statistics.output_sums`` (per output, the sum of its texels per channel over the tile), from which
+:func:`matgen.export.assemble.assemble_tiles` forms the set's mean texel. Units: wavelengths in nm, lengths
+in mm; renderer-target lengths in scene units (``units.metres_per_scene_unit`` metres each).
 """
 
 from __future__ import annotations
