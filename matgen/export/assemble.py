@@ -95,7 +95,7 @@ def assemble_tiles(
         )
     if not out_dir.is_dir():
         raise PathError(
-            f"output folder {out_dir} does not exist; bake the tiles into it first "
+            f"output folder {out_dir} does not exist or is not a folder; bake the tiles into it first "
             f"(matgen bake CONFIG --out {out_dir} --tile N for each tile)"
         )
     check_writable(out_dir, create=False)
