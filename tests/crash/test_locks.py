@@ -4,7 +4,9 @@
   lock file and the holder's PID (and the CLI turns it into one line and exit status 2);
 * a lock left by a killed process (its PID gone on this host) is taken over with a StaleLockWarning;
 * a lock of another host is never taken over (its process cannot be checked from here);
-* two processes running the same table task at once: one computes, the other waits and finds it done.
+* two processes running the same table task at once (the second seen waiting on the first's live lock):
+  one computes, the other waits and finds it done;
+* a lock file whose owner record is not a JSON object with a host and a plausible PID is never taken over.
 """
 
 import json
@@ -115,11 +117,44 @@ def test_lock_of_another_host_is_not_taken_over(tmp_path):
             _bake(cfg, out)
 
 
-def test_same_table_task_run_twice_at_once_is_computed_once(tmp_path):
-    """Two `matgen table run-task JOB 0` processes started together: both exit 0, one output, one record."""
-    from matgen.tables.store import lut_files
+# The second `matgen table run-task`: imports first, says READY, waits for the first process's task lock,
+# reports the lock's owner (alive?) and the task's state while that lock is held, then runs the same task.
+OBSERVER = """
+import json, sys, time
+from pathlib import Path
+from matgen.cli import main
+from matgen.fsutil import pid_alive
+from matgen.tables.plan import JobFolder
+from matgen.tables.tasks import task_state
 
+job, lock = sys.argv[1], Path(sys.argv[2])
+print("READY", flush=True)
+deadline = time.monotonic() + 120
+owner = None
+while owner is None and time.monotonic() < deadline:
+    try:
+        owner = json.loads(lock.read_text())  # empty for an instant after O_EXCL creation
+    except (OSError, ValueError):
+        time.sleep(0.002)
+if owner is None:
+    print("NO LOCK SEEN", flush=True)
+    sys.exit(3)
+state = task_state(JobFolder.open(job), 0).state
+print(f"SAW {owner['pid']} {pid_alive(owner['pid']) and lock.exists()} {state}", flush=True)
+sys.exit(main(["table", "run-task", job, "0", "--threads", "1"]))
+"""
+
+
+def test_same_table_task_run_twice_at_once_is_computed_once(tmp_path):
+    """Two `matgen table run-task JOB 0` processes at once: both exit 0, one computes, the other waits and
+    finds the task done; one output, one record, no lock left.
+
+    Overlap is proved, not assumed: the second process is started first and watches for the first's task
+    lock; it reports the lock's owner (the first process, alive, the lock still there) and the task state
+    (not done) while that lock is held, and only then runs the task.
+    """
     from matgen.tables.build import plan_job
+    from matgen.tables.store import lut_files
     from matgen.tables.tasks import task_state
 
     text = lut_files().joinpath("specs", "tiny.toml").read_text()
@@ -127,20 +162,61 @@ def test_same_table_task_run_twice_at_once_is_computed_once(tmp_path):
     spec = tmp_path / "spec.toml"
     spec.write_text(text)
     job = plan_job(spec, tmp_path / "job")
+    lock = job.locks_dir / "task-00000.lock"
     env = dict(os.environ, PYTHONWARNINGS="ignore", NUMBA_NUM_THREADS="1")
-    cmd = [sys.executable, "-m", "matgen", "table", "run-task", str(job.path), "0", "--threads", "1"]
-    procs = [
-        subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
-        for _ in range(2)
-    ]
-    outs = [p.communicate(timeout=300) for p in procs]
-    assert [p.returncode for p in procs] == [0, 0], outs
-    said = sorted(o[0].strip() for o in outs)
-    # whoever gets the task lock second re-checks under the lock and finds the task done
-    assert said == ["task 0: computed", "task 0: done"], said
+    pipes = dict(stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+    second = subprocess.Popen([sys.executable, "-c", OBSERVER, str(job.path), str(lock)], **pipes)
+    first = None
+    try:
+        assert second.stdout.readline().strip() == "READY", second.stderr.read()
+        assert not lock.exists()
+        cmd = [sys.executable, "-m", "matgen", "table", "run-task", str(job.path), "0", "--threads", "1"]
+        first = subprocess.Popen(cmd, **pipes)
+        out_first = first.communicate(timeout=300)
+        out_second = second.communicate(timeout=300)
+    finally:
+        for p in (second, first):
+            if p is not None and p.poll() is None:
+                p.kill()
+                p.wait()
+    assert first.returncode == 0, out_first
+    assert second.returncode == 0, out_second
+    said_first = out_first[0].strip().splitlines()
+    said_second = out_second[0].strip().splitlines()
+    # the second process saw the first's lock, held by the live first process, before the task was done ...
+    assert said_second[0] == f"SAW {first.pid} True missing", (said_second, out_second[1][-2000:])
+    # ... and, running the task itself, re-checked under the lock and found it done
+    assert said_first == ["task 0: computed"], said_first
+    assert said_second[1:] == ["task 0: done"], said_second
     assert task_state(job, 0).state == "done"
     record = json.loads(job.record_path(0).read_text())
-    assert record["pid"] in [p.pid for p in procs]
+    assert record["pid"] == first.pid
     files = sorted(p.name for p in job.tasks_dir.iterdir())
     assert files == ["task-00000.json", "task-00000.npz"], files
     assert not list(job.locks_dir.iterdir()), "a task lock was left behind"
+
+
+@pytest.mark.parametrize(
+    "owner",
+    [
+        "[]",
+        '{"host": "HOST", "pid": 1180591620717411303424}',
+        '{"host": "HOST", "pid": -1}',
+        '{"host": "HOST", "pid": 0}',
+        '{"host": "HOST", "pid": true}',
+        '{"host": ["HOST"], "pid": 12345}',
+        "[" * 100000,
+    ],
+)
+def test_lock_file_without_a_plausible_owner_is_never_taken_over(tmp_path, owner):
+    """A lock file holding '[]' raised AttributeError, a PID of 2**70 OverflowError from os.kill, and -1 or 0
+    made os.kill(pid, 0) probe a whole process group; such a lock is another process's, never stale."""
+    from matgen.fsutil import FolderLock
+
+    text = owner.replace("HOST", socket.gethostname())
+    (tmp_path / ".matgen.lock").write_text(text)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no StaleLockWarning: nothing is taken over
+        with pytest.raises(LockError, match="locked by another process"):
+            FolderLock(tmp_path).acquire()
+    assert (tmp_path / ".matgen.lock").read_text() == text

@@ -3,7 +3,7 @@
 Each entry: the fuzz target (or check) that found it, the exact input, what escaped, where, the status
 ("fixed": a guard landed and the regression test passes; "open": the regression test is a strict xfail and the
 owner of the module has the exact input), and the regression test in test_found_inputs.py / test_images.py /
-test_limits.py.
+test_limits.py / test_paths.py.
 """
 
 FINDINGS = [
@@ -150,5 +150,117 @@ FINDINGS = [
         "where": "matgen/cli/fit.py _read",
         "status": "fixed",
         "test": "test_found_inputs.py::test_fit_result_file_not_utf8_is_one_error",
+    },
+    {
+        "target": "task_record",
+        "input": 'task record of a finished task with "wall_s": null',
+        "escaped": "TypeError (float(None)) in the build statistics after the merge",
+        "where": "matgen/tables/build.py _task_wall_sum; records not checked in matgen/tables/tasks.py",
+        "status": "fixed",
+        "test": "test_found_inputs.py::test_task_record_with_bad_field_is_corrupt_and_recomputed",
+    },
+    {
+        "target": "task_output_array",
+        "input": "task output whose 'grid_index' holds 99 in row 0 (record checksum matching)",
+        "escaped": "ValueError (invalid entry in coordinates array) from the merge",
+        "where": "matgen/tables/tasks.py load_task_output (arrays not checked against the plan)",
+        "status": "fixed",
+        "test": "test_found_inputs.py::test_task_output_not_matching_its_plan_is_table_error",
+    },
+    {
+        "target": "photon_records_meta",
+        "input": "records metadata JSON without 'launch_weight' (or '[]', or 'mu_a_ref': 5)",
+        "escaped": "KeyError / AttributeError / TypeError from load or reweighting",
+        "where": "matgen/transport/records.py PhotonRecords.load",
+        "status": "fixed",
+        "test": "test_found_inputs.py::test_records_metadata_not_as_written_is_data_error",
+    },
+    {
+        "target": "validation_json",
+        "input": "matgen report --validation v.json holding '[1]', '{\"skipped\": []}' or a bound 1e308",
+        "escaped": "AttributeError / TypeError / ValueError / LinAlgError (traceback from matgen report)",
+        "where": "matgen/preview/report.py build_report",
+        "status": "fixed",
+        "test": "test_found_inputs.py::test_report_with_malformed_validation_file_is_one_error",
+    },
+    {
+        "target": "report_figure",
+        "input": "matgen report --figure missing.png",
+        "escaped": "FileNotFoundError (traceback from matgen report)",
+        "where": "matgen/preview/report.py png_data_uri",
+        "status": "fixed",
+        "test": "test_found_inputs.py::test_report_with_missing_or_non_png_figure_is_one_error",
+    },
+    {
+        "target": "texture_paths",
+        "input": "a baked texture replaced by a symbolic link to a copy outside the bake folder",
+        "escaped": "the report read the texture outside the folder (no containment check)",
+        "where": "matgen/preview/report.py material_panels, texel_spectra",
+        "status": "fixed",
+        "test": "test_paths.py::test_report_refuses_texture_symlinked_out_of_the_bake_folder",
+    },
+    {
+        "target": "whole_image_readers",
+        "input": "16 x 16 EXR under image_pixels=100; EXR with 'chlist' overwritten by b'ch\\xc9ist'",
+        "escaped": "no ceiling checked before allocating; UnicodeDecodeError from oiio.geterror()",
+        "where": "matgen/export/exr.py read_exr, matgen/preview/images.py read_texture",
+        "status": "fixed",
+        "test": "test_images.py::test_whole_image_readers_check_the_ceilings_before_reading",
+    },
+    {
+        "target": "records_memory",
+        "input": "simulate(5-layer stack, 10**9 photons, records=True)",
+        "escaped": "MemoryError (57 GB of records asked for, under the photon ceiling)",
+        "where": "matgen/transport/simulate.py simulate",
+        "status": "fixed",
+        "test": "test_limits.py::test_records_of_a_large_run_are_refused_before_allocation",
+    },
+    {
+        "target": "descriptor",
+        "input": "'[' * 100000 (JSON)",
+        "escaped": "RecursionError from the parser",
+        "where": "matgen/export/descriptor.py load_descriptor",
+        "status": "open",
+        "test": "test_found_inputs.py::test_descriptor_nested_too_deep_is_one_error",
+    },
+    {
+        "target": "fit_result",
+        "input": "'[' * 100000 (JSON)",
+        "escaped": "RecursionError from the parser",
+        "where": "matgen/cli/fit.py _read",
+        "status": "open",
+        "test": "test_found_inputs.py::test_fit_result_nested_too_deep_is_one_error",
+    },
+    {
+        "target": "stack_json",
+        "input": "'[' * 100000 (JSON)",
+        "escaped": "RecursionError from the parser",
+        "where": "matgen/cli/simulate.py load_stacks",
+        "status": "open",
+        "test": "test_found_inputs.py::test_stack_json_nested_too_deep_is_one_error",
+    },
+    {
+        "target": "job_file",
+        "input": "'[' * 100000 (JSON)",
+        "escaped": "RecursionError from the parser",
+        "where": "matgen/tables/plan.py JobFolder.open",
+        "status": "open",
+        "test": "test_found_inputs.py::test_job_file_nested_too_deep_is_table_error",
+    },
+    {
+        "target": "material_config",
+        "input": "'a = ' + '[' * 100000 (TOML)",
+        "escaped": "RecursionError from the parser",
+        "where": "matgen/bake/config.py load_config (tomllib)",
+        "status": "open",
+        "test": "test_found_inputs.py::test_material_config_nested_too_deep_is_config_error",
+    },
+    {
+        "target": "table_spec",
+        "input": "'a = ' + '[' * 100000 (TOML)",
+        "escaped": "RecursionError from the parser",
+        "where": "matgen/tables/spec.py load_spec (tomllib)",
+        "status": "open",
+        "test": "test_found_inputs.py::test_table_spec_nested_too_deep_is_config_error",
     },
 ]

@@ -248,3 +248,67 @@ def test_records_file_declaring_more_than_the_ceiling_is_refused_before_reading(
     with limits.override(records_bytes=50000):
         with pytest.raises(LimitError, match="rec.npz"):
             PhotonRecords.load(tmp_path / "rec.npz")
+
+
+# ---------------------------------------------------------------------------------------------------------
+# small text files of the table and lock machinery go through the size-limited reader too
+
+
+def test_task_record_above_the_text_ceiling_is_corrupt(tmp_path):
+    """A finished task's record padded past MATGEN_MAX_TEXT_BYTES is not read whole: the task is corrupt."""
+    import shutil
+
+    from targets import _built_job
+
+    from matgen.tables.plan import JobFolder
+    from matgen.tables.tasks import task_state
+
+    shutil.copytree(_built_job(), tmp_path / "job")
+    job = JobFolder.open(tmp_path / "job")
+    assert task_state(job, 0).state == "done"
+    rec = job.record_path(0)
+    rec.write_text(rec.read_text() + " " * 5000)
+    assert task_state(job, 0).state == "done"  # whitespace after the JSON is harmless within the ceiling
+    with limits.override(text_bytes=4096):
+        st = task_state(job, 0)
+    assert st.state == "corrupt" and "MATGEN_MAX_TEXT_BYTES" in st.reason, st
+
+
+def test_table_manifest_above_the_text_ceiling_is_limit_error(tmp_path):
+    from targets import _small_table
+
+    from matgen.tables.store import Table
+
+    p = _small_table().save(tmp_path / "t.npz")
+    side = tmp_path / "t.json"
+    side.write_text(side.read_text() + " " * 20000)
+    Table.load(p)
+    with limits.override(text_bytes=10000):
+        with pytest.raises(LimitError, match="t.json"):
+            Table.load(p)
+
+
+def test_lock_file_above_the_text_ceiling_is_not_taken_over(tmp_path):
+    """A stale lock record (dead PID on this host) padded past the ceiling is not read: no takeover."""
+    import json
+    import socket
+    import subprocess
+    import sys
+    import warnings
+
+    from matgen.errors import LockError
+    from matgen.fsutil import FolderLock, StaleLockWarning
+
+    gone = subprocess.Popen([sys.executable, "-c", "pass"])
+    gone.wait()
+    record = json.dumps({"host": socket.gethostname(), "pid": gone.pid, "since": 0.0}) + " " * 5000
+    (tmp_path / ".matgen.lock").write_text(record)
+    with limits.override(text_bytes=4096):
+        with pytest.raises(LockError, match="another process"):
+            FolderLock(tmp_path).acquire()
+    assert (tmp_path / ".matgen.lock").read_text() == record
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        with FolderLock(tmp_path):
+            pass
+    assert any(issubclass(w.category, StaleLockWarning) for w in caught)

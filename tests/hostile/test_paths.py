@@ -1,8 +1,9 @@
-"""Path confinement: no map, table or texture path of a config or descriptor may leave its folder unless allowed.
+"""Path confinement: no map, table or texture path of a config or descriptor may leave its folder.
 
 Escapes tried: absolute paths, '..' components, symbolic links inside the folder that point out of it, and
-a UDIM pattern whose tiles lie outside. Each must be a PathError naming the field, before anything is read or
-written; with allow_outside=True the same config bakes.
+a UDIM pattern whose tiles lie outside. Unless allowed, each must be a PathError naming the field, before
+anything is read or written; with allow_outside=True the same config bakes. The material report and its
+preview readers get the same check on the texture paths of a descriptor.
 """
 
 import json
@@ -94,7 +95,7 @@ def test_path_inside_through_an_inner_symlink_is_accepted(tmp_path):
 
 @pytest.mark.parametrize("ref", ["../secret.exr", "/etc/hostname", "link/secret.exr"])
 def test_descriptor_texture_outside_is_never_read(tmp_path, ref):
-    """inspect_descriptor refuses a texture path leading outside, or reports it missing; never opens or hashes it."""
+    """inspect_descriptor refuses a texture path leading outside, or reports it missing; never reads it."""
     from matgen.export.descriptor import inspect_descriptor
 
     cfg = make_project(tmp_path / "proj")
@@ -138,3 +139,58 @@ def test_resolve_inside_property(tmp_path):
         assert full.is_relative_to(base.resolve()), (rel, full)
 
     check()
+
+
+@pytest.mark.parametrize(
+    "texture,reader",
+    [
+        ("rgb/albedo_multiple.exr", "material_panels"),
+        ("spectral/albedo_multiple.exr", "texel_spectra"),
+        ("qa/qa.exr", "material_panels"),
+    ],
+)
+def test_report_refuses_texture_symlinked_out_of_the_bake_folder(tmp_path, texture, reader):
+    """A baked texture replaced by a symbolic link to a copy outside the bake folder (same bytes, so its
+    checksum still matches): the report and the preview reader of that texture refuse to follow it
+    (PathError naming the texture) and nothing is written; allowed explicitly, the report reads it."""
+    from matgen.preview import report
+
+    cfg = make_project(tmp_path / "proj")
+    out = tmp_path / "proj" / "out"
+    _bake(_load(cfg), out)
+    outside = tmp_path / "elsewhere"
+    outside.mkdir()
+    shutil.move(str(out / texture), outside / "copy.exr")
+    os.symlink(outside / "copy.exr", out / texture)
+    desc = out / "material.json"
+    doc = json.loads(desc.read_text())
+    key = next(t["key"] for t in doc["textures"] if t["path"] == texture)
+    with pytest.raises(PathError, match=key):
+        report.build_report(desc, tmp_path / "report.html")
+    assert not (tmp_path / "report.html").exists()
+    with pytest.raises(PathError, match=key):
+        getattr(report, reader)(desc, doc)
+    assert getattr(report, reader)(desc, doc, allow_outside=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", MatgenWarning)
+        report.build_report(desc, tmp_path / "report.html", allow_outside=True)
+    assert "<img" in (tmp_path / "report.html").read_text()
+
+
+def test_report_cli_names_the_symlinked_texture_in_one_line(tmp_path, capsys):
+    from matgen.cli import main
+
+    cfg = make_project(tmp_path / "proj")
+    out = tmp_path / "proj" / "out"
+    _bake(_load(cfg), out)
+    (tmp_path / "elsewhere").mkdir()
+    shutil.move(str(out / "rgb" / "albedo_multiple.exr"), tmp_path / "elsewhere" / "a.exr")
+    os.symlink(tmp_path / "elsewhere" / "a.exr", out / "rgb" / "albedo_multiple.exr")
+    capsys.readouterr()
+    assert main(["report", str(out / "material.json"), "--out", str(tmp_path / "r.html")]) == 2
+    err = [ln for ln in capsys.readouterr().err.splitlines() if ln.strip()]
+    assert len(err) == 1 and "rgb/albedo_multiple" in err[0] and "outside" in err[0], err
+    assert (
+        main(["report", str(out / "material.json"), "--out", str(tmp_path / "r.html"), "--allow-outside"])
+        == 0
+    )
