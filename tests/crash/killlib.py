@@ -1,16 +1,18 @@
 """Kill harness: run a table build or a bake in a subprocess and SIGKILL it at a random point.
 
 The child (``driver.py`` beside this file) imports matgen, prints ``READY``, runs the job and prints ``DONE``.
-The parent waits for ``READY``, sleeps a delay drawn uniformly over the job's measured duration, then kills the
-child's whole process group with SIGKILL (as a node failure or an out-of-memory kill would: no handler runs,
-pool workers die too). After each kill the output is checked:
+The parent waits for ``READY``, sleeps a delay drawn uniformly over the job's measured duration, then kills
+the child's whole process group with SIGKILL (as a node failure or an out-of-memory kill would: no handler
+runs, pool workers die too). After each kill the output is checked:
 
 * every visible file (name not starting with ``.``) is complete: byte-identical to the same file of an
   uninterrupted reference run (so neither partial nor corrupt);
 * leftovers are only hidden temporary files of interrupted atomic writes, hidden staging folders and lock
   files of the dead process; they are counted and must not be taken for outputs by a rerun;
 * a rerun after the last kill completes, takes over the stale locks (none is left after it) and gives files
-  byte-identical to the uninterrupted run.
+  byte-identical to the uninterrupted run;
+* at least one kill landed inside a run (not after it had finished): a campaign that killed nothing but
+  finished processes tested nothing (``KillReport.ok`` is then False).
 """
 
 from __future__ import annotations
@@ -49,7 +51,7 @@ class Run:
 
 
 def run_child(args: list, kill_after_s: float | None = None, timeout_s: float = 300.0) -> Run:
-    """Run ``driver.py ARGS``; SIGKILL its process group ``kill_after_s`` seconds after READY (None: never)."""
+    """Run ``driver.py ARGS``; SIGKILL its process group ``kill_after_s`` s after READY (None: never)."""
     proc = subprocess.Popen(
         [sys.executable, str(DRIVER), *map(str, args)],
         stdout=subprocess.PIPE,
@@ -141,8 +143,21 @@ class KillReport:
     differing_files: list = field(default_factory=list)
 
     @property
+    def landed(self) -> int:
+        """Kills that landed inside a run (the others came after the killed run had finished)."""
+        return self.kills - self.finished_before_kill
+
+    @property
     def ok(self) -> bool:
-        return not self.partial_or_corrupt and bool(self.rerun_identical) and not self.locks_after_rerun
+        """True when at least one kill landed inside a run, no output was ever partial or corrupt, the rerun
+        matched the uninterrupted run and took over every stale lock. A campaign whose kills all came after
+        the runs had finished tested nothing and is not ok."""
+        return (
+            self.landed > 0
+            and not self.partial_or_corrupt
+            and bool(self.rerun_identical)
+            and not self.locks_after_rerun
+        )
 
 
 def kill_campaign(
