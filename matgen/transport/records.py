@@ -258,6 +258,19 @@ class PhotonRecords:
         for a in _ARRAYS[2:]:
             if getattr(self, a).shape != (n,):
                 raise DataError(f"photon records {where}: field '{a}' has shape {getattr(self, a).shape}")
+        for a in _ARRAYS[:-1]:
+            v = getattr(self, a)
+            bad = ~np.isfinite(v) | (v < 0)
+            if a == "exit_cos":
+                bad |= v > 1
+            if bad.any():
+                i = int(np.argwhere(bad)[0][0])
+                allowed = "[0, 1]" if a == "exit_cos" else "finite, >= 0"
+                raise DataError(
+                    f"photon records {where}: field '{a}' of photon {i} is out of range ({allowed})"
+                )
+        if np.any(self.side > 2):
+            raise DataError(f"photon records {where}: field 'side' holds values other than 0, 1 and 2")
         _check_meta(self.meta, where, self.path_mm.shape[1])
 
     @staticmethod

@@ -702,3 +702,38 @@ def test_table_spec_nested_too_deep_is_config_error(tmp_path):
     p.write_text(_DEEP_TOML)
     with pytest.raises(MatgenError):
         load_spec(p)
+
+
+@pytest.mark.parametrize(
+    "name,array,match",
+    [
+        (
+            "exit_radius_mm",
+            lambda a: np.where(np.arange(a.size) == 5, np.nan, a).astype(np.float32),
+            "photon 5",
+        ),
+        ("side", lambda a: np.full_like(a, 7), "'side'"),
+        ("exit_cos", lambda a: a + np.float32(2), "exit_cos"),
+        ("path_mm", lambda a: a.astype(np.float64), "dtype"),
+    ],
+)
+def test_records_arrays_not_as_written_are_data_error(tmp_path, name, array, match):
+    """Records arrays a simulation never writes (NaN radius, side 7, exit cosine above 1, float64 paths)."""
+    import io
+    import zipfile
+
+    from matgen.errors import DataError
+    from matgen.transport.records import PhotonRecords
+
+    p = _records_file(tmp_path)
+    with zipfile.ZipFile(p) as zf:
+        members = {n: zf.read(n) for n in zf.namelist()}
+    buf = io.BytesIO()
+    old = np.lib.format.read_array(io.BytesIO(members[f"{name}.npy"]))
+    np.lib.format.write_array(buf, np.ascontiguousarray(array(old)), allow_pickle=False)
+    members[f"{name}.npy"] = buf.getvalue()
+    with zipfile.ZipFile(p, "w") as zf:
+        for n, b in members.items():
+            zf.writestr(n, b)
+    with pytest.raises(DataError, match=match):
+        PhotonRecords.load(p)
