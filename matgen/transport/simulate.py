@@ -1,7 +1,8 @@
-"""Python entry point of the layered Monte Carlo: :func:`simulate`. Units: mm, 1/mm, fractions of launched weight.
+"""Python entry point of the layered Monte Carlo: :func:`simulate`. Units: mm, 1/mm, fractions of weight.
 
 ``simulate(stack, photons, seed)`` validates its inputs, launches ``photons`` packets with global indices
-``first_photon .. first_photon + photons - 1`` and returns a :class:`~matgen.transport.results.TransportResult`.
+``first_photon .. first_photon + photons - 1`` and returns a
+:class:`~matgen.transport.results.TransportResult`.
 Photon i's random stream depends only on (seed, first_photon + i) and tallies are summed in integer fixed
 point, so the same seed gives bit-identical tallies for any thread count, and runs over consecutive photon
 ranges add up exactly to one run over the union (:func:`combine`). The kernels are in
@@ -81,7 +82,7 @@ def _check_int(value, name: str, lo: int, hi: int) -> int:
 
 
 def resolve_threads(threads) -> int:
-    """Threads to use: None -> all numba threads; else a whole number in [1, numba.config.NUMBA_NUM_THREADS]."""
+    """Threads to use: None -> all numba threads; else a whole number in [1, NUMBA_NUM_THREADS]."""
     most = int(numba.config.NUMBA_NUM_THREADS)
     if threads is None:
         return most
@@ -89,7 +90,7 @@ def resolve_threads(threads) -> int:
 
 
 def layer_table(stack: Stack) -> np.ndarray:
-    """The (L, 8) per-layer table of the kernels: z_top, z_bot (mm), n, n above, n below, mu_a, mu_s (1/mm), g."""
+    """Build the (L, 8) layer table of the kernels: z_top, z_bot (mm), n, n above, n below, mu_a, mu_s, g."""
     n_layers = stack.n_layers
     edges = np.concatenate(([0.0], np.cumsum(stack.thickness_mm)))
     lay = np.empty((n_layers, K.LAYER_COLUMNS), dtype=np.float64)

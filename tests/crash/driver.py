@@ -1,4 +1,4 @@
-"""Child process of the kill harness: ``driver.py table SPEC OUT [--workers N]`` or ``driver.py bake CFG OUT``.
+"""Child of the kill harness: ``driver.py table SPEC OUT [--workers N]`` or ``driver.py bake CFG OUT``.
 
 Imports matgen, prints READY, runs the job, prints DONE. Exit 2 with one line on a MatgenError.
 """

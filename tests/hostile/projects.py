@@ -116,7 +116,7 @@ materialx = false
 
 
 def make_project(root, h: int = 16, w: int = 16, tiles=None, seed: int = 0) -> Path:
-    """A config folder with a table file and maps (one texture, or a UDIM set ``tiles``); returns the config."""
+    """A config folder with table file and maps (one texture, or a UDIM set ``tiles``); returns the config."""
     import OpenImageIO as oiio
 
     root = Path(root)

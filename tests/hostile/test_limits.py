@@ -142,7 +142,7 @@ def test_file_size_and_text_reading(tmp_path):
 @settings(max_examples=150, deadline=None)
 @given(w=st.integers(-(2**70), 2**70), h=st.integers(-(2**70), 2**70), c=st.integers(-10, 2**40))
 def test_check_image_dims_accepts_exactly_the_dims_within_every_ceiling(w, h, c):
-    """Property: the check passes iff every dimension is positive and every ceiling holds; else MatgenError."""
+    """Property: the check passes iff every dimension is positive and within every ceiling, else errs."""
     ok = (
         w >= 1
         and h >= 1
@@ -160,7 +160,7 @@ def test_check_image_dims_accepts_exactly_the_dims_within_every_ceiling(w, h, c)
 
 
 def test_reading_a_small_text_file_does_not_reserve_the_ceiling(tmp_path):
-    """read(ceiling + 1) once reserved 64 MiB per config read; the reader must allocate in proportion to the file."""
+    """read(ceiling + 1) once reserved 64 MiB per config read; reading allocates in proportion to the file."""
     import tracemalloc
 
     p = tmp_path / "small.toml"
