@@ -3,7 +3,7 @@
 Each entry: the fuzz target (or check) that found it, the exact input, what escaped, where, the status
 ("fixed": a guard landed and the regression test passes; "open": the regression test is a strict xfail and the
 owner of the module has the exact input), and the regression test in test_found_inputs.py / test_images.py /
-test_limits.py / test_paths.py.
+test_limits.py / test_paths.py / test_found_results.py.
 """
 
 FINDINGS = [
@@ -157,7 +157,7 @@ FINDINGS = [
         "escaped": "TypeError (float(None)) in the build statistics after the merge",
         "where": "matgen/tables/build.py _task_wall_sum; records not checked in matgen/tables/tasks.py",
         "status": "fixed",
-        "test": "test_found_inputs.py::test_task_record_with_bad_field_is_corrupt_and_recomputed",
+        "test": "test_found_results.py::test_task_record_with_bad_field_is_corrupt_and_recomputed",
     },
     {
         "target": "task_output_array",
@@ -165,7 +165,7 @@ FINDINGS = [
         "escaped": "ValueError (invalid entry in coordinates array) from the merge",
         "where": "matgen/tables/tasks.py load_task_output (arrays not checked against the plan)",
         "status": "fixed",
-        "test": "test_found_inputs.py::test_task_output_not_matching_its_plan_is_table_error",
+        "test": "test_found_results.py::test_task_output_not_matching_its_plan_is_table_error",
     },
     {
         "target": "photon_records_meta",
@@ -173,7 +173,7 @@ FINDINGS = [
         "escaped": "KeyError / AttributeError / TypeError from load or reweighting",
         "where": "matgen/transport/records.py PhotonRecords.load",
         "status": "fixed",
-        "test": "test_found_inputs.py::test_records_metadata_not_as_written_is_data_error",
+        "test": "test_found_results.py::test_records_metadata_not_as_written_is_data_error",
     },
     {
         "target": "validation_json",
@@ -181,7 +181,7 @@ FINDINGS = [
         "escaped": "AttributeError / TypeError / ValueError / LinAlgError (traceback from matgen report)",
         "where": "matgen/preview/report.py build_report",
         "status": "fixed",
-        "test": "test_found_inputs.py::test_report_with_malformed_validation_file_is_one_error",
+        "test": "test_found_results.py::test_report_with_malformed_validation_file_is_one_error",
     },
     {
         "target": "report_figure",
@@ -189,7 +189,7 @@ FINDINGS = [
         "escaped": "FileNotFoundError (traceback from matgen report)",
         "where": "matgen/preview/report.py png_data_uri",
         "status": "fixed",
-        "test": "test_found_inputs.py::test_report_with_missing_or_non_png_figure_is_one_error",
+        "test": "test_found_results.py::test_report_with_missing_or_non_png_figure_is_one_error",
     },
     {
         "target": "texture_paths",

@@ -336,170 +336,6 @@ def _job_file(data: bytes, scratch: Path):
     JobFolder.open(job)
 
 
-_BUILT_JOB: dict = {}
-
-
-def _built_job() -> Path:
-    """A finished table job folder (tiny spec, 2 bands, 1000 photons per band), built once per process."""
-    if "path" not in _BUILT_JOB:
-        import tempfile
-        import warnings
-
-        from matgen.tables.build import build_table
-
-        d = Path(tempfile.mkdtemp(prefix="matgen-job-"))
-        text = _lut_spec_texts()[0].decode("utf-8")
-        for old, new in (
-            ("photons_per_band = 4000", "photons_per_band = 1000"),
-            ("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [450.0, 650.0]"),
-        ):
-            assert old in text, old
-            text = text.replace(old, new)
-        (d / "spec.toml").write_text(text)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            build_table(d / "spec.toml", d / "t.npz", executor="serial", progress=False)
-        _BUILT_JOB["path"] = d / "t.job"
-    return _BUILT_JOB["path"]
-
-
-def _job_copy(scratch: Path):
-    """A copy of the built job in ``scratch`` (the fuzz case may alter it), opened."""
-    import shutil
-
-    from matgen.tables.plan import JobFolder
-
-    shutil.copytree(_built_job(), scratch / "job")
-    return JobFolder.open(scratch / "job")
-
-
-def _merge(job, scratch: Path):
-    """Merge the job into ``<scratch>/out/t.npz`` as 'matgen table merge' does (build statistics included)."""
-    from matgen.tables.build import merge_job
-
-    (scratch / "out").mkdir(exist_ok=True)
-    return merge_job(job, scratch / "out" / "t.npz")
-
-
-_JOB_REQ = ("matgen.tables.build", "matgen.tables.merge", "matgen.tissue.optics", "matgen.fit.summary")
-
-
-@target(
-    "task_record",
-    lambda d: [(_built_job() / "tasks" / "task-00000.json").read_bytes()],
-    requires=_JOB_REQ,
-    notes="task_state, then merge_job (task wall-time sum included) with task 0's record JSON mutated",
-)
-def _task_record(data: bytes, scratch: Path):
-    from matgen.tables.tasks import task_state
-
-    job = _job_copy(scratch)
-    job.record_path(0).write_bytes(data)
-    st = task_state(job, 0)
-    assert st.state in ("done", "corrupt"), st
-    _merge(job, scratch)
-
-
-def _rerecord(job, index: int) -> None:
-    """Make task ``index``'s record match its (altered) output, so that only the arrays' check can object."""
-    from matgen.provenance import sha256_file
-
-    out = job.output_path(index)
-    record = json.loads(job.record_path(index).read_text())
-    record["sha256"], record["bytes"] = sha256_file(out), out.stat().st_size
-    job.record_path(index).write_text(json.dumps(record))
-
-
-@target(
-    "task_output",
-    lambda d: [(_built_job() / "tasks" / "task-00000.npz").read_bytes()],
-    requires=_JOB_REQ,
-    notes="merge_job with task 0's output .npz mutated and its record's checksum made to match",
-)
-def _task_output(data: bytes, scratch: Path):
-    job = _job_copy(scratch)
-    job.output_path(0).write_bytes(data)
-    _rerecord(job, 0)
-    _merge(job, scratch)
-
-
-def _task_array_names() -> list:
-    from matgen.tables.tasks import TASK_ARRAYS
-
-    return sorted(TASK_ARRAYS)
-
-
-def _task_array_seeds(_d: Path) -> list:
-    import zipfile
-
-    names = _task_array_names()
-    with zipfile.ZipFile(_built_job() / "tasks" / "task-00000.npz") as zf:
-        return [bytes([i]) + zf.read(f"{n}.npy") for i, n in enumerate(names)]
-
-
-@target(
-    "task_output_array",
-    _task_array_seeds,
-    requires=_JOB_REQ,
-    notes="merge_job with one .npy member of task 0's output replaced (first byte picks the array; "
-    "shape, dtype and values mutated) and the record made to match",
-)
-def _task_output_array(data: bytes, scratch: Path):
-    import zipfile
-
-    if not data:
-        return
-    names = _task_array_names()
-    job = _job_copy(scratch)
-    out = job.output_path(0)
-    with zipfile.ZipFile(out) as zf:
-        members = {n: zf.read(n) for n in zf.namelist()}
-    members[f"{names[data[0] % len(names)]}.npy"] = data[1:]
-    out.write_bytes(_npz_from_members(members))
-    _rerecord(job, 0)
-    _merge(job, scratch)
-
-
-def _lock_seeds(_d: Path) -> list:
-    import os
-    import socket
-    import subprocess
-    import sys
-
-    gone = subprocess.Popen([sys.executable, "-c", "pass"])
-    gone.wait()  # its PID is now free: a lock naming it is stale
-    host = socket.gethostname()
-    return [
-        json.dumps({"host": host, "pid": gone.pid, "since": 1.0, "purpose": "write"}).encode(),
-        json.dumps({"host": host, "pid": os.getpid(), "since": 1.0, "purpose": "write"}).encode(),
-        json.dumps({"host": host + "-elsewhere", "pid": 1, "since": 1.0, "purpose": "write"}).encode(),
-    ]
-
-
-@target(
-    "lock_file",
-    _lock_seeds,
-    requires=("matgen.fsutil",),
-    notes="FolderLock.acquire over an existing lock file with mutated owner JSON (taken over if stale)",
-)
-def _lock_file(data: bytes, scratch: Path):
-    import os
-    import warnings
-
-    from matgen.fsutil import FolderLock
-
-    folder = scratch / "locked"
-    folder.mkdir()
-    (folder / ".matgen.lock").write_bytes(data)
-    lock = FolderLock(folder, wait_s=0.0, purpose="fuzz")
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        lock.acquire()
-    # taken over: the file now holds this process's own record
-    assert json.loads((folder / ".matgen.lock").read_text())["pid"] == os.getpid()
-    lock.release()
-
-
 # ---------------------------------------------------------------------------------------------------------
 # material configs, maps, descriptors, response curves (matgen.bake, matgen.export, matgen.color)
 
@@ -618,58 +454,6 @@ def _descriptor(data: bytes, scratch: Path):
         assert isinstance(p, str), p
 
 
-def validation_doc() -> dict:
-    """A 'matgen validate --json' result of the shape ValidationRun.to_dict writes (invented numbers)."""
-    row = {
-        "label": "550 nm",
-        "wavelength_nm": 550.0,
-        "tested": {"value": 0.40, "stderr": 0.001},
-        "reference": {"value": 0.401, "stderr": 0.001},
-        "difference": -0.001,
-        "combined_stderr": 0.0014,
-        "allowance": 0.001,
-        "bound": 0.0052,
-        "passed": True,
-        "note": "",
-    }
-    failing = dict(row, label="850 nm", wavelength_nm=850.0, difference=0.02, passed=False, note="x")
-    return {
-        "quick": True,
-        "passed": False,
-        "seconds": 1.0,
-        "skipped": {"collapse": "example: not run"},
-        "allowances": {"tracer": 0.001, "collapse": 0.02, "sigma_bound": 3.0},
-        "comparisons": [
-            {
-                "name": "layered",
-                "title": "example table",
-                "tested_label": "matgen",
-                "reference_label": "tracer",
-                "passed": False,
-                "max_abs_difference": 0.02,
-                "seconds": 1.0,
-                "rows": [row, failing],
-            }
-        ],
-    }
-
-
-@target(
-    "validation_json",
-    lambda d: [json.dumps(validation_doc(), indent=1).encode(), json.dumps({"passed": True}).encode()],
-    requires=("matgen.preview.report",),
-    notes="load_validation, then the report's validation section (table and figure) of what loaded",
-)
-def _validation_json(data: bytes, scratch: Path):
-    from matgen.preview.report import _validation_section, load_validation
-
-    p = scratch / "validation.json"
-    p.write_bytes(data)
-    doc = load_validation(p)
-    html = _validation_section(doc, scratch)
-    assert "Validation against" in html
-
-
 def _csv_seeds(_d: Path) -> list:
     import importlib.resources as ir
 
@@ -762,85 +546,6 @@ def _photon_records(data: bytes, scratch: Path):
     reweight(rec, np.array([[0.5, 0.05]]), threads=1)
 
 
-def _records_members() -> dict:
-    """Members of a valid records file (300 photons, 2 layers), made once per process."""
-    if "members" not in _RECORDS:
-        import tempfile
-        import zipfile
-
-        with tempfile.TemporaryDirectory() as d:
-            p = Path(d) / "rec.npz"
-            p.write_bytes(_records_seeds(Path(d))[0])
-            with zipfile.ZipFile(p) as zf:
-                _RECORDS["members"] = {n: zf.read(n) for n in zf.namelist()}
-    return _RECORDS["members"]
-
-
-_RECORDS: dict = {}
-
-
-def _load_and_reweight(members: dict, scratch: Path):
-    import numpy as np
-
-    from matgen.transport.records import PhotonRecords
-    from matgen.transport.reweight import reweight
-
-    p = scratch / "rec.npz"
-    p.write_bytes(_npz_from_members(members))
-    rec = PhotonRecords.load(p)
-    reweight(rec, np.array([[0.5, 0.05]]), threads=1)
-
-
-def _records_meta_seeds(_d: Path) -> list:
-    import io
-
-    import numpy as np
-
-    meta = np.lib.format.read_array(io.BytesIO(_records_members()["meta.npy"]))
-    return [str(meta).encode("utf-8")]
-
-
-@target(
-    "photon_records_meta",
-    _records_meta_seeds,
-    requires=("matgen.transport.records", "matgen.transport.reweight"),
-    notes="PhotonRecords.load + reweighting of a valid records file whose metadata JSON is mutated",
-)
-def _photon_records_meta(data: bytes, scratch: Path):
-    import io
-
-    import numpy as np
-
-    buf = io.BytesIO()
-    np.lib.format.write_array(buf, np.array(data.decode("utf-8", "surrogateescape")), allow_pickle=False)
-    _load_and_reweight({**_records_members(), "meta.npy": buf.getvalue()}, scratch)
-
-
-_RECORD_ARRAYS = (
-    "path_mm",
-    "weighted_path_mm",
-    "exit_radius_mm",
-    "exit_cos",
-    "max_depth_mm",
-    "weight",
-    "side",
-)
-
-
-@target(
-    "photon_records_array",
-    lambda d: [bytes([i]) + _records_members()[f"{a}.npy"] for i, a in enumerate(_RECORD_ARRAYS)],
-    requires=("matgen.transport.records", "matgen.transport.reweight"),
-    notes="PhotonRecords.load + reweighting with one .npy member replaced (first byte picks the array; "
-    "shape, dtype and values mutated)",
-)
-def _photon_records_array(data: bytes, scratch: Path):
-    if not data:
-        return
-    name = _RECORD_ARRAYS[data[0] % len(_RECORD_ARRAYS)]
-    _load_and_reweight({**_records_members(), f"{name}.npy": data[1:]}, scratch)
-
-
 # ---------------------------------------------------------------------------------------------------------
 # command-line entry points fed whole files: exit 0 or 2 with one message, never a traceback
 
@@ -900,3 +605,11 @@ def _fit_result(data: bytes, scratch: Path):
     p = scratch / "result.json"
     p.write_bytes(data)
     _cli(["fit", p, "--json"])
+
+
+# ---------------------------------------------------------------------------------------------------------
+# targets in their own modules, registered on import: table job folders and lock files (targets_jobs.py),
+# validation results and photon-records members (targets_results.py)
+
+import targets_jobs  # noqa: E402, F401
+import targets_results  # noqa: E402, F401

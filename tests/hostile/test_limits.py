@@ -258,7 +258,7 @@ def test_task_record_above_the_text_ceiling_is_corrupt(tmp_path):
     """A finished task's record padded past MATGEN_MAX_TEXT_BYTES is not read whole: the task is corrupt."""
     import shutil
 
-    from targets import _built_job
+    from targets_jobs import _built_job
 
     from matgen.tables.plan import JobFolder
     from matgen.tables.tasks import task_state
