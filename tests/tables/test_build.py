@@ -325,3 +325,41 @@ def test_run_task_twice_at_once_and_busy_status(reference, tmp_path):
     with FolderLock(jobdir / "locks", "task-00002.lock"):
         assert main(["table", "run-task", str(jobdir), "2", "--no-wait"]) == 75
     assert main(["table", "run-task", str(jobdir), "7"]) == 2  # no such task
+
+
+def test_scattering_axis_and_reference_split_make_separate_runs(tmp_path):
+    """An axis that changes scattering (thickness_scale) cannot be reached by reweighting: each of its values
+    is its own scattering node with its own transport run, as is each value of a reference_split axis. The
+    table at such a node matches a fresh transport of that grid point within 3 combined standard errors
+    (reference: matgen.transport simulate of the point's own stack)."""
+    from matgen.tables.plan import base_parameters, make_plan, scattering_axes
+    from matgen.tissue.optics import skin_optics
+    from matgen.transport.simulate import simulate
+    from matgen.transport.stack import Stack
+
+    text = SPEC.read_text()
+    text = text.replace("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [550.0, 850.0]")
+    text = text.replace("values = [0.5, 0.75, 1.0]", "values = [0.6, 1.0]")
+    text += '\n[axes.thickness_scale]\nvalues = [0.7, 1.4]\n\n[transport]\nreference_split = ["melanin_fraction"]\n'
+    spec_path = tmp_path / "scat.toml"
+    spec_path.write_text(text)
+    spec = load_spec(spec_path)
+    assert scattering_axes(spec) == ["thickness_scale"]
+    plan = make_plan(spec)
+    # 2 bands x 2 thickness nodes x 5 melanin reference runs
+    assert len(plan.tasks) == 2 * 2 * 5
+    table = build_table(spec_path, tmp_path / "t.npz", executor="serial", progress=False)
+    a = table.quantities["albedo_multiple"].astype(float)
+    e = table.quantities["albedo_multiple_stderr"].astype(float)
+    t_axis = table.axis_names.index("thickness_scale")
+    assert not np.allclose(np.take(a, 0, axis=t_axis), np.take(a, 1, axis=t_axis))
+    base = base_parameters(spec)
+    for idx in [(0, 0, 0, 0), (2, 1, 1, 1), (4, 3, 0, 1)]:
+        point = {
+            name: float(ax.values[i]) for name, ax, i in zip(table.axis_names, table.axes, idx, strict=True)
+        }
+        optics = skin_optics(base.replace(**point), spec.bands, packaging=spec.packaging)
+        for b in range(len(spec.bands)):
+            r = simulate(Stack(**optics.band(b)), 20000, seed=300 + b)
+            tol = 3 * np.hypot(r.diffuse_reflectance.stderr, e[idx][b])
+            assert abs(a[idx][b] - r.diffuse_reflectance.value) <= tol, (point, b)
