@@ -340,7 +340,8 @@ def test_scattering_axis_and_reference_split_make_separate_runs(tmp_path):
     text = SPEC.read_text()
     text = text.replace("centres_nm = [450.0, 550.0, 650.0]", "centres_nm = [550.0, 850.0]")
     text = text.replace("values = [0.5, 0.75, 1.0]", "values = [0.6, 1.0]")
-    text += '\n[axes.thickness_scale]\nvalues = [0.7, 1.4]\n\n[transport]\nreference_split = ["melanin_fraction"]\n'
+    text += "\n[axes.thickness_scale]\nvalues = [0.7, 1.4]\n"
+    text += '\n[transport]\nreference_split = ["melanin_fraction"]\n'
     spec_path = tmp_path / "scat.toml"
     spec_path.write_text(text)
     spec = load_spec(spec_path)
