@@ -207,6 +207,7 @@ def test_same_table_task_run_twice_at_once_is_computed_once(tmp_path):
         '{"host": ["HOST"], "pid": 12345}',
         "[" * 100000,
     ],
+    ids=["list", "pid_2_70", "pid_minus_1", "pid_0", "pid_true", "host_list", "nested_deep"],
 )
 def test_lock_file_without_a_plausible_owner_is_never_taken_over(tmp_path, owner):
     """A lock file holding '[]' raised AttributeError, a PID of 2**70 OverflowError from os.kill, and -1 or 0

@@ -108,6 +108,7 @@ def _set_row0(name, value):
         (lambda a: a.update(g=a["g"].astype(np.complex128)), "'g'"),
         (lambda a: a.update(ring_edges_mm=a["ring_edges_mm"] * 2), "ring_edges_mm"),
     ],
+    ids=["grid_index_99", "missing_array", "short_array", "nan_value", "complex_g", "other_rings"],
 )
 def test_task_output_not_matching_its_plan_is_table_error(tmp_path, change, field):
     """A task output whose 'grid_index' holds 99 in row 0 (its record's checksum made to match) raised
@@ -169,6 +170,7 @@ def _meta_with(key, value):
         (_meta_with("depth_scale_mm", 0), "depth_scale_mm"),
         (lambda m: "[" * 100000, "cannot be read"),
     ],
+    ids=["no_launch_weight", "list", "mu_a_ref_number", "specular_text", "depth_scale_0", "nested_deep"],
 )
 def test_records_metadata_not_as_written_is_data_error(tmp_path, edit, match):
     """Records metadata without 'launch_weight' raised KeyError in the reweighting; '[]' AttributeError;
@@ -238,6 +240,17 @@ def _validation_with_row(**row):
         (b"[" * 100000, "not valid JSON"),
         (_validation_with_row(bound=1e308), "bound"),
         (_validation_with_row(tested={"value": "0.4", "stderr": 0.001}), "tested.value"),
+    ],
+    ids=[
+        "list",
+        "skipped_list",
+        "comparisons_number",
+        "comparison_without_name",
+        "seconds_text",
+        "not_utf8",
+        "nested_deep",
+        "bound_1e308",
+        "value_text",
     ],
 )
 def test_report_with_malformed_validation_file_is_one_error(baked_descriptor, tmp_path, content, match):
