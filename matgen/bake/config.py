@@ -339,4 +339,6 @@ def load_config(path, *, allow_outside: bool = False) -> BakeConfig:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(f"{path}: not valid TOML ({exc})") from exc
+    except RecursionError:  # nesting deeper than the parser's stack
+        raise ConfigError(f"{path}: TOML nested too deeply to be a material config") from None
     return config_from_dict(data, path.resolve().parent, where=str(path), allow_outside=allow_outside)

@@ -91,6 +91,8 @@ def _read(path: Path):
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
         raise ConfigError(f"{path.name} is not JSON ({exc.msg}, line {exc.lineno})") from exc
+    except RecursionError:  # nesting deeper than the parser's stack
+        raise ConfigError(f"{path.name}: JSON nested too deeply to be a transport result") from None
     if not isinstance(doc, dict):
         raise ConfigError(f"{path.name}: expected a JSON object")
     try:

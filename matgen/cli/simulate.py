@@ -61,6 +61,8 @@ def load_stacks(path):
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
         raise ConfigError(f"stack file '{path}' is not valid JSON: {exc}") from None
+    except RecursionError:  # nesting deeper than the parser's stack
+        raise ConfigError(f"stack file '{path}': JSON nested too deeply to be a stack") from None
     if not isinstance(doc, dict):
         raise ConfigError(f"stack file '{path}' must hold a JSON object with a 'layers' list")
     unknown = set(doc) - _TOP_KEYS

@@ -263,6 +263,8 @@ def load_descriptor(path) -> dict:
         doc = json.loads(text)
     except ValueError as exc:
         raise ConfigError(f"{path}: not valid JSON ({exc})") from exc
+    except RecursionError:  # nesting deeper than the parser's stack
+        raise ConfigError(f"{path}: JSON nested too deeply to be a material descriptor") from None
     validate_descriptor(doc, str(path))
     return doc
 

@@ -482,6 +482,8 @@ class JobFolder:
             doc = json.loads(limits.read_text_limited(job_file, "table job file"))
         except ValueError as exc:
             raise TableError(f"{job_file} is not valid JSON ({exc})") from exc
+        except RecursionError:  # nesting deeper than the parser's stack
+            raise TableError(f"{job_file}: JSON nested too deeply to be a job file") from None
         plan = plan_from_dict(doc, str(job_file))
         if check_code:
             if plan.code_version != code_version():

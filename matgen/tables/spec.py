@@ -433,4 +433,6 @@ def load_spec(path) -> TableSpec:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(f"{path.name}: not valid TOML ({exc})") from exc
+    except RecursionError:  # nesting deeper than the parser's stack
+        raise ConfigError(f"{path.name}: TOML nested too deeply to be a table spec") from None
     return parse_spec(doc, source=path.name)

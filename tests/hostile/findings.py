@@ -220,7 +220,7 @@ FINDINGS = [
         "input": "'[' * 100000 (JSON)",
         "escaped": "RecursionError from the parser",
         "where": "matgen/export/descriptor.py load_descriptor",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_descriptor_nested_too_deep_is_one_error",
     },
     {
@@ -228,7 +228,7 @@ FINDINGS = [
         "input": "'[' * 100000 (JSON)",
         "escaped": "RecursionError from the parser",
         "where": "matgen/cli/fit.py _read",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_fit_result_nested_too_deep_is_one_error",
     },
     {
@@ -236,7 +236,7 @@ FINDINGS = [
         "input": "'[' * 100000 (JSON)",
         "escaped": "RecursionError from the parser",
         "where": "matgen/cli/simulate.py load_stacks",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_stack_json_nested_too_deep_is_one_error",
     },
     {
@@ -244,7 +244,7 @@ FINDINGS = [
         "input": "'[' * 100000 (JSON)",
         "escaped": "RecursionError from the parser",
         "where": "matgen/tables/plan.py JobFolder.open",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_job_file_nested_too_deep_is_table_error",
     },
     {
@@ -252,7 +252,7 @@ FINDINGS = [
         "input": "'a = ' + '[' * 100000 (TOML)",
         "escaped": "RecursionError from the parser",
         "where": "matgen/bake/config.py load_config (tomllib)",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_material_config_nested_too_deep_is_config_error",
     },
     {
@@ -260,7 +260,7 @@ FINDINGS = [
         "input": "'a = ' + '[' * 100000 (TOML)",
         "escaped": "RecursionError from the parser",
         "where": "matgen/tables/spec.py load_spec (tomllib)",
-        "status": "open",
+        "status": "fixed",
         "test": "test_found_inputs.py::test_table_spec_nested_too_deep_is_config_error",
     },
 ]
