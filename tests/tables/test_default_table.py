@@ -32,3 +32,17 @@ def test_default_table_follows_pigment_trends():
     visible = table.bands.centre_nm < 700
     d = np.diff(a[..., visible], axis=0)
     assert np.all(d < 0)
+
+
+def test_default_table_was_built_by_this_code():
+    """The shipped table's provenance names the code that built it: the hash of every result-determining
+    source and data file must be today's, or the table no longer says truthfully where its numbers come from.
+    After a change to such a file, rebuild it: matgen table build lut/specs/default.toml --out lut/default.npz
+    (about 2.5 minutes on 2 cores)."""
+    from matgen import __version__
+    from matgen.tables.plan import data_hashes, source_hash
+
+    prov = load_default_table().manifest["provenance"]
+    assert prov["code_version"] == __version__
+    assert prov["data_hashes"] == data_hashes()
+    assert prov["source_hash"] == source_hash(), "rebuild lut/default.npz with the current code"
