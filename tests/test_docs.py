@@ -21,7 +21,9 @@ def test_readme_quick_start_is_two_commands_and_ci_runs_the_test_one():
     assert "matgen demo" in commands[0]
     assert "pytest" in commands[1]
     ci = (ROOT / ".ci" / "run").read_text()
-    assert '".[test]"' in ci and "pytest" in ci
+    ci_command = ci.split("TEST_COMMAND='", 1)[1].split("'\n", 1)[0]
+    assert ci_command == commands[1]  # CI runs exactly the README's test command
+    assert 'bash -c "$TEST_COMMAND"' in ci
 
 
 def test_readme_says_imagery_only():
