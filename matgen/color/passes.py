@@ -48,7 +48,10 @@ def read_response_csv(text: str, source: str):
 
     """
     reader = csv.reader(io.StringIO(text))
-    rows = [r for r in reader if r and not r[0].lstrip().startswith("#")]
+    try:
+        rows = [r for r in reader if r and not r[0].lstrip().startswith("#")]
+    except csv.Error as exc:  # e.g. a lone carriage return inside a field
+        raise DataError(f"response curve {source}, line {reader.line_num}: not CSV ({exc})") from None
     if not rows:
         raise DataError(f"response curve {source}: file is empty; expected a header 'wavelength_nm,weight'")
     header = [h.strip().lower() for h in rows[0]]

@@ -263,4 +263,12 @@ FINDINGS = [
         "status": "fixed",
         "test": "test_found_inputs.py::test_table_spec_nested_too_deep_is_config_error",
     },
+    {
+        "target": "response_csv",
+        "input": "b'wavelength_nm,weight\\n840.0,0.5\\n841.0,\\r0.5\\n' (libFuzzer: a lone CR in a field)",
+        "escaped": "_csv.Error (new-line character seen in unquoted field)",
+        "where": "matgen/color/passes.py read_response_csv",
+        "status": "fixed",
+        "test": "test_found_inputs.py::test_response_csv_with_carriage_return_in_a_field_is_data_error",
+    },
 ]

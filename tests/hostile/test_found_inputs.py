@@ -426,3 +426,21 @@ def test_table_spec_nested_too_deep_is_config_error(tmp_path):
     p.write_text(_DEEP_TOML)
     with pytest.raises(MatgenError):
         load_spec(p)
+
+
+def test_response_csv_with_carriage_return_in_a_field_is_data_error(tmp_path):
+    """A pass-response CSV with a lone carriage return inside a field (found by libFuzzer through
+    tools/hostile_report; the exact crash input, then a minimal one)."""
+    from matgen.color import pass_weights
+    from matgen.errors import DataError
+    from matgen.spectra.bands import BandSet
+
+    found = (
+        b"wav%wave\x00\x00\x00\x00th_nm,weight\n840.0,0.00000000\n84!.0,\r0.00000000\n842.0,0,0.00000\n"
+        b"32200.0,00"
+    )
+    for i, data in enumerate((found, b"wavelength_nm,weight\n840.0,0.5\n841.0,\r0.5\n")):
+        p = tmp_path / f"curve{i}.csv"
+        p.write_bytes(data)
+        with pytest.raises(DataError, match=f"curve{i}.csv"):
+            pass_weights(str(p), BandSet.regular(300.0, 1000.0, 10.0))
