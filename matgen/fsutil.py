@@ -96,6 +96,45 @@ def pid_alive(pid: int) -> bool:
     return True
 
 
+def read_lock_owner(path) -> dict:
+    """Return the owner record of lock file ``path``, or ``{}`` when it cannot be read or is not one.
+
+    The file is read through the size-limited text reader; a record that is not a JSON object with a host
+    name and a plausible PID (a whole number in 1 .. 2^31 - 1) is unknown, and an unknown owner is never
+    taken for a dead one.
+    """
+    try:
+        doc = json.loads(read_text_limited(path, "lock file"))
+    except (MatgenError, ValueError, RecursionError):
+        return {}
+    if not isinstance(doc, dict) or not isinstance(doc.get("host"), str):
+        return {}
+    pid = doc.get("pid")
+    if not (isinstance(pid, int) and not isinstance(pid, bool) and 0 < pid < 2**31):
+        return {}
+    return doc
+
+
+def lock_is_stale(owner: dict) -> bool:
+    """Whether an owner record names a process that is gone from this host (an unknown owner never is)."""
+    pid = owner.get("pid")
+    return owner.get("host") == socket.gethostname() and isinstance(pid, int) and not pid_alive(pid)
+
+
+def live_lock_owner(path) -> dict | None:
+    """Owner record of lock file ``path`` while a live (or unverifiable) process holds it; else None.
+
+    None when there is no lock file, when it vanished while being read, or when it is stale.
+    """
+    path = Path(path)
+    if not path.is_file():
+        return None
+    owner = read_lock_owner(path)
+    if not owner and not path.exists():
+        return None  # released while it was read
+    return None if lock_is_stale(owner) else owner
+
+
 class FolderLock:
     """An exclusive lock on a folder, held by a lock file ``<folder>/<name>``.
 
@@ -112,22 +151,8 @@ class FolderLock:
         self._held = False
 
     def _owner(self) -> dict:
-        """Return the lock file's owner record, or ``{}`` when it cannot be read or is not one.
-
-        The file is read through the size-limited text reader; a record that is not a JSON object with a
-        host name and a plausible PID (a whole number in 1 .. 2^31 - 1) is unknown, and an unknown owner is
-        never taken for a dead one.
-        """
-        try:
-            doc = json.loads(read_text_limited(self.path, "lock file"))
-        except (MatgenError, ValueError, RecursionError):
-            return {}
-        if not isinstance(doc, dict) or not isinstance(doc.get("host"), str):
-            return {}
-        pid = doc.get("pid")
-        if not (isinstance(pid, int) and not isinstance(pid, bool) and 0 < pid < 2**31):
-            return {}
-        return doc
+        """Return the lock file's owner record (:func:`read_lock_owner`)."""
+        return read_lock_owner(self.path)
 
     def acquire(self) -> None:
         """Take the lock or raise :class:`LockError`."""
@@ -141,9 +166,8 @@ class FolderLock:
                 fd = os.open(self.path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
             except FileExistsError:
                 owner = self._owner()
-                same_host = owner.get("host") == socket.gethostname()
                 pid = owner.get("pid")
-                if same_host and isinstance(pid, int) and not pid_alive(pid):
+                if lock_is_stale(owner):
                     warnings.warn(
                         f"removing stale lock {self.path} left by process {pid}",
                         StaleLockWarning,

@@ -21,7 +21,6 @@ import math
 import os
 import re
 import shutil
-import socket
 import time
 import uuid
 from concurrent.futures import ThreadPoolExecutor, wait
@@ -42,7 +41,7 @@ from matgen.export.descriptor import (
     texture_entry,
 )
 from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture, set_io_threads
-from matgen.fsutil import FolderLock, pid_alive
+from matgen.fsutil import FolderLock, live_lock_owner, pid_alive
 from matgen.provenance import sha256_file
 from matgen.tables.store import Table, default_table_path, load_default_table
 
@@ -144,26 +143,13 @@ def check_writable(out_dir: Path, create: bool = True) -> None:
         raise PathError(f"output folder {out_dir} is not writable")
 
 
-def _live_owner(path: Path) -> dict | None:
-    """Return the record (host, pid) of lock file ``path`` if a live process holds it, else None."""
-    if not path.is_file():
-        return None
-    owner = FolderLock(path.parent, name=path.name)._owner()  # the lock's own reading of its file
-    if not owner and not path.exists():
-        return None  # released while it was read
-    pid = owner.get("pid")
-    if owner.get("host") == socket.gethostname() and isinstance(pid, int) and not pid_alive(pid):
-        return None  # its process is gone: stale, taken over by the next bake that needs it
-    return owner
-
-
 def _conflicting_locks(out_dir: Path, tile: int | None) -> list:
     """Live locks in ``out_dir`` that exclude a bake of ``tile`` (None: a whole bake or an assembly)."""
     if tile is None:
         names = sorted(p.name for p in out_dir.iterdir() if _TILE_LOCK.match(p.name))
     else:
         names = [BAKE_LOCK]
-    held = [(out_dir / n, _live_owner(out_dir / n)) for n in names]
+    held = [(out_dir / n, live_lock_owner(out_dir / n)) for n in names]
     return [(p, o) for p, o in held if o is not None]
 
 
@@ -207,7 +193,7 @@ def check_unlocked(out_dir: Path, tile: int | None) -> None:
     if not out_dir.is_dir():
         return
     own = out_dir / (BAKE_LOCK if tile is None else tile_lock_name(tile))
-    held = [(own, o) for o in [_live_owner(own)] if o is not None]
+    held = [(own, o) for o in [live_lock_owner(own)] if o is not None]
     held += _conflicting_locks(out_dir, tile)
     if held:
         raise _locked_error(out_dir, held)
