@@ -13,10 +13,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
-import os
-import shutil
 import time
-import uuid
 from pathlib import Path
 
 import numpy as np
@@ -27,7 +24,6 @@ from matgen.errors import ConfigError, DataError, MatgenError, PathError
 from matgen.export.descriptor import load_descriptor, texture_entry
 from matgen.export.job import (
     SCENE_KEYS,
-    STAGING_PREFIX,
     BakeResult,
     _BakeLock,
     _build_documents,
@@ -36,6 +32,7 @@ from matgen.export.job import (
     check_unlocked,
     check_writable,
     load_table,
+    staging_folder,
 )
 from matgen.tables.store import default_table_path
 
@@ -113,14 +110,10 @@ def assemble_tiles(
     with _BakeLock(out_dir, None):
         _remove_stale_staging(out_dir)
         docs = _assembled_documents(plan, table, table_source, out_dir)
-        staging = out_dir / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
-        staging.mkdir()
-        try:
+        with staging_folder(out_dir) as staging:
             for rel, data in docs:
                 (staging / rel).write_bytes(data)
             _commit(staging, out_dir, [rel for rel, _ in docs])
-        finally:
-            shutil.rmtree(staging, ignore_errors=True)
     stats = json.loads(docs[-1][1])["statistics"]
     files = [rel for rel, _ in docs]
     return BakeResult(

@@ -16,6 +16,7 @@ Units: lengths in mm; renderer-target lengths in scene units; memory in bytes.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import math
 import os
@@ -207,6 +208,21 @@ def _remove_stale_staging(out_dir: Path) -> None:
             continue
         if not pid_alive(pid) or pid == os.getpid():
             shutil.rmtree(entry, ignore_errors=True)
+
+
+@contextlib.contextmanager
+def staging_folder(out_dir: Path):
+    """Yield a fresh hidden staging folder inside ``out_dir``; it is removed on the way out, whatever happens.
+
+    Call only under the folder's lock, after :func:`_remove_stale_staging`; move finished files out of it
+    with :func:`_commit`.
+    """
+    staging = out_dir / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
+    staging.mkdir()
+    try:
+        yield staging
+    finally:
+        shutil.rmtree(staging, ignore_errors=True)
 
 
 def planned_files(plan: BakePlan, name: str) -> list:
@@ -411,15 +427,11 @@ def bake(
         report = check_inputs(plan)
         set_threads(jobs)
         set_io_threads(jobs)
-        staging = out_dir / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
-        staging.mkdir()
-        try:
+        with staging_folder(out_dir) as staging:
             result = _bake_into(
                 plan, table, table_source, staging, progress, memory_budget_bytes, rows, report, jobs
             )
             _commit(staging, out_dir, result.files)
-        finally:
-            shutil.rmtree(staging, ignore_errors=True)
     result.out_dir = out_dir
     result.descriptor = out_dir / result.files[-1]
     result.seconds = time.perf_counter() - t_start
