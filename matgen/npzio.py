@@ -33,15 +33,35 @@ CORRUPT_ARCHIVE_ERRORS = (
     tokenize.TokenError,
 )
 
-def _npy_shape(zf: zipfile.ZipFile, member: str) -> tuple:
-    """Shape declared by the ``.npy`` header of a zip member, read without loading its data."""
+
+def _npy_header(zf: zipfile.ZipFile, member: str) -> tuple:
+    """(shape, dtype) declared by the ``.npy`` header of a zip member, read without loading its data."""
     with zf.open(member) as fh:
         version = np.lib.format.read_magic(fh)
         if version == (1, 0):
-            shape, _, _ = np.lib.format.read_array_header_1_0(fh)
+            shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
         else:
-            shape, _, _ = np.lib.format.read_array_header_2_0(fh)
-    return tuple(shape)
+            shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
+    return tuple(shape), dtype
+
+
+def declared_npz_bytes(path: Path) -> int:
+    """Bytes the ``.npy`` members of an archive declare in their headers (no array data is read).
+
+    Members that are not ``.npy`` are skipped (:func:`read_npz_checked` names them). Raises what zipfile and
+    numpy raise on a corrupt archive (see :data:`CORRUPT_ARCHIVE_ERRORS`).
+    """
+    total = 0
+    with zipfile.ZipFile(path) as zf:
+        for member in zf.namelist():
+            if not member.endswith(".npy"):
+                continue
+            shape, dtype = _npy_header(zf, member)
+            count = 1
+            for n in shape:
+                count *= max(0, int(n))  # Python ints: no overflow on hostile shapes
+            total += count * int(dtype.itemsize)
+    return total
 
 
 def read_npz_checked(path: Path, what: str, error: type[MatgenError] = DataError) -> dict:
@@ -53,7 +73,7 @@ def read_npz_checked(path: Path, what: str, error: type[MatgenError] = DataError
             for member in zf.namelist():
                 if not member.endswith(".npy"):
                     raise error(f"{what} {path} holds an unexpected member '{member}'")
-                shape = _npy_shape(zf, member)
+                shape, _ = _npy_header(zf, member)
                 if any(int(n) < 0 for n in shape):
                     raise error(f"{what} {path} array '{member}' declares a negative dimension {shape}")
                 entries = 1

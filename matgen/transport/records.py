@@ -37,7 +37,7 @@ import numpy as np
 from matgen import limits
 from matgen.errors import DataError, MatgenError, ParameterError
 from matgen.fsutil import atomic_path
-from matgen.npzio import CORRUPT_ARCHIVE_ERRORS, read_npz_checked
+from matgen.npzio import CORRUPT_ARCHIVE_ERRORS, declared_npz_bytes, read_npz_checked
 
 _ARRAYS = ("path_mm", "weighted_path_mm", "exit_radius_mm", "exit_cos", "max_depth_mm", "weight", "side")
 _DTYPES = {a: np.dtype(np.uint8 if a == "side" else np.float32) for a in _ARRAYS}
@@ -81,26 +81,6 @@ def check_records_memory(photons: int, n_layers: int, what: str = "photon record
         "records_bytes",
         f"the memory of {what} ({int(photons)} photons x {per} bytes for {n_layers} layers)",
     )
-
-
-def _declared_records_bytes(path: Path) -> int:
-    """Bytes the arrays of a records ``.npz`` declare in their ``.npy`` headers (no data is read)."""
-    total = 0
-    with zipfile.ZipFile(path) as zf:
-        for member in zf.namelist():
-            if not member.endswith(".npy"):
-                continue  # read_npz_checked names the unexpected member
-            with zf.open(member) as fh:
-                version = np.lib.format.read_magic(fh)
-                if version == (1, 0):
-                    shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
-                else:
-                    shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
-            count = 1
-            for n in shape:
-                count *= max(0, int(n))  # Python ints: no overflow on hostile shapes
-            total += count * int(dtype.itemsize)
-    return total
 
 
 def _finite(v) -> bool:
@@ -205,7 +185,7 @@ class PhotonRecords:
         p = Path(path)
         limits.check_file_size(p, "photon records file")
         try:
-            declared = _declared_records_bytes(p)
+            declared = declared_npz_bytes(p)
         except MatgenError:
             raise
         except CORRUPT_ARCHIVE_ERRORS as exc:
