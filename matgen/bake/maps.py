@@ -22,7 +22,7 @@ from matgen.errors import ColourSpaceWarning, ImageError
 from matgen.limits import check_count, check_image_dims
 
 
-def _oiio_error(source=None) -> str:
+def oiio_error_text(source=None) -> str:
     """Return OpenImageIO's pending error message (non-UTF-8 bytes of a file name decoded loosely)."""
     try:
         return (source if source is not None else oiio).geterror().strip()
@@ -93,7 +93,7 @@ def map_info(path, tile=None, *, channel: int = 0, what: str = "map") -> MapInfo
         raise ImageError(f"{what} {_where(path, tile)} does not exist")
     inp = oiio.ImageInput.open(str(path))
     if inp is None:
-        raise ImageError(f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {_oiio_error()}")
+        raise ImageError(f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {oiio_error_text()}")
     try:
         spec = inp.spec()
         info = MapInfo(
@@ -153,7 +153,7 @@ class MapReader:
         self._inp = oiio.ImageInput.open(str(self.info.path))
         if self._inp is None:
             raise ImageError(
-                f"{self.what} {_where(self.info.path, self.info.tile)} cannot be read: {_oiio_error()}"
+                f"{self.what} {_where(self.info.path, self.info.tile)} cannot be read: {oiio_error_text()}"
             )
         return self
 
@@ -173,7 +173,7 @@ class MapReader:
             raise ImageError(f"{self.what} {self.info.path} is not open")
         data = inp.read_scanlines(0, 0, y0, y1, 0, self.channel, self.channel + 1, oiio.FLOAT)
         if data is None or not isinstance(data, np.ndarray) or data.size != (y1 - y0) * self.info.width:
-            msg = _oiio_error(inp) or _oiio_error() or "short read"
+            msg = oiio_error_text(inp) or oiio_error_text() or "short read"
             raise ImageError(
                 f"{self.what} {_where(self.info.path, self.info.tile)}: rows {y0}..{y1 - 1} cannot be "
                 f"read ({msg}); the file may be truncated or corrupt"

@@ -193,20 +193,20 @@ def read_exr(path):
         ``image_bytes``).
 
     """
-    from matgen.bake.maps import _oiio_error
+    from matgen.bake.maps import oiio_error_text
     from matgen.limits import check_image_dims
 
     path = Path(path)
     inp = oiio.ImageInput.open(str(path))
     if inp is None:
-        raise ImageError(f"{path} cannot be read: {_oiio_error()}")
+        raise ImageError(f"{path} cannot be read: {oiio_error_text()}")
     try:
         spec = inp.spec()
         width, height, nchannels = int(spec.width), int(spec.height), int(spec.nchannels)
         check_image_dims(width, height, nchannels, path=path)  # before read_image allocates
         data = inp.read_image(0, 0, 0, nchannels, oiio.FLOAT)
         if data is None:
-            raise ImageError(f"{path} cannot be read: {_oiio_error(inp)}")
+            raise ImageError(f"{path} cannot be read: {oiio_error_text(inp)}")
         attrs = {a.name: a.value for a in spec.extra_attribs}
         return (
             np.asarray(data, dtype=np.float32).reshape(height, width, nchannels),

@@ -98,20 +98,20 @@ def read_texture(path) -> tuple[np.ndarray, list]:
     """
     import OpenImageIO as oiio
 
-    from matgen.bake.maps import _oiio_error
+    from matgen.bake.maps import oiio_error_text
     from matgen.limits import check_image_dims
 
     p = Path(path)
     inp = oiio.ImageInput.open(str(p))
     if inp is None:
-        raise ImageError(f"cannot open texture {p}: {_oiio_error() or 'unreadable'}")
+        raise ImageError(f"cannot open texture {p}: {oiio_error_text() or 'unreadable'}")
     try:
         spec = inp.spec()
         width, height, nchannels = int(spec.width), int(spec.height), int(spec.nchannels)
         check_image_dims(width, height, nchannels, path=p)  # before read_image allocates
         pixels = inp.read_image(0, 0, 0, nchannels, oiio.FLOAT)
         if pixels is None:
-            raise ImageError(f"cannot read pixels of {p}: {_oiio_error(inp) or 'read failed'}")
+            raise ImageError(f"cannot read pixels of {p}: {oiio_error_text(inp) or 'read failed'}")
         names = list(spec.channelnames)
     finally:
         inp.close()
