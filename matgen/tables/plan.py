@@ -26,6 +26,7 @@ The job folder (``plan`` writes it; executors and ``run-task`` fill it; ``merge`
 
 from __future__ import annotations
 
+import ast
 import functools
 import itertools
 import json
@@ -107,17 +108,59 @@ class Task:
         )
 
 
+def _strip_docstrings(tree: ast.AST) -> ast.AST:
+    """Remove the docstring of the module and of every class and function of a parsed source file."""
+    for node in ast.walk(tree):
+        if isinstance(node, (ast.Module, ast.ClassDef, ast.FunctionDef, ast.AsyncFunctionDef)):
+            first = node.body[0] if node.body else None
+            if isinstance(first, ast.Expr) and isinstance(first.value, ast.Constant):
+                if isinstance(first.value.value, str):
+                    node.body = node.body[1:] or [ast.Pass()]
+    return tree
+
+
+def code_digest(path: Path) -> bytes:
+    """SHA-256 of what a Python source file computes, blind to its comments, docstrings and formatting.
+
+    The file is parsed and its syntax tree, without docstrings and without line or column positions, is
+    hashed; comments and layout never reach the tree. A file that does not parse (it could not be imported
+    either) is hashed by its bytes.
+
+    Parameters
+    ----------
+    path : Path
+        A ``.py`` file.
+
+    Returns
+    -------
+    bytes
+        32-byte digest.
+
+    """
+    import hashlib
+
+    raw = path.read_bytes()
+    try:
+        tree = ast.parse(raw, filename=str(path))
+    except (SyntaxError, ValueError):
+        return hashlib.sha256(raw).digest()
+    dump = ast.dump(_strip_docstrings(tree), annotate_fields=False, include_attributes=False)
+    return hashlib.sha256(dump.encode("utf-8")).digest()
+
+
 @functools.lru_cache(maxsize=1)
 def source_hash() -> str:
-    """SHA-256 over the matgen source and data files that determine a table's numbers.
+    """SHA-256 over what the matgen source and data files that determine a table's numbers compute.
 
     The package version alone does not change when the transport, tissue model or fits are edited between
     releases; this hash does, so a job folder planned with other code (or other shipped data, such as the fit
-    stage's inversion tables) is refused instead of being merged with mixed results. Covered: the ``.py``
-    files of the spectra, tissue, transport, color, fit and tables stages (except reporting, benchmark and
-    scheduling modules: every ``bench.py`` and the tables' report, executors and build modules), their
-    ``data/`` folders, and the top-level constants, units, provenance and limits. Computed once per process
-    (the code a process runs is the code it imported).
+    stage's inversion tables) is refused instead of being merged with mixed results, and the shipped default
+    table's recorded hash says when it is due for a rebuild. Python files enter through :func:`code_digest`
+    (their syntax tree without docstrings), so a comment, a docstring or a reformat changes nothing; data
+    files enter by their bytes. Covered: the ``.py`` files of the spectra, tissue, transport, color, fit and
+    tables stages (except reporting, benchmark and scheduling modules: every ``bench.py`` and the tables'
+    report, executors and build modules), their ``data/`` folders, and the top-level constants, units,
+    provenance and limits. Computed once per process (the code a process runs is the code it imported).
     """
     import hashlib
 
@@ -137,7 +180,8 @@ def source_hash() -> str:
         rel = p.relative_to(root).as_posix()
         if rel in _RESULT_NEUTRAL or p.name == "bench.py" or not p.is_file():
             continue
-        h.update(rel.encode() + b"\0" + hashlib.sha256(p.read_bytes()).digest())
+        digest = code_digest(p) if p.suffix == ".py" else hashlib.sha256(p.read_bytes()).digest()
+        h.update(rel.encode() + b"\0" + digest)
     return h.hexdigest()
 
 
