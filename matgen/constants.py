@@ -26,7 +26,7 @@ NM_PER_MM = 1.0e6
 #: Refractive index of air at visible wavelengths, to 4 decimals. (common practice: 1.0 used as vacuum)
 N_AIR = 1.0
 
-#: Default bands of matgen: centres 300..1000 nm in 10 nm steps, each band 10 nm wide. (DESIGN.md)
+#: Default bands of matgen: centres 300..1000 nm in 10 nm steps, each band 10 nm wide.
 DEFAULT_BAND_START_NM = 300.0
 DEFAULT_BAND_STOP_NM = 1000.0
 DEFAULT_BAND_STEP_NM = 10.0

@@ -1,4 +1,4 @@
-"""Imports run one way along the pipeline (STYLE.md practice 16); transport knows nothing of pigments."""
+"""Imports run one way along the pipeline (DEVELOPERS.md, Layout); transport knows nothing of pigments."""
 
 import ast
 from pathlib import Path

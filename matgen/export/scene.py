@@ -20,7 +20,7 @@ from matgen.errors import DataError
 from matgen.units import mm_to_scene_units
 
 #: Wavelength range Mitsuba 3's spectral sensors sample, nm (from memory: Mitsuba's MI_CIE_MIN / MI_CIE_MAX;
-#: consistent with REFERENCES.md, which notes RGB-upsampled inputs are zero outside 360-830 nm).
+#: RGB-upsampled inputs (Jakob & Hanika 2019 spectral upsampling) are zero outside it).
 MITSUBA_SPECTRAL_RANGE_NM = (360.0, 830.0)
 
 #: Sphere radius of the preview in metres (a head-sized ball), converted to scene units on writing.

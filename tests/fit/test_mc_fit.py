@@ -34,7 +34,7 @@ def isotropic_runs():
 @pytest.mark.parametrize("alpha, exact", [(0.8, 0.285255), (0.9, 0.414947), (0.99, 0.752721)])
 def test_albedo_matches_exact_isotropic_half_space(isotropic_runs, alpha, exact):
     """A(alpha) from matgen's transport vs R = 1 - H(1) sqrt(1 - alpha) (van de Hulst 1980; Chandrasekhar
-    1960 H-function; values as listed in REFERENCES.md and re-derived in test_inversion.py), within 3 SE."""
+    1960 H-function; values re-derived from the H-function in test_inversion.py), within 3 SE."""
     r = isotropic_runs[alpha].diffuse_reflectance
     assert abs(r.value - exact) < 3.0 * r.stderr
 

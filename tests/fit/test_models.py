@@ -68,7 +68,7 @@ def test_gaussians_normalised_and_rings():
 
 
 def test_shape_scaling_values_and_errors():
-    """The three published s(A) fits (Christensen & Burley 2015, as quoted in our design notes) at A = 0.8
+    """The three published s(A) fits (Christensen & Burley 2015, coefficients from memory) at A = 0.8
     and A = 0.33, where each polynomial term vanishes: 1.05, 1.1, 3.5."""
     assert float(shape_scaling(0.8, "Christensen2015_searchlight_mfp")) == pytest.approx(1.05)
     assert float(shape_scaling(0.8, "Christensen2015_diffuse_mfp")) == pytest.approx(1.1)

@@ -3,7 +3,7 @@
 References:
 * van de Hulst 1980 matched slab as quoted by Wang, Jacques & Zheng 1995 (MCML paper, Table 3):
   a = 0.9, b = 2, g = 0.75, n = 1: total reflectance 0.09739, total transmittance 0.66096.
-* Exact isotropic half-space, n = 1 (Chandrasekhar H-function; values of REFERENCES.md):
+* Exact isotropic half-space, n = 1 (Chandrasekhar 1960 H-function; values computed from it):
   R = 0.285255, 0.414947, 0.752721 at albedo 0.8, 0.9, 0.99.
 * iadpython 0.5.3 adding-doubling (Prahl, van Gemert & Welch 1993), 16 quadrature points, for 22 slabs:
   total reflectance (specular included) and total transmittance within 3 standard errors plus 0.2 % of the
@@ -24,7 +24,7 @@ from matgen.transport.stack import Stack
 
 pytestmark = needs_jit
 
-#: Relative allowance for the 16-point adding-doubling reference (0.2 %, as the transport issue states).
+#: Relative allowance for the 16-point adding-doubling reference (0.2 %: a project choice covering 16-point quadrature).
 AD_ALLOWANCE = 0.002
 
 
@@ -47,7 +47,7 @@ def test_van_de_hulst_matched_slab():
 
 @pytest.mark.parametrize("albedo,reference", [(0.8, 0.285255), (0.9, 0.414947), (0.99, 0.752721)])
 def test_isotropic_half_space(albedo, reference):
-    """Exact half-space reflectance (REFERENCES.md); 200 mean free paths deep stands in for a half-space.
+    """Exact half-space reflectance (Chandrasekhar 1960); 200 mean free paths deep stands in for a half-space.
 
     Light lost through the bottom is below exp(-200 mu_eff / mu_t) ~ 1e-14 of the launch: no allowance.
     """

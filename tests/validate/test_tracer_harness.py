@@ -89,7 +89,7 @@ def test_nested_dielectric_interfaces_match_glass_slides():
 
 def test_isotropic_half_space_chandrasekhar():
     """Isotropic half-space, n = 1, albedo 0.9: R = 1 - H(1) sqrt(1 - a) = 0.414947 (Chandrasekhar 1960,
-    as quoted in REFERENCES.md); a 40-mfp slab stands in for the half-space (its transmittance ~ 1e-6)."""
+    computed from the H-function); a 40-mfp slab stands in for the half-space (its transmittance ~ 1e-6)."""
     est = tracer.render_reflectance(
         [tracer.TracerLayer(40.0, 0.9, 1.0, 0.0, 1.0)], 1.0, 1.0, 495.0, 505.0, paths=32768, seed=5
     )
