@@ -16,7 +16,8 @@ EDGES = np.concatenate(([0.0], np.logspace(-3.0, 2.0, 51)))
 
 
 def test_gaussian_weights_recovered_nonnegative():
-    """d'Eon & Luebke 2007 variance set; weights of a synthetic sum come back (NNLS, Lawson & Hanson 1974)."""
+    """d'Eon & Luebke 2007 variance set (from memory); weights of a synthetic sum come back (NNLS, Lawson &
+    Hanson 1974)."""
     w_true = np.array([[0.12, 0.0, 0.05, 0.08, 0.15, 0.02], [0.0, 0.3, 0.0, 0.1, 0.0, 0.05]])
     y = w_true @ gaussian_rings(EDGES, GAUSSIAN_VARIANCES_DEON2007_MM2)
     s = 0.01 * y

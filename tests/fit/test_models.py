@@ -54,7 +54,8 @@ def test_dipole_cdf_matches_quadrature_and_total():
 
 
 def test_gaussians_normalised_and_rings():
-    """d'Eon & Luebke 2007 Gaussians integrate to 1; the ring integrals match quadrature."""
+    """d'Eon & Luebke 2007 Gaussians (variances from memory) integrate to 1; the ring integrals match
+    quadrature."""
     e = np.array([0.0, 0.1, 0.5, 2.0])
     g = gaussian_rings(e, GAUSSIAN_VARIANCES_DEON2007_MM2)
     area = np.pi * (e[1:] ** 2 - e[:-1] ** 2)

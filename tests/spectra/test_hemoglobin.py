@@ -40,9 +40,8 @@ def _peak(wl, v, lo, hi):
 
 
 def test_peaks_and_isosbestic_point():
-    """Facts of Prahl's table (read from the table as mne carries it, mne/data/extinction_coef.mat): HbO2 peaks 414, 542, 576 nm; Hb 432,
-    556 nm
-    (+-2 nm); HbO2/Hb crossing near 797 nm (796.8 nm, +-3 nm)."""
+    """Facts of Prahl's table (read from the table as mne carries it, mne/data/extinction_coef.mat):
+    HbO2 peaks 414, 542, 576 nm; Hb 432, 556 nm (+-2 nm); HbO2/Hb crossing near 797 nm (796.8 nm, +-3 nm)."""
     wl, ext = ch.hemoglobin_table()
     hbo2, hb = ext[:, 0], ext[:, 1]
     assert abs(_peak(wl, hbo2, 390, 450) - 414) <= 2
@@ -60,7 +59,8 @@ def test_peaks_and_isosbestic_point():
 
 
 def test_whole_blood_conversion(ref):
-    """mu_a [1/cm] = ln(10) e 150 / 64500 (Prahl 1999, 64,500 g/mol haemoglobin, 150 g/L); matgen returns 1/mm, so one tenth.
+    """mu_a [1/cm] = ln(10) e 150 / 64500 (Prahl 1999, 64,500 g/mol haemoglobin, 150 g/L); matgen returns
+    1/mm, so one tenth.
     (rel 1e-4: a 0.02 nm band around a table vertex averages the kink of the piecewise-linear spectrum.)"""
     wl, hbo2, hb = ref.mne_extinction()
     i = int(np.nonzero(wl == 550)[0][0])

@@ -52,7 +52,8 @@ def test_water_vs_simpa(ref):
 
 
 def test_water_band_maximum_near_970nm():
-    """The O-H combination band of liquid water peaks near 970 nm (+-10 nm); read from the vendored data."""
+    """The O-H combination band of liquid water peaks near 970 nm (+-10 nm; common practice,
+    and Segelstein 1981's table as vendored shows it)."""
     bands = BandSet.regular(900, 1050, 1)
     mua = ch.mu_a_water(bands)
     assert abs(bands.centre_nm[np.argmax(mua)] - 970) <= 10

@@ -107,14 +107,15 @@ def test_packaging_lowers_absorption_where_pigment_is_strong():
     only_mel = skin_optics(p, BANDS, "melanin").mu_a
     assert np.all(on <= off + 1e-15)
     i = BANDS.index_of(415.0)
-    assert on[2, i] < 0.9 * off[2, i]  # Soret band in papillary vessels
+    # Soret band of haemoglobin near 415 nm (Prahl 1999 table) in papillary vessels
+    assert on[2, i] < 0.9 * off[2, i]
     assert np.array_equal(only_mel[2], off[2]) and np.array_equal(only_mel[1], on[1])
     assert skin_optics(p, BANDS, "blood").packaging == "blood"
 
 
 def test_pigment_trends():
-    """More melanin darkens the epidermis; deoxygenated blood absorbs more at 760 nm (Hb band), less at
-    900 nm."""
+    """More melanin darkens the epidermis; deoxygenated blood absorbs more at 760 nm (the Hb band there,
+    read from Prahl 1999's table), less at 900 nm."""
     bands = BandSet.parse("420,760,900")
     lo = skin_optics(SkinParameters(melanin_fraction=0.02), bands).mu_a
     hi = skin_optics(SkinParameters(melanin_fraction=0.2), bands).mu_a
