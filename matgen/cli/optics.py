@@ -17,6 +17,7 @@ import math
 import os
 import sys
 
+from matgen.cautions import print_caution
 from matgen.cli import add_command
 from matgen.errors import ParameterError, PathError
 from matgen.fsutil import atomic_write_bytes
@@ -242,4 +243,5 @@ def run(args) -> int:
     if png is not None:
         _write_atomic(args.plot, png)
     sys.stdout.write(text)
+    print_caution()
     return 0

@@ -121,3 +121,17 @@ def test_plot_path_errors(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "does not exist" in err and "must end in .png" in err
     assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("fmt", ["table", "json", "csv"])
+def test_every_format_prints_the_caution_on_stderr(fmt, capsys):
+    """One caution line on standard error for every format; standard output stays machine-readable."""
+    from matgen.cautions import IMAGERY_ONLY
+
+    assert main(["optics", "--preset", "cheek", "--wavelengths", "550", "--format", fmt]) == 0
+    cap = capsys.readouterr()
+    assert cap.err.strip().splitlines() == [IMAGERY_ONLY]
+    assert "licensed practice" in IMAGERY_ONLY and "local regulations" in IMAGERY_ONLY
+    assert IMAGERY_ONLY not in cap.out
+    if fmt == "json":
+        json.loads(cap.out)
