@@ -9,13 +9,15 @@ Method (Wang, Jacques & Zheng 1995, with absorption applied continuously, as in 
 * **hop**: a dimensionless scattering depth ``tau = -ln(u)`` is spent across layers (``mu_s * s`` per
   segment). Free paths are sampled on ``mu_s`` alone, so the geometric path never depends on ``mu_a``.
   A clear layer (``mu_s = 0``) spends nothing: the packet crosses it to the next boundary.
-* **drop**: along each segment of length ``s`` in layer ``j`` the weight decays as ``exp(-mu_a_j s)``
+* **drop**: along a path of length ``s`` in layer ``j`` the weight decays as ``exp(-mu_a_j s)``
   (microscopic Beer-Lambert); the loss is absorbed in layer ``j``, and ``s`` adds to the layer's path length.
+  The path of a whole layer visit is summed and its exponential evaluated once: when the packet leaves the
+  layer, leaves the stack, or may have fallen below the roulette weight (see :func:`trace_photon`).
 * **cross boundary**: at an index step the packet is reflected with the unpolarised Fresnel probability
   (one uniform drawn), else refracted by Snell's law; without an index step it passes unchanged and no
   uniform is drawn. Leaving the top is diffuse reflectance, leaving the bottom transmittance.
 * **spin**: Henyey-Greenstein polar cosine (one uniform) and a uniform azimuth (rejection from the unit disc).
-* **roulette**: below weight ``ROULETTE_WEIGHT`` the packet survives with probability ``ROULETTE_CHANCE``
+* **roulette**: after a scattering event, below weight ``ROULETTE_WEIGHT`` the packet survives with probability ``ROULETTE_CHANCE``
   and weight divided by it (unbiased), else it ends (one uniform drawn).
 
 Random numbers per photon come in this order: hop, [boundary draws], spin polar, spin azimuth (pairs until
@@ -48,6 +50,13 @@ from matgen.transport.rng import photon_state, uniform, uniform_open0
 #: Roulette threshold weight and survival chance (Wang, Jacques & Zheng 1995, sec. 3.9: 1e-4 and 0.1).
 ROULETTE_WEIGHT = 1.0e-4
 ROULETTE_CHANCE = 0.1
+#: Natural logarithms of the roulette weight and of the survivor's weight gain 1 / ROULETTE_CHANCE.
+LOG_ROULETTE_WEIGHT = math.log(ROULETTE_WEIGHT)
+LOG_ROULETTE_GAIN = -math.log(ROULETTE_CHANCE)
+#: Margin (in log-weight) by which the roulette path bound errs early: the tracked log-weight may drift
+#: from log(w) by rounding (about 1e-15 per drop); a packet within this margin above the threshold has its
+#: weight evaluated once more than needed, never a test skipped.
+ROULETTE_LOG_MARGIN = 1.0e-9
 
 #: Fixed-point scale of the integer tallies: 2^32 per unit.
 FIXED_SCALE = 4294967296.0
@@ -111,8 +120,21 @@ def sample_azimuth(s0, s1):
             return (x * x - y * y) * inv, 2.0 * x * y * inv, s0, s1
 
 
-@njit(cache=True)
-def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
+@njit(cache=True, inline="always")
+def _roulette_path(mua, log_w):
+    """Path length (mm) after which a packet of log-weight ``log_w`` falls below ``ROULETTE_WEIGHT``.
+
+    ``w exp(-mua s) < ROULETTE_WEIGHT`` holds only for ``s > (log_w - ln ROULETTE_WEIGHT) / mua``; the
+    bound is lowered by ``ROULETTE_LOG_MARGIN`` so that rounding never hides a packet below the threshold
+    (the exact test on the flushed weight decides). Infinite without absorption.
+    """
+    if mua > 0.0:
+        return (log_w - LOG_ROULETTE_WEIGHT - ROULETTE_LOG_MARGIN) / mua
+    return _INF
+
+
+@njit(cache=True, error_model="numpy")
+def trace_photon(s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath):
     """Follow one packet from launch to exit or roulette end.
 
     Parameters
@@ -121,8 +143,10 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
         The photon's generator state.
     lay : ndarray (L, 8)
         Per-layer table: z_top, z_bot (mm), n, n above, n below, mu_a, mu_s (1/mm), g.
-    w0, ux0, uz0 : float
-        Launch weight and refracted launch direction (x and z components; y is 0).
+    w0, log_w0 : float
+        Launch weight and its natural logarithm.
+    ux0, uz0 : float
+        Refracted launch direction (x and z components; y is 0).
     path, absorbed, wpath : ndarray (L,)
         Scratch, overwritten: path length per layer (mm), weight absorbed per layer, and the sum of
         w * s over the layer's segments (mm; the exact weighted path where mu_a = 0).
@@ -130,14 +154,20 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
     Returns
     -------
     tuple
-        (side, weight, x_mm, y_mm, exit_cos, max_depth_mm): side 1 top, 2 bottom, 0 ended by roulette
-        (weight 0); exit_cos is the cosine of the exit direction in the ambient medium.
+        (side, weight, x_mm, y_mm, exit_cos, max_depth_mm, scatterings): side 1 top, 2 bottom, 0 ended by
+        roulette (weight 0); exit_cos is the cosine of the exit direction in the ambient medium;
+        scatterings counts the scattering events (spins).
 
     Notes
     -----
-    Hot-loop form: the current layer's constants live in locals (reloaded when the packet changes layer),
-    the boundary test compares ``tau |uz| < mu_s * distance`` without a division, and the azimuth comes
-    from a rejection sampler (no trigonometric call).
+    Drop per layer visit: the path travelled since the packet entered the layer (or since the last flush)
+    is summed in ``visit_mm`` and the weight ``w exp(-mu_a visit_mm)`` is evaluated once, when the packet
+    changes layer, leaves the stack or may have fallen below the roulette weight (tested on the path,
+    :func:`_roulette_path`, with the log-weight tracked alongside). The weight is the product of the same
+    exponential factors as per-segment decay, up to rounding, and the roulette decision is the exact test
+    ``w < ROULETTE_WEIGHT`` on the flushed weight. Hot-loop form: the current layer's constants live in
+    locals, the boundary test compares ``tau |uz| < mu_s * distance`` without a division, and the azimuth
+    comes from a rejection sampler (no trigonometric call).
 
     """
     n_layers = lay.shape[0]
@@ -153,13 +183,17 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
     uy = 0.0
     uz = uz0
     w = w0
+    log_w = log_w0
     zmax = 0.0
+    scatterings = 0
     # constants of the current layer
     z_top = lay[0, Z_TOP]
     z_bot = lay[0, Z_BOT]
     mus = lay[0, MU_S]
     mua = lay[0, MU_A]
     g = lay[0, G]
+    visit = 0.0  # path (mm) in this layer since the last drop
+    visit_limit = _roulette_path(mua, log_w)
     while True:
         # hop: scattering depth to spend before the next scattering event
         u, s0, s1 = uniform_open0(s0, s1)
@@ -172,32 +206,28 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
                 dist = z - z_top
                 auz = -uz
             if tau * auz < mus * dist:
-                # scatters inside this layer: move, drop
+                # scatters inside this layer: move
                 s = tau / mus
                 x += s * ux
                 y += s * uy
                 z += s * uz
-                wn = w * math.exp(-mua * s)
-                absorbed[layer] += w - wn
-                path[layer] += s
-                wpath[layer] += w * s
-                w = wn
+                visit += s
                 if z > zmax:
                     zmax = z
                 break
             if auz == 0.0:
                 # clear layer travelled exactly sideways: the packet never reaches a boundary
-                return SIDE_NONE, 0.0, x, y, 0.0, zmax
-            # move to the boundary, drop
+                wn = w * math.exp(-mua * visit)
+                absorbed[layer] += w - wn
+                path[layer] += visit
+                wpath[layer] += w * visit
+                return SIDE_NONE, 0.0, x, y, 0.0, zmax, scatterings
+            # move to the boundary
             db = dist / auz
             tau -= mus * db
             x += db * ux
             y += db * uy
-            wn = w * math.exp(-mua * db)
-            absorbed[layer] += w - wn
-            path[layer] += db
-            wpath[layer] += w * db
-            w = wn
+            visit += db
             if uz > 0.0:
                 z = z_bot
                 n_t = lay[layer, N_DOWN]
@@ -218,13 +248,22 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
             if reflect:
                 uz = -uz
                 continue
+            # drop: the layer visit ends
+            e = mua * visit
+            wn = w * math.exp(-e)
+            absorbed[layer] += w - wn
+            path[layer] += visit
+            wpath[layer] += w * visit
+            w = wn
+            log_w -= e
+            visit = 0.0
             if uz > 0.0:
                 if layer == n_layers - 1:
-                    return SIDE_BOTTOM, w, x, y, cos_t, zmax
+                    return SIDE_BOTTOM, w, x, y, cos_t, zmax, scatterings
                 layer += 1
             else:
                 if layer == 0:
-                    return SIDE_TOP, w, x, y, cos_t, zmax
+                    return SIDE_TOP, w, x, y, cos_t, zmax, scatterings
                 layer -= 1
             if n_i != n_t:
                 ratio = n_i / n_t
@@ -236,18 +275,31 @@ def trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath):
             mus = lay[layer, MU_S]
             mua = lay[layer, MU_A]
             g = lay[layer, G]
+            visit_limit = _roulette_path(mua, log_w)
         # spin
+        scatterings += 1
         u, s0, s1 = uniform(s0, s1)
         mu = hg_sample_mu(g, u)
         cos_phi, sin_phi, s0, s1 = sample_azimuth(s0, s1)
         ux, uy, uz = spin(ux, uy, uz, mu, cos_phi, sin_phi)
-        # roulette
-        if w < ROULETTE_WEIGHT:
-            u, s0, s1 = uniform(s0, s1)
-            if u < ROULETTE_CHANCE:
-                w = w / ROULETTE_CHANCE
-            else:
-                return SIDE_NONE, 0.0, x, y, 0.0, zmax
+        # roulette: only when the weight may have fallen below the threshold is it evaluated
+        if visit > visit_limit:
+            e = mua * visit
+            wn = w * math.exp(-e)
+            absorbed[layer] += w - wn
+            path[layer] += visit
+            wpath[layer] += w * visit
+            w = wn
+            log_w -= e
+            visit = 0.0
+            if w < ROULETTE_WEIGHT:
+                u, s0, s1 = uniform(s0, s1)
+                if u < ROULETTE_CHANCE:
+                    w = w / ROULETTE_CHANCE
+                    log_w += LOG_ROULETTE_GAIN
+                else:
+                    return SIDE_NONE, 0.0, x, y, 0.0, zmax, scatterings
+            visit_limit = _roulette_path(mua, log_w)
 
 
 @njit(cache=True, inline="always")
@@ -293,7 +345,7 @@ def _tally_photon(row, side, w, x, y, cos_exit, zmax, absorbed, ring_edges, cos_
         row[T_N_ENDED] += 1
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, error_model="numpy")
 def run_tallies(
     lay, w0, ux0, uz0, seed, first_photon, n_photons, n_chunks, ring_edges, cos_edges, inv_depth_mm
 ):
@@ -302,6 +354,7 @@ def run_tallies(
     Chunks run in parallel (prange); each photon's stream depends only on (seed, global index).
     """
     n_layers = lay.shape[0]
+    log_w0 = math.log(w0)
     size = N_SCALAR_TALLIES + 2 * n_layers + 2 * (ring_edges.size - 1) + 2 * (cos_edges.size - 1)
     out = np.zeros((n_chunks, size), dtype=np.int64)
     for c in prange(n_chunks):
@@ -313,12 +366,14 @@ def run_tallies(
         row = out[c]
         for i in range(start, stop):
             s0, s1 = photon_state(seed, np.uint64(first_photon + i))
-            side, w, x, y, cos_exit, zmax = trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath)
+            side, w, x, y, cos_exit, zmax, _ = trace_photon(
+                s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath
+            )
             _tally_photon(row, side, w, x, y, cos_exit, zmax, absorbed, ring_edges, cos_edges, inv_depth_mm)
     return out.sum(axis=0)
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, error_model="numpy")
 def run_tallies_records(
     lay,
     w0,
@@ -341,6 +396,7 @@ def run_tallies_records(
 ):
     """As :func:`run_tallies`, and store each photon's record at its local index (arrays of length n_photons)."""
     n_layers = lay.shape[0]
+    log_w0 = math.log(w0)
     size = N_SCALAR_TALLIES + 2 * n_layers + 2 * (ring_edges.size - 1) + 2 * (cos_edges.size - 1)
     out = np.zeros((n_chunks, size), dtype=np.int64)
     for c in prange(n_chunks):
@@ -352,7 +408,9 @@ def run_tallies_records(
         row = out[c]
         for i in range(start, stop):
             s0, s1 = photon_state(seed, np.uint64(first_photon + i))
-            side, w, x, y, cos_exit, zmax = trace_photon(s0, s1, lay, w0, ux0, uz0, path, absorbed, wpath)
+            side, w, x, y, cos_exit, zmax, _ = trace_photon(
+                s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath
+            )
             _tally_photon(row, side, w, x, y, cos_exit, zmax, absorbed, ring_edges, cos_edges, inv_depth_mm)
             for j in range(n_layers):
                 rec_path[i, j] = path[j]

@@ -106,8 +106,19 @@ def azimuth(stream: PhotonStream):
             return (x * x - y * y) * (1.0 / r2), 2.0 * x * y * (1.0 / r2)
 
 
+def _roulette_path(mu_a: float, log_w: float) -> float:
+    """Twin of :func:`matgen.transport.kernels._roulette_path` (mm)."""
+    if mu_a > 0.0:
+        return (log_w - K.LOG_ROULETTE_WEIGHT - K.ROULETTE_LOG_MARGIN) / mu_a
+    return math.inf
+
+
 def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: float):
-    """Follow one packet; returns (side, weight, x, y, exit_cos, zmax, path, absorbed, wpath)."""
+    """Follow one packet; returns (side, weight, x, y, exit_cos, zmax, path, absorbed, wpath, scatterings).
+
+    The weight decays per layer visit: the visit's path is summed and its exponential taken when the packet
+    leaves the layer or may have fallen below the roulette weight, as in the numba kernel.
+    """
     nl = len(layers)
     path = [0.0] * nl
     absorbed = [0.0] * nl
@@ -116,7 +127,23 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
     pos = [0.0, 0.0, 0.0]
     d = [ux0, 0.0, uz0]
     w = w0
+    log_w = math.log(w0)
     zmax = 0.0
+    n_scat = 0
+    visit = 0.0
+    limit = _roulette_path(layers[0]["mu_a"], log_w)
+
+    def drop():
+        nonlocal w, log_w, visit
+        e = layers[j]["mu_a"] * visit
+        wn = w * math.exp(-e)
+        absorbed[j] += w - wn
+        path[j] += visit
+        wpath[j] += w * visit
+        w = wn
+        log_w -= e
+        visit = 0.0
+
     while True:
         tau = -math.log(stream.uniform_open0())
         while True:
@@ -128,24 +155,17 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
             if tau * auz < lay["mu_s"] * dist:
                 s = tau / lay["mu_s"]
                 pos = [pos[0] + s * d[0], pos[1] + s * d[1], pos[2] + s * d[2]]
-                wn = w * math.exp(-lay["mu_a"] * s)
-                absorbed[j] += w - wn
-                path[j] += s
-                wpath[j] += w * s
-                w = wn
+                visit += s
                 zmax = max(zmax, pos[2])
                 break
             if auz == 0.0:
-                return 0, 0.0, pos[0], pos[1], 0.0, zmax, path, absorbed, wpath
+                drop()
+                return 0, 0.0, pos[0], pos[1], 0.0, zmax, path, absorbed, wpath, n_scat
             db = dist / auz
             tau -= lay["mu_s"] * db
             pos[0] += db * d[0]
             pos[1] += db * d[1]
-            wn = w * math.exp(-lay["mu_a"] * db)
-            absorbed[j] += w - wn
-            path[j] += db
-            wpath[j] += w * db
-            w = wn
+            visit += db
             going_down = d[2] > 0.0
             if going_down:
                 pos[2] = lay["z_bot"]
@@ -164,25 +184,32 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
             if reflect:
                 d[2] = -d[2]
                 continue
+            drop()
             if going_down:
                 if j == nl - 1:
-                    return 2, w, pos[0], pos[1], cos_t, zmax, path, absorbed, wpath
+                    return 2, w, pos[0], pos[1], cos_t, zmax, path, absorbed, wpath, n_scat
                 j += 1
             else:
                 if j == 0:
-                    return 1, w, pos[0], pos[1], cos_t, zmax, path, absorbed, wpath
+                    return 1, w, pos[0], pos[1], cos_t, zmax, path, absorbed, wpath, n_scat
                 j -= 1
             if lay["n"] != n_t:
                 ratio = lay["n"] / n_t
                 d = [d[0] * ratio, d[1] * ratio, cos_t if d[2] > 0.0 else -cos_t]
+            limit = _roulette_path(layers[j]["mu_a"], log_w)
+        n_scat += 1
         mu = hg_sample(layers[j]["g"], stream.uniform())
         cos_phi, sin_phi = azimuth(stream)
         d = spin(d, mu, cos_phi, sin_phi)
-        if w < K.ROULETTE_WEIGHT:
-            if stream.uniform() < K.ROULETTE_CHANCE:
-                w = w / K.ROULETTE_CHANCE
-            else:
-                return 0, 0.0, pos[0], pos[1], 0.0, zmax, path, absorbed, wpath
+        if visit > limit:
+            drop()
+            if w < K.ROULETTE_WEIGHT:
+                if stream.uniform() < K.ROULETTE_CHANCE:
+                    w = w / K.ROULETTE_CHANCE
+                    log_w += K.LOG_ROULETTE_GAIN
+                else:
+                    return 0, 0.0, pos[0], pos[1], 0.0, zmax, path, absorbed, wpath, n_scat
+            limit = _roulette_path(layers[j]["mu_a"], log_w)
 
 
 def _fixed(x: float) -> int:
@@ -246,7 +273,7 @@ def run_tallies(
     }
     for i in range(n_photons):
         stream = PhotonStream(int(seed), int(first_photon) + i)
-        side, w, x, y, cexit, zmax, path, absorbed, wpath = trace(stream, layers, w0, ux0, uz0)
+        side, w, x, y, cexit, zmax, path, absorbed, wpath, _ = trace(stream, layers, w0, ux0, uz0)
         for j in range(nl):
             if absorbed[j] > 0.0:
                 tally[layout["absorbed"] + j] += _fixed(absorbed[j])

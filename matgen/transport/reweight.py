@@ -58,6 +58,10 @@ __all__ = ["reweight", "ReweightedResults", "PhotonRecords"]
 BLOCK_PHOTONS = 8192
 #: Absorption sets handled per kernel call (bounds the memory of partial sums).
 SETS_PER_BATCH = 64
+#: Up to this many sets the set-major kernel is used (bit-identical sums; faster for few sets).
+FEW_SETS = 4
+#: Bin layouts whose per-photon preparation is cached on a records object.
+PREPARED_CACHE_ENTRIES = 2
 
 # scalar accumulators per set
 _RD, _RD2, _TT, _TT2, _DA, _DA2, _DAW = range(7)
@@ -153,6 +157,87 @@ def _reweight_kernel(
     return out
 
 
+@njit(cache=True, parallel=True, error_model="numpy")
+def _reweight_kernel_few(
+    path, wpath, weight, side, ring_bin, cos_bin, depth_frac, dmu_t, mu_t, launch_w, n_blocks, n_rings, n_cos
+):
+    """Set-major twin of :func:`_reweight_kernel` for a few absorption sets (same arguments, same sums).
+
+    Each block of photons is read once per set and the per-photon arithmetic is the photon-major kernel's,
+    in the same order, so every partial sum is bit-identical to it; without the short loops over sets per
+    photon it costs about as much per set as the photon-major kernel does with many sets.
+    """
+    n = weight.size
+    n_layers = path.shape[1]
+    n_sets = dmu_t.shape[1]
+    o_abs = _NS
+    o_ring = o_abs + 2 * n_layers
+    o_cos = o_ring + 2 * n_rings
+    size = o_cos + 2 * n_cos
+    out = np.zeros((n_blocks, size, n_sets), dtype=np.float64)
+    for b in prange(n_blocks):
+        start = b * BLOCK_PHOTONS
+        stop = min(n, start + BLOCK_PHOTONS)
+        acc = out[b]
+        ab = np.empty(2 * n_layers)
+        for k in range(n_sets):
+            # scalar sums in registers, in photon order: the same additions as the photon-major kernel
+            rd = rd2 = tt = tt2 = da = da2 = daw = 0.0
+            for j in range(2 * n_layers):
+                ab[j] = 0.0
+            for i in range(start, stop):
+                sd = side[i]
+                wp = 0.0
+                if sd != 0:
+                    e = 0.0
+                    for j in range(n_layers):
+                        e += dmu_t[j, k] * np.float64(path[i, j])
+                    wp = np.float64(weight[i]) * math.exp(-e)
+                    wp2 = wp * wp
+                    if sd == 1:
+                        rd += wp
+                        rd2 += wp2
+                        a = wp * np.float64(depth_frac[i])
+                        da += a
+                        da2 += a * a
+                        daw += a * wp
+                        rb = ring_bin[i]
+                        if rb >= 0:
+                            acc[o_ring + rb, k] += wp
+                            acc[o_ring + n_rings + rb, k] += wp2
+                        cb = cos_bin[i]
+                        if cb >= 0:
+                            acc[o_cos + cb, k] += wp
+                            acc[o_cos + n_cos + cb, k] += wp2
+                    else:
+                        tt += wp
+                        tt2 += wp2
+                f = 0.0
+                for j in range(n_layers):
+                    f += mu_t[j, k] * np.float64(wpath[i, j])
+                a = launch_w - wp
+                if f > 0.0:
+                    f = a / f
+                else:
+                    f = 0.0
+                    ab[0] += a
+                    ab[n_layers] += a * a
+                for j in range(n_layers):
+                    aj = f * mu_t[j, k] * np.float64(wpath[i, j])
+                    ab[j] += aj
+                    ab[n_layers + j] += aj * aj
+            acc[_RD, k] = rd
+            acc[_RD2, k] = rd2
+            acc[_TT, k] = tt
+            acc[_TT2, k] = tt2
+            acc[_DA, k] = da
+            acc[_DA2, k] = da2
+            acc[_DAW, k] = daw
+            for j in range(2 * n_layers):
+                acc[o_abs + j, k] = ab[j]
+    return out
+
+
 @dataclass
 class ReweightedResults:
     """Tallies for K absorption sets from one set of photon records (see :func:`reweight`).
@@ -185,7 +270,7 @@ class ReweightedResults:
         return int(self.diffuse_reflectance.size)
 
     def result(self, k: int) -> TransportResult:
-        """The tallies of absorption set ``k`` as a :class:`TransportResult`."""
+        """Return the tallies of absorption set ``k`` as a :class:`TransportResult`."""
         k = int(k)
         if not 0 <= k < len(self):
             raise ParameterError(f"absorption set index {k} outside [0, {len(self) - 1}]")
@@ -209,6 +294,35 @@ class ReweightedResults:
             ),
             extra={"mu_a": self.mu_a_sets[k].tolist(), "reweighted": True, **self.extra},
         )
+
+
+def prepared_bins(records: PhotonRecords, rings: np.ndarray, coss: np.ndarray, depth_scale: float):
+    """Ring bin, exit-cosine bin (int32, -1 outside) and depth fraction (float64) of every photon, cached.
+
+    The preparation does not depend on the absorption sets, so it is kept on the records object (keyed on
+    the bin edges, the depth scale and the identity of the arrays it reads) and later calls with the same
+    bins reuse it. The key is the bin edges and depth scale; an entry is used only while the records still
+    hold the very arrays it was made from (replacing an array invalidates it; records are not edited in
+    place). The cache holds 16 bytes per photon for each of at most :data:`PREPARED_CACHE_ENTRIES` bin
+    layouts.
+    """
+    sources = (records.exit_radius_mm, records.exit_cos, records.max_depth_mm)
+    key = (rings.tobytes(), coss.tobytes(), float(depth_scale))
+    cache = records.__dict__.setdefault("_prepared_bins", {})
+    hit = cache.get(key)
+    # the entry holds its source arrays, so their identities cannot be reused by other arrays
+    if hit is not None and all(a is b for a, b in zip(hit[0], sources, strict=True)):
+        return hit[1]
+    prepared = (
+        _bins(rings, records.exit_radius_mm.astype(np.float64), include_last=False),
+        _bins(coss, records.exit_cos.astype(np.float64), include_last=True),
+        np.minimum(records.max_depth_mm.astype(np.float64) / depth_scale, 1.0),
+    )
+    cache.pop(key, None)
+    while len(cache) >= PREPARED_CACHE_ENTRIES:
+        cache.pop(next(iter(cache)))
+    cache[key] = (sources, prepared)
+    return prepared
 
 
 def _bins(edges: np.ndarray, values: np.ndarray, include_last: bool) -> np.ndarray:
@@ -272,19 +386,18 @@ def reweight(
     n = records.photons
     meta = records.meta
     depth_scale = float(meta["depth_scale_mm"])
-    ring_bin = _bins(rings, records.exit_radius_mm.astype(np.float64), include_last=False)
-    cos_bin = _bins(coss, records.exit_cos.astype(np.float64), include_last=True)
-    depth_frac = np.minimum(records.max_depth_mm.astype(np.float64) / depth_scale, 1.0)
+    ring_bin, cos_bin, depth_frac = prepared_bins(records, rings, coss, depth_scale)
     dmu = mu - records.mu_a_ref[None, :]
     n_blocks = max(1, -(-n // BLOCK_PHOTONS))
     n_rings, n_cos = rings.size - 1, coss.size - 1
     launch_w = float(meta["launch_weight"])
     parts = []
+    kernel = _reweight_kernel_few if mu.shape[0] <= FEW_SETS else _reweight_kernel
     old = numba.get_num_threads()
     numba.set_num_threads(nthreads)
     try:
         for s in range(0, mu.shape[0], SETS_PER_BATCH):
-            part = _reweight_kernel(
+            part = kernel(
                 records.path_mm,
                 records.weighted_path_mm,
                 records.weight,
