@@ -397,3 +397,59 @@ def read_text_limited(path, what: str = "input file") -> str:
         return data.decode("utf-8")
     except UnicodeDecodeError as exc:
         raise ConfigError(f"{what} '{path}' is not UTF-8 text (byte {exc.start}: {exc.reason})") from None
+
+
+#: Most decimal digits of a whole number in a JSON input (a 64-bit integer has at most 20).
+MAX_JSON_INT_DIGITS = 20
+
+
+def loads_json_checked(text: str, what: str):
+    """Parse JSON text, refusing what no matgen input holds: NaN / Infinity tokens, numbers that overflow.
+
+    Python's parser accepts ``NaN``, ``Infinity``, ``1e400`` (read as infinity) and integers of any size
+    (``10^400`` then overflows every later ``float()``); each is refused here with :class:`ConfigError`
+    naming ``what`` and the token.
+
+    Parameters
+    ----------
+    text : str
+        The JSON text.
+    what : str
+        The file and its role, for messages ("stack file 'a.json'").
+
+    Returns
+    -------
+    object
+        The parsed document.
+
+    Raises
+    ------
+    ConfigError
+        On invalid JSON, a non-finite or overflowing number, or nesting too deep to parse.
+
+    """
+    import json
+    import math
+
+    def bad_constant(token):
+        raise ConfigError(f"{what}: the number {token} is not finite; give a finite number")
+
+    def parse_float(token):
+        v = float(token)
+        if not math.isfinite(v):
+            bad_constant(token if len(token) < 40 else token[:37] + "...")
+        return v
+
+    def parse_int(token):
+        if len(token.lstrip("-")) > MAX_JSON_INT_DIGITS:
+            raise ConfigError(
+                f"{what}: a whole number of {len(token.lstrip('-'))} digits; at most {MAX_JSON_INT_DIGITS}"
+            )
+        return int(token)
+
+    try:
+        return json.loads(text, parse_constant=bad_constant, parse_float=parse_float, parse_int=parse_int)
+    except json.JSONDecodeError as exc:
+        raise ConfigError(f"{what} is not valid JSON ({exc.msg}, line {exc.lineno})") from None
+    except RecursionError:
+        raise ConfigError(f"{what}: JSON nested too deeply") from None

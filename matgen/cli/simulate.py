@@ -14,6 +14,7 @@ from __future__ import annotations
 import json
 import math
 
+from matgen import limits
 from matgen.cli import add_command
 from matgen.errors import ConfigError, StackError
 from matgen.limits import read_text_limited
@@ -58,7 +59,7 @@ def load_stacks(path):
 
     text = read_text_limited(path, "stack file")
     try:
-        doc = json.loads(text)
+        doc = limits.loads_json_checked(text, f"stack file '{path}'")
     except json.JSONDecodeError as exc:
         raise ConfigError(f"stack file '{path}' is not valid JSON: {exc}") from None
     except RecursionError:  # nesting deeper than the parser's stack

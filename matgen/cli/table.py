@@ -1,6 +1,7 @@
 """``matgen table``: build, plan, run-task, merge, info and plot lookup tables.
 
-Exit statuses (also for farm schedulers): 0 done; 1 a QA threshold of ``info`` failed; 2 an error (bad spec,
+Exit statuses (also for farm schedulers): 0 done; 1 a QA threshold of ``info`` failed, or ``status`` found
+tasks missing or corrupt; 2 an error (bad spec,
 job folder of another spec or code version, incomplete or corrupt job, unreachable scheduler), with one
 message on standard error; 75 (``run-task --no-wait``) the task is being run by another live process: retry
 later; 130 interrupted.
@@ -16,6 +17,8 @@ from matgen.errors import LockError, ParameterError
 
 #: Exit status of ``run-task --no-wait`` when another process holds the task (EX_TEMPFAIL of sysexits.h).
 EXIT_BUSY = 75
+#: Exit status of ``table status`` when any task is missing or corrupt (the job is not ready to merge).
+EXIT_NOT_DONE = 1
 
 
 def register(sub):
@@ -235,7 +238,7 @@ def _status(args):
         for s in states:
             if s.state != "done":
                 print(f"  task {s.index}: {s.state} ({s.reason})")
-    return 0
+    return 0 if counts["done"] == len(states) else EXIT_NOT_DONE
 
 
 def _load(file):
