@@ -138,6 +138,18 @@ def add_command(sub, name: str, help_text: str, example: str, description: str |
     return p
 
 
+def print_json(doc) -> None:
+    """Print a command's result as one strict JSON document on standard output (``--json``)."""
+    from matgen.fsutil import strict_json
+
+    print(strict_json(doc, "the command's JSON result", indent=1))
+
+
+def warn(command: str, message: str) -> None:
+    """Report a warning collected during a command through the log (level WARNING)."""
+    _log.warning("%s", message)
+
+
 def _say(command: str | None, text: str) -> None:
     """One line on standard error (through the log in JSON format, so a farm's collector sees one form)."""
     from matgen.cli.logs import log_format
