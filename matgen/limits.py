@@ -331,6 +331,36 @@ def check_count(n, name: str, what: str) -> int:
     return v
 
 
+def not_a_file(path) -> str | None:
+    """Return why ``path`` cannot be read as a regular file, or None when it is one.
+
+    The reason reads "does not exist", "is a folder, not a regular file", "is a named pipe (FIFO), not a
+    regular file" and so on; it is found before anything opens the path (opening a FIFO blocks until a
+    writer comes).
+    """
+    import stat
+
+    p = Path(path)
+    try:
+        mode = p.stat().st_mode
+    except FileNotFoundError:
+        return "does not exist" if not p.is_symlink() else "is a broken symbolic link"
+    except OSError as exc:
+        return f"cannot be read ({exc.strerror or exc})"
+    if stat.S_ISREG(mode):
+        return None
+    for test, kind in (
+        (stat.S_ISDIR, "is a folder"),
+        (stat.S_ISFIFO, "is a named pipe (FIFO)"),
+        (stat.S_ISCHR, "is a character device"),
+        (stat.S_ISBLK, "is a block device"),
+        (stat.S_ISSOCK, "is a socket"),
+    ):
+        if test(mode):
+            return f"{kind}, not a regular file"
+    return "is not a regular file"
+
+
 def check_file_size(path, what: str = "input file", text: bool = False) -> int:
     """Check a file's size on disk before reading it whole.
 
@@ -358,12 +388,13 @@ def check_file_size(path, what: str = "input file", text: bool = False) -> int:
 
     """
     p = Path(path)
+    why = not_a_file(p)
+    if why is not None:
+        raise ConfigError(f"{what} '{p}' {why}")
     try:
         st = p.stat()
     except OSError as exc:
         raise ConfigError(f"cannot read {what} '{p}': {exc.strerror or exc}") from None
-    if not p.is_file():
-        raise ConfigError(f"{what} '{p}' is not a regular file")
     _exceeds("text_bytes" if text else "file_bytes", st.st_size, f"the size of {what} '{p}'")
     return int(st.st_size)
 

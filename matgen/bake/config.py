@@ -34,7 +34,7 @@ import jsonschema
 
 from matgen.errors import ConfigError
 from matgen.fsutil import resolve_inside
-from matgen.limits import read_text_limited
+from matgen.limits import not_a_file, read_text_limited
 
 #: Token in a map name that stands for the UDIM tile number (1001 + u + 10 v).
 UDIM_TOKEN = "<UDIM>"
@@ -427,8 +427,9 @@ def load_config(path, *, allow_outside: bool = False) -> BakeConfig:
 
     """
     path = Path(path)
-    if not path.is_file():
-        raise ConfigError(f"material config {path} does not exist")
+    why = not_a_file(path)
+    if why is not None:
+        raise ConfigError(f"material config {path} {why}")
     text = read_text_limited(path, "material config")
     try:
         data = tomllib.loads(text)
