@@ -24,8 +24,6 @@ name                   default          environment variable            meaning
 ``axis_points``        100000           ``MATGEN_MAX_AXIS_POINTS``      points of one table axis (checked before
                                                                         the axis or its grid is allocated)
 ``demo_side``          8192             ``MATGEN_MAX_DEMO_SIDE``        side of the demo's maps (texels)
-``simulate_steps``     100000           ``MATGEN_MAX_SIMULATE_STEPS``   interaction steps of one photon in
-                                                                        ``matgen simulate`` before it is stopped
 ``photons``            2000000000       ``MATGEN_MAX_PHOTONS``          photon packets of one transport run
                                                                         (:data:`matgen.constants.MAX_PHOTONS`)
 ``file_bytes``         17179869184      ``MATGEN_MAX_FILE_BYTES``       size of a binary input file (table,
@@ -62,7 +60,6 @@ DEFAULTS: dict[str, tuple[int, str, str]] = {
     "table_entries": (1_000_000_000, "MATGEN_MAX_TABLE_ENTRIES", "entries"),
     "axis_points": (100_000, "MATGEN_MAX_AXIS_POINTS", "points"),
     "demo_side": (8192, "MATGEN_MAX_DEMO_SIDE", "texels"),
-    "simulate_steps": (100_000, "MATGEN_MAX_SIMULATE_STEPS", "steps"),
     "photons": (MAX_PHOTONS, "MATGEN_MAX_PHOTONS", "photons"),
     "file_bytes": (16 << 30, "MATGEN_MAX_FILE_BYTES", "bytes"),
     "text_bytes": (64 << 20, "MATGEN_MAX_TEXT_BYTES", "bytes"),
