@@ -21,6 +21,9 @@ name                   default          environment variable            meaning
                                                                         be 9999 tiles)
 ``table_entries``      1000000000       ``MATGEN_MAX_TABLE_ENTRIES``    values of one table quantity or grid
                                                                         (grid points x channels)
+``axis_points``        100000           ``MATGEN_MAX_AXIS_POINTS``      points of one table axis (checked before
+                                                                        the axis or its grid is allocated)
+``demo_side``          8192             ``MATGEN_MAX_DEMO_SIDE``        side of the demo's maps (texels)
 ``photons``            2000000000       ``MATGEN_MAX_PHOTONS``          photon packets of one transport run
                                                                         (:data:`matgen.constants.MAX_PHOTONS`)
 ``file_bytes``         17179869184      ``MATGEN_MAX_FILE_BYTES``       size of a binary input file (table,
@@ -55,6 +58,8 @@ DEFAULTS: dict[str, tuple[int, str, str]] = {
     "image_bytes": (8 << 30, "MATGEN_MAX_IMAGE_BYTES", "bytes"),
     "udim_tiles": (10000, "MATGEN_MAX_UDIM_TILES", "tiles"),
     "table_entries": (1_000_000_000, "MATGEN_MAX_TABLE_ENTRIES", "entries"),
+    "axis_points": (100_000, "MATGEN_MAX_AXIS_POINTS", "points"),
+    "demo_side": (8192, "MATGEN_MAX_DEMO_SIDE", "texels"),
     "photons": (MAX_PHOTONS, "MATGEN_MAX_PHOTONS", "photons"),
     "file_bytes": (16 << 30, "MATGEN_MAX_FILE_BYTES", "bytes"),
     "text_bytes": (64 << 20, "MATGEN_MAX_TEXT_BYTES", "bytes"),
@@ -323,6 +328,36 @@ def check_count(n, name: str, what: str) -> int:
     return v
 
 
+def not_a_file(path) -> str | None:
+    """Return why ``path`` cannot be read as a regular file, or None when it is one.
+
+    The reason reads "does not exist", "is a folder, not a regular file", "is a named pipe (FIFO), not a
+    regular file" and so on; it is found before anything opens the path (opening a FIFO blocks until a
+    writer comes).
+    """
+    import stat
+
+    p = Path(path)
+    try:
+        mode = p.stat().st_mode
+    except FileNotFoundError:
+        return "does not exist" if not p.is_symlink() else "is a broken symbolic link"
+    except OSError as exc:
+        return f"cannot be read ({exc.strerror or exc})"
+    if stat.S_ISREG(mode):
+        return None
+    for test, kind in (
+        (stat.S_ISDIR, "is a folder"),
+        (stat.S_ISFIFO, "is a named pipe (FIFO)"),
+        (stat.S_ISCHR, "is a character device"),
+        (stat.S_ISBLK, "is a block device"),
+        (stat.S_ISSOCK, "is a socket"),
+    ):
+        if test(mode):
+            return f"{kind}, not a regular file"
+    return "is not a regular file"
+
+
 def check_file_size(path, what: str = "input file", text: bool = False) -> int:
     """Check a file's size on disk before reading it whole.
 
@@ -350,12 +385,13 @@ def check_file_size(path, what: str = "input file", text: bool = False) -> int:
 
     """
     p = Path(path)
+    why = not_a_file(p)
+    if why is not None:
+        raise ConfigError(f"{what} '{p}' {why}")
     try:
         st = p.stat()
     except OSError as exc:
         raise ConfigError(f"cannot read {what} '{p}': {exc.strerror or exc}") from None
-    if not p.is_file():
-        raise ConfigError(f"{what} '{p}' is not a regular file")
     _exceeds("text_bytes" if text else "file_bytes", st.st_size, f"the size of {what} '{p}'")
     return int(st.st_size)
 
@@ -397,3 +433,59 @@ def read_text_limited(path, what: str = "input file") -> str:
         return data.decode("utf-8")
     except UnicodeDecodeError as exc:
         raise ConfigError(f"{what} '{path}' is not UTF-8 text (byte {exc.start}: {exc.reason})") from None
+
+
+#: Most decimal digits of a whole number in a JSON input (a 64-bit integer has at most 20).
+MAX_JSON_INT_DIGITS = 20
+
+
+def loads_json_checked(text: str, what: str):
+    """Parse JSON text, refusing what no matgen input holds: NaN / Infinity tokens, numbers that overflow.
+
+    Python's parser accepts ``NaN``, ``Infinity``, ``1e400`` (read as infinity) and integers of any size
+    (``10^400`` then overflows every later ``float()``); each is refused here with :class:`ConfigError`
+    naming ``what`` and the token.
+
+    Parameters
+    ----------
+    text : str
+        The JSON text.
+    what : str
+        The file and its role, for messages ("stack file 'a.json'").
+
+    Returns
+    -------
+    object
+        The parsed document.
+
+    Raises
+    ------
+    ConfigError
+        On invalid JSON, a non-finite or overflowing number, or nesting too deep to parse.
+
+    """
+    import json
+    import math
+
+    def bad_constant(token):
+        raise ConfigError(f"{what}: the number {token} is not finite; give a finite number")
+
+    def parse_float(token):
+        v = float(token)
+        if not math.isfinite(v):
+            bad_constant(token if len(token) < 40 else token[:37] + "...")
+        return v
+
+    def parse_int(token):
+        if len(token.lstrip("-")) > MAX_JSON_INT_DIGITS:
+            raise ConfigError(
+                f"{what}: a whole number of {len(token.lstrip('-'))} digits; at most {MAX_JSON_INT_DIGITS}"
+            )
+        return int(token)
+
+    try:
+        return json.loads(text, parse_constant=bad_constant, parse_float=parse_float, parse_int=parse_int)
+    except json.JSONDecodeError as exc:
+        raise ConfigError(f"{what} is not valid JSON ({exc.msg}, line {exc.lineno})") from None
+    except RecursionError:
+        raise ConfigError(f"{what}: JSON nested too deeply") from None

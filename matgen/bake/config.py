@@ -24,6 +24,7 @@ Example (the documented one is ``scenes/low_tide_lantern/material.toml``)::
 from __future__ import annotations
 
 import json
+import math
 import tomllib
 from dataclasses import dataclass, field
 from importlib import resources
@@ -33,7 +34,7 @@ import jsonschema
 
 from matgen.errors import ConfigError
 from matgen.fsutil import resolve_inside
-from matgen.limits import read_text_limited
+from matgen.limits import not_a_file, read_text_limited
 
 #: Token in a map name that stands for the UDIM tile number (1001 + u + 10 v).
 UDIM_TOKEN = "<UDIM>"
@@ -54,6 +55,18 @@ DEFAULT_TARGETS = ("openpbr",)
 DEFAULT_PASSES = ("uv365", "nir850")
 #: Default band subset of the spectral stacks: 31 visible bands (centres 400-700 nm every 10 nm).
 DEFAULT_SPECTRAL_BANDS = "400:700:10"
+
+#: Allowed metres per scene unit, m: a micrometre to a kilometre per unit (scenes in mm, cm, inches and m
+#: lie well inside; outside, mean free paths in scene units overflow half floats or round to zero).
+METRES_PER_SCENE_UNIT_RANGE = (1e-6, 1e3)
+#: Largest magnitude of any number in a config (parameter values, encoding ranges), in the field's unit.
+#: Every skin parameter is a fraction, a thickness scale or a radius of order 1; 1e6 leaves room for any unit.
+MAX_CONFIG_MAGNITUDE = 1e6
+#: Smallest span hi - lo of a linear encoding range, in the field's unit: below it, neighbouring map values
+#: (half floats step 2^-11 near 1) decode to the same parameter value.
+MIN_RANGE_SPAN = 1e-9
+#: Largest whole number a config may hold (channel indices, UDIM tiles): a C int.
+MAX_CONFIG_INT = 2**31 - 1
 
 
 def _schema() -> dict:
@@ -190,6 +203,83 @@ class BakeConfig:
         return any(p.is_udim for p in self.parameters)
 
 
+def _field(path: tuple) -> str:
+    return ".".join(str(p) for p in path) or "(top level)"
+
+
+def check_numbers(data, where: str, path: tuple = ()) -> None:
+    """Refuse any non-finite or absurdly large number anywhere in a config mapping, naming its field.
+
+    TOML reads ``nan``, ``inf`` and ``1e400`` (= inf) as floats and integers of any size; JSON schema's
+    ``exclusiveMinimum`` lets NaN through. Floats must be finite with magnitude at most
+    :data:`MAX_CONFIG_MAGNITUDE`, integers within +-:data:`MAX_CONFIG_INT`.
+
+    Raises
+    ------
+    ConfigError
+        Naming the file and the field.
+
+    """
+    if isinstance(data, dict):
+        for k, v in data.items():
+            check_numbers(v, where, path + (k,))
+    elif isinstance(data, (list, tuple)):
+        for i, v in enumerate(data):
+            check_numbers(v, where, path + (i,))
+    elif isinstance(data, bool):
+        return
+    elif isinstance(data, int):
+        if abs(data) > MAX_CONFIG_INT:
+            text = str(data) if data.bit_length() < 200 else f"a {data.bit_length()}-bit integer"
+            raise ConfigError(
+                f"{where}: field '{_field(path)}' is {text}; whole numbers must lie within +-{MAX_CONFIG_INT}"
+            )
+    elif isinstance(data, float):
+        if not math.isfinite(data):
+            raise ConfigError(f"{where}: field '{_field(path)}' is {data!r}; numbers must be finite")
+        if abs(data) > MAX_CONFIG_MAGNITUDE:
+            raise ConfigError(
+                f"{where}: field '{_field(path)}' is {data!r}; numbers must lie within "
+                f"+-{MAX_CONFIG_MAGNITUDE:g}"
+            )
+
+
+def pass_name(entry: str) -> str:
+    """Name of a camera pass entry: a built-in name itself, or the stem of a ``.csv`` response file."""
+    return Path(entry).stem if entry.lower().endswith(".csv") else entry
+
+
+def _check_outputs(outputs: OutputOptions, where: str) -> None:
+    """Refuse colliding pass names (each pass is one file, ``passes/<name>.exr``) and bakes of nothing."""
+    seen: dict = {}
+    for entry in outputs.passes:
+        name = pass_name(entry)
+        key = name.lower()  # case-insensitive file systems would give two such passes one file
+        if key in seen:
+            raise ConfigError(
+                f"{where}: field 'outputs.passes': '{entry}' and '{seen[key]}' both make pass '{name}' "
+                f"(file passes/{name}.exr); give each pass a distinct name"
+            )
+        if not name or name in (".", "..") or "/" in name or "\\" in name:
+            raise ConfigError(f"{where}: field 'outputs.passes': '{entry}' gives no usable pass name")
+        seen[key] = entry
+    if not (outputs.spectral or outputs.rgb or outputs.targets or outputs.passes or outputs.qa):
+        raise ConfigError(
+            f"{where}: field 'outputs': every output list is empty and qa is off, so the bake would write "
+            "no texture; ask for at least one of spectral, rgb, targets, passes or qa"
+        )
+
+
+def _check_scene(scene: dict, where: str) -> float:
+    lo, hi = METRES_PER_SCENE_UNIT_RANGE
+    m = float(scene.get("metres_per_scene_unit", 0.01))
+    if not lo <= m <= hi:
+        raise ConfigError(
+            f"{where}: field 'scene.metres_per_scene_unit' is {m!r}; allowed {lo:g} .. {hi:g} m per unit"
+        )
+    return m
+
+
 def _check_schema(data: dict, where: str) -> None:
     validator = jsonschema.Draft202012Validator(_schema())
     errors = sorted(validator.iter_errors(data), key=lambda e: list(e.absolute_path))
@@ -229,6 +319,7 @@ def config_from_dict(
     """
     if not isinstance(data, dict):
         raise ConfigError(f"{where}: the config must be a table of keys")
+    check_numbers(data, where)
     _check_schema(data, where)
     base_dir = Path(base_dir)
     params = []
@@ -245,8 +336,11 @@ def config_from_dict(
                     f"{where}: field 'parameters.{name}': a linear encoding needs range = [lo, hi]"
                 )
             lo, hi = (float(x) for x in entry["range"])
-            if not hi > lo:
-                raise ConfigError(f"{where}: field 'parameters.{name}.range': need lo < hi; got [{lo}, {hi}]")
+            if not hi - lo >= MIN_RANGE_SPAN:
+                raise ConfigError(
+                    f"{where}: field 'parameters.{name}.range': need lo < hi with hi - lo >= "
+                    f"{MIN_RANGE_SPAN:g}; got [{lo!r}, {hi!r}]"
+                )
             rng = (lo, hi)
         else:
             if "range" in entry:
@@ -299,12 +393,13 @@ def config_from_dict(
         compression=exr.get("compression", "zip"),
         texture=bool(exr.get("texture", False)),
     )
+    _check_outputs(outputs, where)
     tiles = inp.get("udim_tiles")
     return BakeConfig(
         name=data.get("name", "material"),
         base_dir=base_dir,
         table_path=table,
-        metres_per_scene_unit=float(scene.get("metres_per_scene_unit", 0.01)),
+        metres_per_scene_unit=_check_scene(scene, where),
         working_space=scene.get("working_space"),
         illuminant=scene.get("illuminant"),
         parameters=tuple(params),
@@ -332,8 +427,9 @@ def load_config(path, *, allow_outside: bool = False) -> BakeConfig:
 
     """
     path = Path(path)
-    if not path.is_file():
-        raise ConfigError(f"material config {path} does not exist")
+    why = not_a_file(path)
+    if why is not None:
+        raise ConfigError(f"material config {path} {why}")
     text = read_text_limited(path, "material config")
     try:
         data = tomllib.loads(text)

@@ -19,7 +19,7 @@ import OpenImageIO as oiio
 
 from matgen.bake.config import UDIM_TOKEN
 from matgen.errors import ColourSpaceWarning, ImageError
-from matgen.limits import check_count, check_image_dims
+from matgen.limits import check_count, check_image_dims, not_a_file
 
 
 def oiio_error_text(source=None) -> str:
@@ -68,7 +68,13 @@ def _where(path, tile) -> str:
 
 @dataclass(frozen=True)
 class MapInfo:
-    """Header facts of one map file: size in texels, channel count, pixel format, colour-space tag."""
+    """Header facts of one map file: size in texels, channel count, pixel format, colour-space tag.
+
+    ``width`` x ``height`` is the display window (the texture's UV square); ``data_x`` / ``data_y`` are its
+    origin's offset inside the stored data window (0 for most files), ``tile_height`` the height of the
+    file's tiles (0 for a scanline file), ``data_width`` the stored rows' width and ``data_origin`` the
+    data window's (x, y, z) origin, as OpenImageIO reads them.
+    """
 
     path: Path
     tile: int | None
@@ -77,33 +83,69 @@ class MapInfo:
     nchannels: int
     format: str
     colorspace: str
+    data_x: int = 0
+    data_y: int = 0
+    data_width: int = 0
+    data_height: int = 0
+    tile_height: int = 0
+    data_origin: tuple = (0, 0, 0)
+
+
+def _display_window(spec, path, what: str) -> tuple:
+    """(width, height, offset x, offset y) of the display window inside the data window; refuse a gap."""
+    fw, fh = int(spec.full_width), int(spec.full_height)
+    if fw <= 0 or fh <= 0:  # no display window recorded: the data window is the image
+        return int(spec.width), int(spec.height), 0, 0
+    ox, oy = int(spec.full_x) - int(spec.x), int(spec.full_y) - int(spec.y)
+    if ox < 0 or oy < 0 or ox + fw > int(spec.width) or oy + fh > int(spec.height):
+        raise ImageError(
+            f"{what} {path}: its data window ({spec.x}, {spec.y}) + {spec.width} x {spec.height} does not "
+            f"cover its display window ({spec.full_x}, {spec.full_y}) + {fw} x {fh}; texels outside the "
+            "data window hold no value: write the map with a data window covering the display window"
+        )
+    return fw, fh, ox, oy
 
 
 def map_info(path, tile=None, *, channel: int = 0, what: str = "map") -> MapInfo:
     """Open a map's header and check it can feed channel ``channel``.
 
+    Scanline and tiled files (mip-mapped ones are read at their full-resolution level) are accepted; the map
+    is the display window, which the data window must cover (an offset data window is fine).
+
     Raises
     ------
     ImageError
-        If the file is missing or unreadable, too large, or has too few channels.
+        If the file is missing, not a regular file (a folder, a FIFO), unreadable, too large, has too few
+        channels, or its data window leaves part of its display window without values.
 
     """
     path = Path(path)
-    if not path.is_file():
-        raise ImageError(f"{what} {_where(path, tile)} does not exist")
+    why = not_a_file(path)
+    if why is not None:
+        raise ImageError(f"{what} {_where(path, tile)} {why}")
     inp = oiio.ImageInput.open(str(path))
     if inp is None:
         raise ImageError(f"{what} {_where(path, tile)} cannot be read by OpenImageIO: {oiio_error_text()}")
     try:
         spec = inp.spec()
+        check_image_dims(max(int(spec.width), 1), max(int(spec.height), 1), 1, path=_where(path, tile))
+        if int(spec.depth) > 1:
+            raise ImageError(f"{what} {_where(path, tile)} is a volume ({spec.depth} slices); give a 2D map")
+        fw, fh, ox, oy = _display_window(spec, _where(path, tile), what)
         info = MapInfo(
             path,
             tile,
-            int(spec.width),
-            int(spec.height),
+            fw,
+            fh,
             int(spec.nchannels),
             str(spec.format),
             str(spec.get_string_attribute("oiio:ColorSpace", "")),
+            data_x=ox,
+            data_y=oy,
+            data_width=int(spec.width),
+            data_height=int(spec.height),
+            tile_height=int(spec.tile_height) if int(spec.tile_width) > 0 else 0,
+            data_origin=(int(spec.x), int(spec.y), int(spec.z)),
         )
     finally:
         inp.close()
@@ -168,17 +210,32 @@ class MapReader:
             self._inp = None
 
     def _read_source_rows(self, y0: int, y1: int) -> np.ndarray:
-        inp = self._inp
+        """Rows ``y0 .. y1-1`` of the map's display window, float32 (scanline or tiled file)."""
+        inp, info, ch = self._inp, self.info, self.channel
         if inp is None:
-            raise ImageError(f"{self.what} {self.info.path} is not open")
-        data = inp.read_scanlines(0, 0, y0, y1, 0, self.channel, self.channel + 1, oiio.FLOAT)
-        if data is None or not isinstance(data, np.ndarray) or data.size != (y1 - y0) * self.info.width:
+            raise ImageError(f"{self.what} {info.path} is not open")
+        x0, ybase, z0 = info.data_origin
+        dw = info.data_width or info.width
+        r0, r1 = info.data_y + y0, info.data_y + y1  # rows of the data window
+        if info.tile_height > 0:
+            th = info.tile_height
+            a0 = (r0 // th) * th
+            a1 = min(-(-r1 // th) * th, info.data_height or info.height)
+            ys = (ybase + a0, ybase + a1)
+            data = inp.read_tiles(0, 0, x0, x0 + dw, *ys, z0, z0 + 1, ch, ch + 1, oiio.FLOAT)
+            want = (a1 - a0) * dw
+        else:
+            a0 = r0
+            data = inp.read_scanlines(0, 0, ybase + r0, ybase + r1, z0, ch, ch + 1, oiio.FLOAT)
+            want = (r1 - r0) * dw
+        if data is None or not isinstance(data, np.ndarray) or data.size != want:
             msg = oiio_error_text(inp) or oiio_error_text() or "short read"
             raise ImageError(
-                f"{self.what} {_where(self.info.path, self.info.tile)}: rows {y0}..{y1 - 1} cannot be "
+                f"{self.what} {_where(info.path, info.tile)}: rows {y0}..{y1 - 1} cannot be "
                 f"read ({msg}); the file may be truncated or corrupt"
             )
-        return np.asarray(data, dtype=np.float32).reshape(y1 - y0, self.info.width)
+        rows = np.asarray(data, dtype=np.float32).reshape(-1, dw)
+        return rows[r0 - a0 : r1 - a0, info.data_x : info.data_x + info.width]
 
     def read_rows(self, y0: int, y1: int) -> np.ndarray:
         """Rows ``y0 .. y1-1`` (target size) of the channel, float32, shape (y1 - y0, width)."""

@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from matgen.bake.config import BakeConfig
+from matgen.bake.config import BakeConfig, pass_name
 from matgen.bake.lookup import TexelLookup
 from matgen.bake.maps import MapReader, discover_tiles, map_info, scan_map, tile_path
 from matgen.bake.tiles import rows_per_strip
@@ -161,10 +161,12 @@ def _resolve_passes(config: BakeConfig, bands: BandSet, allow_outside: bool) -> 
     for entry in config.outputs.passes:
         if entry.lower().endswith(".csv"):
             path = resolve_inside(config.base_dir, entry, "pass response file", allow_outside=allow_outside)
-            name = path.stem
             w = pass_weights(str(path), bands)
         else:
-            name, w = entry, pass_weights(entry, bands)
+            w = pass_weights(entry, bands)
+        name = pass_name(entry)  # the name as written, not the target of a symbolic link
+        if name in out:
+            raise ConfigError(f"outputs.passes: two entries make pass '{name}'; give each a distinct name")
         out[name] = np.asarray(w, dtype=np.float64)
     return out
 

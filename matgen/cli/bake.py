@@ -7,11 +7,14 @@ import warnings
 from pathlib import Path
 
 from matgen.bake.config import load_config
-from matgen.cli import add_command
-from matgen.errors import MatgenWarning
+from matgen.cli import add_command, print_json, warn
+from matgen.errors import MatgenWarning, ParameterError
 from matgen.export.assemble import assemble_tiles
 from matgen.export.job import bake
 from matgen.tables.store import Table
+
+#: Largest --memory-mb, MiB (1 TiB).
+MAX_MEMORY_MB = 1 << 20
 
 
 def register(sub):
@@ -28,7 +31,8 @@ def register(sub):
             "descriptor with checksums and a MaterialX document. Outputs appear only when the whole bake "
             "succeeded. On a farm, bake each UDIM tile with --tile N, then run --assemble-tiles once to "
             "write the set's material.json and material.mtlx. Exit status 0 on success, 2 when refused (one "
-            "line naming the file, tile, texel or lock)."
+            "line naming the file, tile, texel or range), 75 when another live process holds the folder or "
+            "tile (retry later), 143 on SIGTERM (what the bake created is removed)."
         ),
     )
     p.add_argument("config", help="material config (TOML)")
@@ -64,18 +68,23 @@ def register(sub):
         "textures may take)",
     )
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--json", action="store_true", help="print the result as one JSON document, no progress")
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
     """Run ``matgen bake``; returns the exit status."""
+    if not 1 <= args.memory_mb <= MAX_MEMORY_MB:
+        raise ParameterError(f"--memory-mb is {args.memory_mb}; allowed 1 .. {MAX_MEMORY_MB} MiB")
+    if args.jobs is not None and not 1 <= args.jobs <= 4096:
+        raise ParameterError(f"--jobs is {args.jobs}; allowed 1 .. 4096 threads")
     config = load_config(args.config, allow_outside=args.allow_outside)
     table = Table.load(args.table) if args.table else None
     if args.assemble_tiles:
         return _assemble(args, config, table)
     bar = None
     progress = None
-    if not args.quiet and not args.dry_run:
+    if not args.quiet and not args.dry_run and not args.json:
         from tqdm import tqdm
 
         bar = tqdm(
@@ -117,8 +126,11 @@ def run(args) -> int:
         msg = str(w.message)
         if msg not in seen:
             seen.add(msg)
-            print(f"matgen bake: warning: {msg}", file=sys.stderr)
+            warn("bake", f"{w.category.__name__}: {msg}")
     out = Path(args.out)
+    if args.json:
+        print_json(_result_doc(result, sorted(seen)))
+        return 0
     if result.dry_run:
         print(
             f"dry run: config, maps, output folder and documents are valid; {result.texels} texels; "
@@ -139,6 +151,21 @@ def run(args) -> int:
     return 0
 
 
+def _result_doc(result, warnings_seen) -> dict:
+    """Return the ``--json`` document of a bake, dry run or assembly."""
+    return {
+        "status": "dry_run" if result.dry_run else "done",
+        "out": str(result.out_dir),
+        "descriptor": None if result.descriptor is None else str(result.descriptor),
+        "files": list(result.files),
+        "texels": int(result.texels),
+        "table_clamped_texels": int(result.table_clamped),
+        "encoding_clamped_texels": int(result.encoding_clamped),
+        "seconds": round(float(result.seconds), 3),
+        "warnings": list(warnings_seen),
+    }
+
+
 def _assemble(args, config, table) -> int:
     """``--assemble-tiles``: the set's descriptor and documents from its one-tile bakes."""
     result = assemble_tiles(
@@ -150,6 +177,9 @@ def _assemble(args, config, table) -> int:
         allow_outside=args.allow_outside,
     )
     out = Path(args.out)
+    if args.json:
+        print_json(_result_doc(result, []))
+        return 0
     if result.dry_run:
         print(f"dry run: every UDIM tile in {out} is complete and matches; would write:")
         for rel in result.files:

@@ -2,16 +2,16 @@
 
 from __future__ import annotations
 
-import sys
 import time
 import warnings
 from pathlib import Path
 
 import numpy as np
 
+from matgen import limits
 from matgen.bake.config import load_config
-from matgen.cli import add_command
-from matgen.errors import ImageError, MatgenWarning
+from matgen.cli import add_command, print_json, warn
+from matgen.errors import ImageError, MatgenWarning, ParameterError, PathError
 from matgen.export.exr import read_exr
 from matgen.export.job import bake, load_table
 from matgen.fsutil import atomic_path
@@ -45,6 +45,7 @@ def register(sub):
     p.add_argument("--seed", type=int, default=DEFAULT_SEED, help="seed of the procedural maps")
     p.add_argument("--jobs", type=int, default=None, help="lookup threads (default: all cores)")
     p.add_argument("--table", default=None, help="table file instead of the shipped default table")
+    p.add_argument("--json", action="store_true", help="print the result as one JSON document")
     p.set_defaults(func=run)
 
 
@@ -159,10 +160,32 @@ def _previews(out: Path, bake_dir: Path, config, table, maps) -> list:
     return written
 
 
+#: Smallest demo map side, texels (the procedural features need a few texels each).
+MIN_DEMO_SIDE = 16
+
+
+def _check_request(args, out: Path) -> None:
+    """Refuse a map side outside MIN_DEMO_SIDE .. the ``demo_side`` ceiling and an --out that is a file."""
+    ceiling = limits.get_limit("demo_side")
+    if not MIN_DEMO_SIDE <= args.size <= ceiling:
+        raise ParameterError(
+            f"--size is {args.size}; allowed {MIN_DEMO_SIDE} .. {ceiling} texels "
+            "(raise the ceiling with MATGEN_MAX_DEMO_SIDE)"
+        )
+    if args.jobs is not None and not 1 <= args.jobs <= 4096:
+        raise ParameterError(f"--jobs is {args.jobs}; allowed 1 .. 4096 threads")
+    if not 0 <= args.seed < 2**63:
+        raise ParameterError(f"--seed is {args.seed}; allowed 0 .. 2^63 - 1")
+    for path in (out, out / "inputs", out / "bake", out / "preview"):
+        if path.exists() and not path.is_dir():
+            raise PathError(f"--out: {path} exists and is not a folder")
+
+
 def run(args) -> int:
     """Run ``matgen demo``; returns the exit status."""
     t0 = time.perf_counter()
     out = Path(args.out)
+    _check_request(args, out)
     inputs = out / "inputs"
     config_path, maps = write_scenario(inputs, size=args.size, seed=args.seed)
     config = load_config(config_path)
@@ -173,14 +196,30 @@ def run(args) -> int:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", MatgenWarning)
         result = bake(config, out / "bake", table=table, table_source=source, jobs=args.jobs)
-    for msg in sorted({str(w.message) for w in caught}):
-        print(f"matgen demo: warning: {msg}", file=sys.stderr)
+    seen = sorted({str(w.message) for w in caught})
+    for msg in seen:
+        warn("demo", msg)
     previews = _previews(out, out / "bake", config, table, maps)
     # contact sheet with colour bars and units
     sheets = descriptor_previews(out / "preview", result.descriptor)
     previews.extend(sheets.values())
     report = build_report(result.descriptor, out / "report.html")
     dt = time.perf_counter() - t0
+    if args.json:
+        print_json(
+            {
+                "status": "done",
+                "out": str(out),
+                "size": int(args.size),
+                "descriptor": str(result.descriptor),
+                "files": [str(out / "bake" / f) for f in result.files],
+                "previews": [str(p) for p in previews],
+                "report": str(report),
+                "seconds": round(dt, 3),
+                "warnings": seen,
+            }
+        )
+        return 0
     print(f"Low Tide Lantern demo (invented scenario): {args.size} x {args.size} texels baked in {dt:.1f} s")
     print(f"  pigment maps and material config: {inputs}")
     print(

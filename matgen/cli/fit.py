@@ -88,7 +88,7 @@ def _read(path: Path):
     except OSError as exc:
         raise ConfigError(f"cannot read {path}: {exc}") from exc
     try:
-        doc = json.loads(text)
+        doc = limits.loads_json_checked(text, f"transport result {path.name}")
     except json.JSONDecodeError as exc:
         raise ConfigError(f"{path.name} is not JSON ({exc.msg}, line {exc.lineno})") from exc
     except RecursionError:  # nesting deeper than the parser's stack

@@ -12,11 +12,17 @@ may be lists with one value per wavelength (a single number applies to every ban
 from __future__ import annotations
 
 import json
+import logging
 import math
+import sys
 
+from matgen import limits
 from matgen.cli import add_command
 from matgen.errors import ConfigError, StackError
+from matgen.fsutil import strict_json
 from matgen.limits import read_text_limited
+
+_log = logging.getLogger("matgen.simulate")
 
 _TOP_KEYS = {"n_above", "n_below", "layers", "wavelength_nm"}
 _LAYER_KEYS = {"thickness_mm", "n", "mu_a", "mu_s", "g", "name"}
@@ -44,6 +50,7 @@ def register(sub):
         help="angle of the collimated beam to the surface normal, degrees in [0, 90)",
     )
     p.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    p.add_argument("--no-progress", action="store_true", help="no progress bar on long runs")
     p.add_argument(
         "--profile",
         action="store_true",
@@ -58,7 +65,7 @@ def load_stacks(path):
 
     text = read_text_limited(path, "stack file")
     try:
-        doc = json.loads(text)
+        doc = limits.loads_json_checked(text, f"stack file '{path}'")
     except json.JSONDecodeError as exc:
         raise ConfigError(f"stack file '{path}' is not valid JSON: {exc}") from None
     except RecursionError:  # nesting deeper than the parser's stack
@@ -136,7 +143,6 @@ def load_stacks(path):
 
 def run(args) -> int:
     from matgen.errors import ParameterError
-    from matgen.transport.simulate import simulate
 
     if not (0.0 <= args.incidence_deg < 90.0) or not math.isfinite(args.incidence_deg):
         raise ParameterError(f"--incidence-deg is {args.incidence_deg}; allowed range [0, 90)")
@@ -144,7 +150,7 @@ def run(args) -> int:
     stacks = load_stacks(args.stack)
     results = []
     for wave, stack in stacks:
-        r = simulate(stack, args.photons, args.seed, threads=args.threads, incidence_cos=cos_i)
+        r = _simulate_with_progress(stack, args, cos_i, wave)
         d = r.to_dict(profile=args.profile)
         d.pop("tally_fixed_point", None)
         d["layers"] = list(stack.names)
@@ -154,7 +160,7 @@ def run(args) -> int:
         results.append(d)
     if args.json:
         doc = results[0] if stacks[0][0] is None else {"bands": results}
-        print(json.dumps(doc, indent=2, default=_jsonable))
+        print(strict_json(doc, "the simulation result", indent=2, default=_jsonable))
         return 0
     for d in results:
         head = f"{d['wavelength_nm']:g} nm: " if "wavelength_nm" in d else ""
@@ -166,6 +172,61 @@ def run(args) -> int:
         m = d["mean_penetration_depth_mm"]
         print(f"  mean penetration depth {m['value']:.4f} +- {m['stderr']:.4f} mm")
     return 0
+
+
+#: Photons of the pilot chunk that times a run before its progress bar is shown.
+PILOT_PHOTONS = 256
+#: Chunks a long run is split into (each one a consecutive photon range; combine() adds them up exactly).
+PROGRESS_CHUNKS = 50
+#: A run whose pilot predicts more than this many seconds gets a progress bar with an ETA.
+PROGRESS_AFTER_S = 2.0
+
+
+def _simulate_with_progress(stack, args, cos_i, wave):
+    """Run one band; a long run goes in consecutive photon chunks with a progress bar and an ETA.
+
+    Photon i's stream depends only on (seed, i) and tallies are integers, so the chunks combined
+    (:func:`matgen.transport.simulate.combine`) equal one run of all the photons bit for bit.
+    """
+    import time
+
+    from matgen import limits as lim
+    from matgen.transport.simulate import combine, simulate
+
+    n = lim.check_photons(args.photons)
+    pilot = min(n, PILOT_PHOTONS)
+    kw = {"threads": args.threads, "incidence_cos": cos_i}
+    t0 = time.perf_counter()
+    first = simulate(stack, pilot, args.seed, **kw)
+    if pilot == n:
+        return first
+    per_photon = (time.perf_counter() - t0) / pilot
+    eta = per_photon * (n - pilot)
+    what = f"{wave:g} nm" if wave is not None else "simulate"
+    if eta <= PROGRESS_AFTER_S:
+        rest = simulate(stack, n - pilot, args.seed, first_photon=pilot, **kw)
+        return combine([first, rest], stack)
+    from tqdm import tqdm
+
+    _log.info("%s: %d photons, about %.0f s (ETA from the first %d photons)", what, n, eta, pilot)
+    parts, done = [first], pilot
+    step = max(1, -(-(n - pilot) // PROGRESS_CHUNKS))
+    with tqdm(
+        total=n,
+        initial=pilot,
+        unit=" photons",
+        unit_scale=True,
+        desc=what,
+        file=sys.stderr,
+        disable=args.no_progress or args.json and not sys.stderr.isatty(),
+        bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} [{elapsed}, ETA {remaining}]",
+    ) as bar:
+        while done < n:
+            k = min(step, n - done)
+            parts.append(simulate(stack, k, args.seed, first_photon=done, **kw))
+            done += k
+            bar.update(k)
+    return combine(parts, stack)
 
 
 def _jsonable(obj):

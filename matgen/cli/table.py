@@ -1,6 +1,7 @@
 """``matgen table``: build, plan, run-task, merge, info and plot lookup tables.
 
-Exit statuses (also for farm schedulers): 0 done; 1 a QA threshold of ``info`` failed; 2 an error (bad spec,
+Exit statuses (also for farm schedulers): 0 done; 1 a QA threshold of ``info`` failed, or ``status`` found
+tasks missing or corrupt; 2 an error (bad spec,
 job folder of another spec or code version, incomplete or corrupt job, unreachable scheduler), with one
 message on standard error; 75 (``run-task --no-wait``) the task is being run by another live process: retry
 later; 130 interrupted.
@@ -11,11 +12,13 @@ from __future__ import annotations
 import json
 import sys
 
-from matgen.cli import add_command
+from matgen.cli import add_command, print_json
 from matgen.errors import LockError, ParameterError
 
 #: Exit status of ``run-task --no-wait`` when another process holds the task (EX_TEMPFAIL of sysexits.h).
 EXIT_BUSY = 75
+#: Exit status of ``table status`` when any task is missing or corrupt (the job is not ready to merge).
+EXIT_NOT_DONE = 1
 
 
 def register(sub):
@@ -52,6 +55,7 @@ def register(sub):
     )
     b.add_argument("--connect-timeout", type=float, default=10.0, help="seconds to reach --scheduler")
     b.add_argument("--no-progress", action="store_true", help="no progress bar")
+    b.add_argument("--json", action="store_true", help="print the result as one JSON document")
     b.set_defaults(func=_build)
 
     pl = add_command(
@@ -81,6 +85,7 @@ def register(sub):
         action="store_true",
         help=f"exit {EXIT_BUSY} at once if another live process runs this task (default: wait for it)",
     )
+    r.add_argument("--json", action="store_true", help="print the result as one JSON document")
     r.set_defaults(func=_run_task)
 
     m = add_command(
@@ -91,6 +96,7 @@ def register(sub):
     )
     m.add_argument("jobdir", help="job folder")
     m.add_argument("--out", required=True, help="table file to write (.npz)")
+    m.add_argument("--json", action="store_true", help="print the result as one JSON document")
     m.set_defaults(func=_merge)
 
     s = add_command(
@@ -163,6 +169,19 @@ def _build(args):
         progress=not args.no_progress,
     )
     bs = table.build_stats
+    if args.json:
+        print_json(
+            {
+                "status": "done",
+                "table": str(args.out),
+                "grid_points": int(table.n_points),
+                "bands": len(table.bands),
+                "tasks_computed": int(bs.get("computed", 0)),
+                "tasks_reused": int(bs.get("skipped", 0)),
+                "seconds": round(float(bs.get("build_wall_s", 0.0)), 3),
+            }
+        )
+        return 0
     print(
         f"wrote {args.out}: {table.n_points} grid points x {len(table.bands)} bands; "
         f"{bs.get('computed', 0)} task(s) computed, {bs.get('skipped', 0)} reused; "
@@ -198,9 +217,14 @@ def _run_task(args):
         status = run_task(job, args.index, threads=args.threads, wait_s=0.0 if args.no_wait else 24 * 3600.0)
     except LockError as exc:
         if args.no_wait:
+            if args.json:
+                print_json({"status": "busy", "task": int(args.index), "message": str(exc)})
             print(f"matgen table run-task: busy: {exc}", file=sys.stderr)
             return EXIT_BUSY
         raise
+    if args.json:
+        print_json({"status": status, "task": int(args.index), "jobdir": str(job.path)})
+        return 0
     print(f"task {args.index}: {status}")
     return 0
 
@@ -211,6 +235,17 @@ def _merge(args):
 
     job = JobFolder.open(args.jobdir)
     table = merge_job(job, args.out)
+    if args.json:
+        print_json(
+            {
+                "status": "done",
+                "table": str(args.out),
+                "grid_points": int(table.n_points),
+                "bands": len(table.bands),
+                "tasks": len(job.plan.tasks),
+            }
+        )
+        return 0
     print(
         f"wrote {args.out}: {table.n_points} grid points x {len(table.bands)} bands "
         f"from {len(job.plan.tasks)} tasks"
@@ -226,7 +261,7 @@ def _status(args):
     states = job_states(job)
     counts = {k: sum(s.state == k for s in states) for k in ("done", "missing", "corrupt")}
     if args.json:
-        print(json.dumps({"counts": counts, "tasks": [s.__dict__ for s in states]}, indent=1))
+        print_json({"counts": counts, "tasks": [s.__dict__ for s in states]})
     else:
         print(
             f"{job.path}: {counts['done']} done, {counts['missing']} missing, {counts['corrupt']} corrupt "
@@ -235,7 +270,7 @@ def _status(args):
         for s in states:
             if s.state != "done":
                 print(f"  task {s.index}: {s.state} ({s.reason})")
-    return 0
+    return 0 if counts["done"] == len(states) else EXIT_NOT_DONE
 
 
 def _load(file):

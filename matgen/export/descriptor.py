@@ -20,7 +20,7 @@ from pathlib import Path, PurePosixPath
 import jsonschema
 
 from matgen.errors import ConfigError, DataError, PathError
-from matgen.fsutil import resolve_inside
+from matgen.fsutil import resolve_inside, strict_json
 from matgen.limits import read_text_limited
 from matgen.provenance import hash_json, sha256_file
 
@@ -250,7 +250,7 @@ def build_descriptor(
 def descriptor_json(doc: dict) -> str:
     """Validate a descriptor and return it as indented JSON text."""
     validate_descriptor(doc)
-    return json.dumps(doc, indent=1) + "\n"
+    return strict_json(doc, "the material descriptor", indent=1) + "\n"
 
 
 def load_descriptor(path) -> dict:

@@ -2,9 +2,11 @@
 
 :func:`bake` is the Python entry point behind ``matgen bake``. It holds a lock on the output folder, reads
 and checks every map before it computes anything, writes every texture into a hidden staging folder inside
-the output folder, validates the MaterialX document and the descriptor, and only then moves each file into
-place with ``os.replace``, the descriptor last. A bake that fails or is killed part-way therefore leaves no
-partial output file; the staging folder of a killed bake is removed by the next bake into that folder.
+the output folder, validates the MaterialX document and the descriptor, and only then publishes them through
+the journalled commit of :mod:`matgen.export.publish` (old descriptor removed first, files moved into place,
+the new descriptor last; a commit cut short is finished by the next process that takes the lock). A bake that
+fails or is killed part-way therefore leaves no partial output file, and no reader ever finds a descriptor
+beside textures it does not describe. Outputs never replace an input of the bake.
 
 Locks: a whole bake (and a tile assembly) holds ``.matgen-bake.lock``, a one-tile farm bake
 ``.matgen-bake.<tile>.lock``. Each takes its own lock first and then looks at the others, so a whole bake
@@ -16,14 +18,11 @@ Units: lengths in mm; renderer-target lengths in scene units; memory in bytes.
 
 from __future__ import annotations
 
-import contextlib
 import hashlib
 import math
 import os
 import re
-import shutil
 import time
-import uuid
 from concurrent.futures import ThreadPoolExecutor, wait
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -42,12 +41,16 @@ from matgen.export.descriptor import (
     texture_entry,
 )
 from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture, set_io_threads
-from matgen.fsutil import FolderLock, live_lock_owner, pid_alive
+from matgen.export.publish import (
+    check_targets,
+    commit,
+    recover_commits,
+    remove_stale_staging,
+    staging_folder,
+)
+from matgen.fsutil import FolderLock, live_lock_owner
 from matgen.provenance import sha256_file
 from matgen.tables.store import Table, default_table_path, load_default_table
-
-#: Prefix of the hidden staging folders inside an output folder.
-STAGING_PREFIX = ".matgen-staging-"
 
 #: Lock file of a whole bake or a tile assembly in its output folder.
 BAKE_LOCK = ".matgen-bake.lock"
@@ -79,6 +82,8 @@ def load_table(config: BakeConfig):
 
 def _table_identity(table, table_source) -> tuple:
     """(name, SHA-256) of the table used: of its file when known, else of its content (axes, quantities)."""
+    if table_source is not None and getattr(table, "source_sha256", None):
+        return Path(table_source).name, table.source_sha256  # the bytes the table was parsed from
     if table_source is not None and Path(table_source).is_file():
         return Path(table_source).name, sha256_file(table_source)
     h = hashlib.sha256()
@@ -200,29 +205,47 @@ def check_unlocked(out_dir: Path, tile: int | None) -> None:
         raise _locked_error(out_dir, held)
 
 
-def _remove_stale_staging(out_dir: Path) -> None:
-    for entry in out_dir.glob(STAGING_PREFIX + "*"):
-        try:
-            pid = int(entry.name[len(STAGING_PREFIX) :].split("-")[0])
-        except ValueError:
-            continue
-        if not pid_alive(pid) or pid == os.getpid():
-            shutil.rmtree(entry, ignore_errors=True)
+def _remove_stale_staging(out_dir: Path, own_lock: str = BAKE_LOCK) -> None:
+    """Finish commits that stopped processes left (:func:`recover_commits`), then drop their staging."""
+    recover_commits(out_dir, own_lock)
+    remove_stale_staging(out_dir)
 
 
-@contextlib.contextmanager
-def staging_folder(out_dir: Path):
-    """Yield a fresh hidden staging folder inside ``out_dir``; it is removed on the way out, whatever happens.
+def bake_inputs(plan: BakePlan, table_source=None) -> list:
+    """Files a bake reads: every map of every tile, the pass response files and the table file."""
+    files = [info.path for ti in plan.tiles for info in ti.maps.values()]
+    for entry in plan.config.outputs.passes:
+        if entry.lower().endswith(".csv"):
+            files.append(plan.config.base_dir / entry)
+    if table_source is not None:
+        files.append(Path(table_source))
+    return files
 
-    Call only under the folder's lock, after :func:`_remove_stale_staging`; move finished files out of it
-    with :func:`_commit`.
-    """
-    staging = out_dir / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
-    staging.mkdir()
+
+#: Free space below which an output folder counts as full (bytes): a dry run refuses it.
+MIN_FREE_BYTES = 1 << 20
+
+
+def check_free_space(out_dir: Path, need_bytes: int = MIN_FREE_BYTES) -> None:
+    """Refuse an output folder whose file system has less than ``need_bytes`` free (a full disk)."""
+    base = Path(out_dir).absolute()
+    while not base.exists() and base != base.parent:
+        base = base.parent
     try:
-        yield staging
-    finally:
-        shutil.rmtree(staging, ignore_errors=True)
+        st = os.statvfs(base)
+    except (OSError, AttributeError):
+        return
+    free = st.f_bavail * st.f_frsize
+    if free < need_bytes:
+        raise PathError(
+            f"output folder {out_dir}: only {free} bytes free on its file system, below {need_bytes}; free "
+            "some space first"
+        )
+
+
+def _commit(staging: Path, out_dir: Path, files: list, lock_name: str = BAKE_LOCK, inputs=()) -> None:
+    """Publish staged files, descriptor last, through the journalled commit (:func:`commit`)."""
+    commit(staging, out_dir, files, lock_name, inputs)
 
 
 def planned_files(plan: BakePlan, name: str) -> list:
@@ -413,17 +436,23 @@ def bake(
     plan = plan_bake(config, table, tile=tile, allow_outside=allow_outside)
     files = planned_files(plan, config.name)
     check_texture_memory(plan, memory_budget_bytes)
+    inputs = bake_inputs(plan, table_source)
+    if out_dir.is_dir():
+        check_targets(out_dir, files, inputs)
     if dry_run:
         check_writable(out_dir, create=False)
         check_unlocked(out_dir, tile)
+        check_free_space(out_dir)
         _dry_run_documents(plan, table, table_source)
         check_inputs(plan)
         return BakeResult(
             out_dir, None, files, plan.texels, dry_run=True, seconds=time.perf_counter() - t_start
         )
     check_writable(out_dir)
-    with _BakeLock(out_dir, tile):
-        _remove_stale_staging(out_dir)
+    with _BakeLock(out_dir, tile) as held:
+        lock_name = held.lock.path.name
+        _remove_stale_staging(out_dir, lock_name)
+        check_targets(out_dir, files, inputs)
         report = check_inputs(plan)
         set_threads(jobs)
         set_io_threads(jobs)
@@ -431,7 +460,7 @@ def bake(
             result = _bake_into(
                 plan, table, table_source, staging, progress, memory_budget_bytes, rows, report, jobs
             )
-            _commit(staging, out_dir, result.files)
+            _commit(staging, out_dir, result.files, lock_name, inputs)
     result.out_dir = out_dir
     result.descriptor = out_dir / result.files[-1]
     result.seconds = time.perf_counter() - t_start
@@ -547,13 +576,3 @@ def _bake_into(
         (staging / rel).write_bytes(data)
         written.append(rel)
     return BakeResult(staging, None, written, plan.texels, n_table, n_enc)
-
-
-def _commit(staging: Path, out_dir: Path, files: list) -> None:
-    """Move every staged file into place (descriptor last); each move is atomic."""
-    for rel in files:
-        src, dst = staging / rel, out_dir / rel
-        if not src.is_file():
-            raise PathError(f"staged output {rel} is missing; nothing was committed after it")
-        dst.parent.mkdir(parents=True, exist_ok=True)
-        os.replace(src, dst)

@@ -18,8 +18,11 @@ The farm job array needs no executor: ``matgen table run-task JOBDIR INDEX`` run
 from __future__ import annotations
 
 import concurrent.futures as cf
+import contextlib
 import multiprocessing as mp
 import os
+import signal
+import threading
 import time
 from pathlib import Path
 
@@ -51,7 +54,27 @@ def _run_one(jobdir: str, index: int, threads: int | None) -> tuple:
     return index, status, time.perf_counter() - t0
 
 
-def _worker_init(threads: int) -> None:
+def _raise_interrupt(signum, frame):
+    signal.signal(signal.SIGTERM, signal.SIG_IGN)
+    raise KeyboardInterrupt(f"signal {signum}")
+
+
+def _watch_parent(parent: int) -> None:
+    """End this worker when the process that started it is gone (killed without a chance to stop us)."""
+    while True:
+        time.sleep(1.0)
+        if os.getppid() != parent:
+            os._exit(143)
+
+
+def _worker_init(threads: int, parent: int | None = None) -> None:
+    # SIGTERM (sent by run_job's clean-up, or by a scheduler to the process group) unwinds the task like
+    # Ctrl-C, so its temporary files and its task lock go; Ctrl-C itself is the parent's to handle
+    signal.signal(signal.SIGTERM, _raise_interrupt)
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    if parent is not None:
+        watch = threading.Thread(target=_watch_parent, args=(parent,), daemon=True, name="matgen-watch")
+        watch.start()
     try:
         import numba
 
@@ -73,6 +96,26 @@ def _progress(total: int, initial: int, enabled: bool, desc: str):
         bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} [{elapsed}<{remaining}, "
         "{rate_fmt}]",
     )
+
+
+def stop_pool(pool: cf.ProcessPoolExecutor, grace_s: float = 10.0) -> None:
+    """Stop a process pool now: cancel queued tasks, SIGTERM the workers, SIGKILL any left after ``grace_s``.
+
+    A worker receiving SIGTERM unwinds its task (temporary files removed, task lock released, nothing
+    recorded); the task stays "missing" and a rerun computes it. No worker outlives the run.
+    """
+    procs = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for p in procs:
+        with contextlib.suppress(Exception):
+            p.terminate()
+    deadline = time.monotonic() + grace_s
+    for p in procs:
+        with contextlib.suppress(Exception):
+            p.join(max(0.0, deadline - time.monotonic()))
+            if p.is_alive():
+                p.kill()
+                p.join(1.0)
 
 
 def pending_tasks(job: JobFolder) -> list:
@@ -135,22 +178,20 @@ def run_job(
         stats["workers"] = n
         threads = max(1, cpu_count() // n)
         ctx = mp.get_context("spawn")  # no fork of a process whose kernel threads already run
-        with (
-            cf.ProcessPoolExecutor(
-                max_workers=n, mp_context=ctx, initializer=_worker_init, initargs=(threads,)
-            ) as pool,
-            _progress(total, total - len(todo), progress, "table tasks") as bar,
-        ):
-            futures = [pool.submit(_run_one, str(job.path), i, threads) for i in todo]
-            try:
+        pool = cf.ProcessPoolExecutor(
+            max_workers=n, mp_context=ctx, initializer=_worker_init, initargs=(threads, os.getpid())
+        )
+        try:
+            with _progress(total, total - len(todo), progress, "table tasks") as bar:
+                futures = [pool.submit(_run_one, str(job.path), i, threads) for i in todo]
                 for fut in cf.as_completed(futures):
                     _, status, _ = fut.result()
                     stats["computed"] += status == "computed"
                     bar.update(1)
-            except BaseException:
-                for f in futures:
-                    f.cancel()
-                raise
+        except BaseException:
+            stop_pool(pool)
+            raise
+        pool.shutdown(wait=True)
     else:
         stats.update(_run_dask(job, todo, scheduler, dask_workers, connect_timeout_s, progress, total))
     stats["wall_s"] = time.perf_counter() - t0
@@ -195,13 +236,18 @@ def _run_dask(job, todo, scheduler, dask_workers, connect_timeout_s, progress, t
                 for i in todo
             ]
             computed = 0
-            with _progress(total, total - len(todo), progress, "table tasks (dask)") as bar:
-                for fut in distributed.as_completed(futures):
-                    _, status, _ = (
-                        fut.result()
-                    )  # a task's MatgenError is raised here, as the worker raised it
-                    computed += status == "computed"
-                    bar.update(1)
+            try:
+                with _progress(total, total - len(todo), progress, "table tasks (dask)") as bar:
+                    for fut in distributed.as_completed(futures):
+                        # a task's MatgenError is raised here, as the worker raised it
+                        _, status, _ = fut.result()
+                        computed += status == "computed"
+                        bar.update(1)
+            except BaseException:
+                # interrupted or terminated: the scheduler must not keep running (or retrying) our tasks
+                with contextlib.suppress(Exception):
+                    client.cancel(futures, force=True)
+                raise
             return {"computed": computed, "workers": n_workers}
         finally:
             client.close()

@@ -37,7 +37,7 @@ import numpy as np
 
 from matgen import limits
 from matgen.errors import ConfigError, MatgenError, TableError
-from matgen.fsutil import FolderLock, atomic_write_text
+from matgen.fsutil import FolderLock, atomic_write_text, strict_json
 from matgen.provenance import code_version, data_hashes, hash_json
 from matgen.tables.spec import TableSpec
 
@@ -501,7 +501,8 @@ class JobFolder:
             (path / "locks").mkdir(exist_ok=True)
             if spec_text is not None:
                 atomic_write_text(path / "spec.toml", spec_text)
-            atomic_write_text(job_file, json.dumps(plan.to_dict(), indent=1) + "\n")
+            text = strict_json(plan.to_dict(), f"table job file {job_file}", indent=1)
+            atomic_write_text(job_file, text + "\n")
         return cls(path, plan)
 
     @classmethod

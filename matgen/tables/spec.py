@@ -93,6 +93,35 @@ def _number(value, where: str, source: str, integer: bool = False):
     return value
 
 
+def _check_colour_names(space: str, illuminant: str, source: str) -> None:
+    """Refuse a working space or illuminant that colour-science does not know, before any task runs."""
+    try:
+        from matgen.color.colorimetry import resolve_illuminant, resolve_space
+    except ImportError:  # pragma: no cover - colour-science missing: the first RGB quantity says so
+        return
+    for key, value, resolve in (
+        ("working_space", space, resolve_space),
+        ("illuminant", illuminant, resolve_illuminant),
+    ):
+        try:
+            resolve(value)
+        except MatgenError as exc:
+            raise ConfigError(f"{source}: {key}: {exc}") from None
+
+
+def _check_records(max_photons: int, source: str) -> None:
+    """Refuse a photon count whose records would exceed the ``records_bytes`` ceiling in every task."""
+    try:
+        from matgen.tissue.layers import LAYER_NAMES
+        from matgen.transport.records import check_records_memory
+    except ImportError:  # pragma: no cover - tissue model not installed
+        return
+    try:
+        check_records_memory(max_photons, len(LAYER_NAMES), "the photon records of one band of each task")
+    except MatgenError as exc:
+        raise ConfigError(f"{source}: photons_per_band / max_photons_per_band: {exc}") from None
+
+
 def skin_parameter_fields() -> tuple | None:
     """Names of the SkinParameters fields, or None where the tissue model is not installed."""
     try:
@@ -253,7 +282,7 @@ def _parse_axis(name: str, body, source: str) -> Axis:
         count = _number(body["count"], f"{where} count", source, integer=True)
         if count < 2:
             raise ConfigError(f"{source}: {where} count is {count}; an axis needs at least 2 points")
-        limits.check_table_entries(count, f"{where} of {source}")
+        limits.check_count(count, "axis_points", f"the point count of {where} of {source}")
         if spacing == "log":
             if start <= 0 or stop <= 0:
                 raise ConfigError(f"{source}: {where} is log-spaced; start and stop must be > 0")
@@ -316,6 +345,7 @@ def _parse_spec(doc: dict, source: str) -> TableSpec:
         if not isinstance(v, str):
             raise ConfigError(f"{source}: {key} is {v!r}; expected a string")
         strings[key] = v
+    _check_colour_names(strings["working_space"], strings["illuminant"], source)
     targets = doc.get("targets", [])
     if not isinstance(targets, list) or not all(isinstance(t, str) for t in targets):
         raise ConfigError(f"{source}: targets must be a list of target names")
@@ -396,8 +426,11 @@ def _parse_spec(doc: dict, source: str) -> TableSpec:
         limits.check_photons(max_photons)
     except MatgenError as exc:
         raise ConfigError(f"{source}: [transport] max_photons_per_band: {exc}") from exc
-    n_points = int(np.prod([a.values.size for a in axes]))
+    n_points = 1
+    for a in axes:
+        n_points *= int(a.values.size)  # Python ints: no overflow
     limits.check_table_entries(n_points * len(bands), f"the grid of {source}")
+    _check_records(int(max_photons), source)
     return TableSpec(
         axes=tuple(axes),
         bands=bands,

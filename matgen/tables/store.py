@@ -21,8 +21,9 @@ table's working space: ``rgb_albedo_multiple``, ``rgb_shape_distance_mm`` (mm), 
 from __future__ import annotations
 
 import difflib
+import hashlib
 import io
-import json
+import re
 import zipfile
 from dataclasses import dataclass, field
 from importlib import resources
@@ -31,8 +32,15 @@ from pathlib import Path
 import numpy as np
 
 from matgen.errors import ConfigError, MatgenError, ParameterError, TableError
-from matgen.fsutil import atomic_path, atomic_write_text
-from matgen.limits import read_text_limited
+from matgen.fsutil import atomic_path, atomic_write_text, strict_json
+from matgen.limits import (
+    check_count,
+    check_file_size,
+    check_table_entries,
+    get_limit,
+    loads_json_checked,
+    read_text_limited,
+)
 from matgen.npzio import CORRUPT_ARCHIVE_ERRORS
 from matgen.npzio import read_npz_checked as _read_npz_checked
 from matgen.provenance import sha256_file
@@ -140,8 +148,8 @@ def _write_npz_deterministic(path: Path, arrays: dict[str, np.ndarray]) -> None:
 
 
 def write_json_atomic(path: Path, obj) -> None:
-    """Write ``obj`` as indented JSON to ``path`` through a temporary file and a rename."""
-    atomic_write_text(path, json.dumps(obj, indent=1) + "\n")
+    """Write ``obj`` as indented strict JSON (no NaN / Infinity) to ``path`` through a temporary file."""
+    atomic_write_text(path, strict_json(obj, f"JSON file {path}", indent=1) + "\n")
 
 
 def read_npz_checked(path: Path, what: str) -> dict:
@@ -182,6 +190,8 @@ class Table:
     illuminant: str = "D65"
     manifest: dict = field(default_factory=dict)
     build_stats: dict = field(default_factory=dict)
+    #: SHA-256 of the file bytes this table was parsed from (:meth:`load`), None for a table built in memory.
+    source_sha256: str | None = field(default=None, compare=False, repr=False)
 
     def __post_init__(self):
         self.axes = list(self.axes)
@@ -418,12 +428,24 @@ class Table:
             raise TableError(f"table file {path} must end in .npz (the manifest goes beside it as .json)")
         if not path.parent.exists():
             raise TableError(f"cannot write table {path}: folder {path.parent} does not exist")
-        header = json.dumps(self.header(), sort_keys=True, separators=(",", ":")).encode("utf-8")
+        header = strict_json(self.header(), f"header of table {path}", sort_keys=True, separators=(",", ":"))
+        header = header.encode("utf-8")
         arrays = {"header.json": np.frombuffer(header, dtype=np.uint8)}
         for i, a in enumerate(self.axes):
             arrays[f"axis_{i}"] = a.values
         for n in sorted(self.quantities):
             arrays[f"q_{n}"] = self.quantities[n]
+        # the old manifest goes first: a reader (or a kill) between the two renames then finds the new table
+        # without a manifest (a complete table: the .npz holds its own header), never with the old one
+        side = manifest_path(path)
+        if side.is_dir():
+            raise TableError(f"cannot write the manifest of {path}: {side} is a folder")
+        try:
+            side.unlink()
+        except FileNotFoundError:
+            pass
+        except OSError as exc:
+            raise TableError(f"cannot replace the manifest {side}: {exc.strerror or exc}") from None
         _write_npz_deterministic(path, arrays)
         doc = {k: v for k, v in self.header().items() if k != "manifest"}
         doc["npz_file"] = path.name
@@ -454,36 +476,28 @@ class Table:
         path = Path(path)
         if not path.is_file():
             raise TableError(f"table file {path} does not exist")
+        data = _read_once(path)
+        digest = hashlib.sha256(data).hexdigest()
         side = manifest_path(path)
         side_doc = None
         if side.is_file():
             try:
-                side_doc = json.loads(read_text_limited(side, "table manifest"))
-            except ConfigError as exc:  # unreadable or not UTF-8 (a LimitError above the text ceiling passes)
+                side_doc = loads_json_checked(
+                    read_text_limited(side, "table manifest"), f"table manifest {side}"
+                )
+            except ConfigError as exc:  # unreadable, not UTF-8, not JSON (a LimitError passes as itself)
                 raise TableError(str(exc)) from exc
-            except (ValueError, RecursionError) as exc:  # RecursionError: nesting too deep to parse
-                raise TableError(f"table manifest {side} is not valid JSON ({exc})") from exc
             if not isinstance(side_doc, dict):
                 raise TableError(
                     f"table manifest {side} must hold a JSON object, not {type(side_doc).__name__}"
                 )
-            if verify and side_doc.get("npz_sha256") not in (None, sha256_file(path)):
+            if verify and side_doc.get("npz_sha256") not in (None, digest):
                 raise TableError(
                     f"table file {path} does not match the SHA-256 recorded in {side.name}: "
                     "the file is corrupt or was replaced without its manifest"
                 )
         try:
-            z = read_npz_checked(path, "table")
-            header = json.loads(bytes(z["header.json"]).decode("utf-8"))
-            if not isinstance(header, dict) or header.get("format") != "matgen-table":
-                raise TableError(
-                    f"{path} is not a matgen table file (its header is not a matgen table header)"
-                )
-            if header.get("format_version") != TABLE_FORMAT_VERSION:
-                raise TableError(
-                    f"table {path} has format version {header.get('format_version')}; this matgen reads "
-                    f"version {TABLE_FORMAT_VERSION}; rebuild it with 'matgen table build'"
-                )
+            header, z = read_table_archive(data, path)
             axes = [Axis(a["name"], z[f"axis_{i}"], a["spacing"]) for i, a in enumerate(header["axes"])]
             quantities = {n: z[f"q_{n}"] for n in header["quantities"]}
             manifest = header.get("manifest", {})
@@ -500,6 +514,7 @@ class Table:
                 illuminant=str(header["illuminant"]),
                 manifest=dict(manifest),
                 build_stats=dict(build_stats),
+                source_sha256=digest,
             )
         except MatgenError:
             raise
@@ -507,6 +522,126 @@ class Table:
             raise TableError(
                 f"table file {path} is truncated or corrupt ({type(exc).__name__}: {exc})"
             ) from exc
+
+
+def _read_once(path: Path) -> bytes:
+    """Return the bytes of a table file, read once after its size is checked (to hash and parse)."""
+    size = check_file_size(path, "table")
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read(size + 1)
+    except OSError as exc:
+        raise TableError(f"cannot read table file {path}: {exc.strerror or exc}") from None
+    if len(data) > size:
+        raise TableError(f"table file {path} grew while it was read; it is being written by another process")
+    return data
+
+
+_MEMBER = re.compile(r"^(header\.json|axis_(\d{1,3})|q_([A-Za-z0-9_]{1,64}))\.npy$")
+
+
+def _member_shape(zf: zipfile.ZipFile, info: zipfile.ZipInfo, path) -> tuple:
+    """(shape, dtype) of a member's ``.npy`` header; its data is not read."""
+    with zf.open(info) as fh:
+        version = np.lib.format.read_magic(fh)
+        fmt = np.lib.format
+        read = fmt.read_array_header_1_0 if version == (1, 0) else fmt.read_array_header_2_0
+        shape, _, dtype = read(fh)
+    return tuple(int(n) for n in shape), dtype
+
+
+def read_table_archive(data: bytes, path) -> tuple:
+    """Parse the bytes of a table ``.npz``: every member is known and sized by the header before it is read.
+
+    The member list must be exactly ``header.json``, ``axis_<i>`` for each axis of the header and
+    ``q_<name>`` for each quantity it names (no other, no repeat); each declared shape must be the one the
+    header implies (axis sizes, grid x channels) and the whole within the ``table_entries`` ceiling, so a
+    small archive cannot make the reader allocate gigabytes. Returns ``(header, arrays)``.
+
+    Raises
+    ------
+    TableError
+        Naming the archive and the member at fault.
+    LimitError
+        When the grid the header declares exceeds a ceiling.
+
+    """
+    with zipfile.ZipFile(io.BytesIO(data)) as zf:
+        infos = zf.infolist()
+        names = [i.filename for i in infos]
+        if len(names) != len(set(names)):
+            raise TableError(f"table file {path} repeats an archive member")
+        for n in names:
+            if not _MEMBER.match(n):
+                raise TableError(
+                    f"table file {path} holds an unknown member '{n}'; a table holds header.json, "
+                    "axis_<i> and q_<quantity> arrays only"
+                )
+        by_name = {i.filename: i for i in infos}
+        if "header.json.npy" not in by_name:
+            raise TableError(f"{path} is not a matgen table file (no header.json member)")
+        hshape, hdtype = _member_shape(zf, by_name["header.json.npy"], path)
+        if len(hshape) != 1 or hdtype != np.uint8 or hshape[0] > get_limit("text_bytes"):
+            raise TableError(f"table file {path}: header.json is not a byte string within the text ceiling")
+        with zf.open(by_name["header.json.npy"]) as fh:
+            raw = np.lib.format.read_array(fh, allow_pickle=False)
+        try:
+            header = loads_json_checked(bytes(raw).decode("utf-8"), f"table file {path} header")
+        except (ConfigError, UnicodeDecodeError):
+            raise TableError(f"{path} is not a matgen table file (its header is not JSON)") from None
+        if not isinstance(header, dict) or header.get("format") != "matgen-table":
+            raise TableError(f"{path} is not a matgen table file (its header is not a matgen table header)")
+        if header.get("format_version") != TABLE_FORMAT_VERSION:
+            raise TableError(
+                f"table {path} has format version {header.get('format_version')}; this matgen reads "
+                f"version {TABLE_FORMAT_VERSION}; rebuild it with 'matgen table build'"
+            )
+        expected = _expected_members(header, path)
+        if set(expected) != set(by_name):
+            extra, missing = sorted(set(by_name) - set(expected)), sorted(set(expected) - set(by_name))
+            raise TableError(
+                f"table file {path}: members do not match its header (unexpected {extra}, missing {missing})"
+            )
+        out = {"header.json": raw}
+        for member, shape in expected.items():
+            if member == "header.json.npy":
+                continue
+            got, dtype = _member_shape(zf, by_name[member], path)
+            if got != shape or dtype.kind != "f" or dtype.itemsize > 8:
+                raise TableError(
+                    f"table file {path}: array '{member}' declares shape {got} ({dtype}); its header implies "
+                    f"{shape} of floats"
+                )
+            with zf.open(by_name[member]) as fh:
+                out[member[:-4]] = np.lib.format.read_array(fh, allow_pickle=False)
+    return header, out
+
+
+def _expected_members(header: dict, path) -> dict:
+    """Member name -> declared shape, from a table header (axis sizes, channels); ceilings checked."""
+    axes, quantities = header.get("axes"), header.get("quantities")
+    if not isinstance(axes, list) or not isinstance(quantities, dict) or not axes or len(axes) > 64:
+        raise TableError(f"table file {path}: the header's axes or quantities are malformed")
+    sizes = []
+    for i, a in enumerate(axes):
+        size = a.get("size") if isinstance(a, dict) else None
+        if not (isinstance(size, int) and not isinstance(size, bool) and 1 <= size):
+            raise TableError(f"table file {path}: axis {i} of the header has no valid size")
+        check_count(size, "axis_points", f"the size of axis {i} of table '{path}'")
+        sizes.append(size)
+    grid = 1
+    for n in sizes:
+        grid *= n
+    out = {"header.json.npy": None}
+    out.update({f"axis_{i}.npy": (n,) for i, n in enumerate(sizes)})
+    total = 0
+    for name, channels in quantities.items():
+        if not (isinstance(channels, int) and not isinstance(channels, bool) and 1 <= channels <= 100000):
+            raise TableError(f"table file {path}: quantity '{name}' declares {channels!r} channels")
+        total += grid * channels
+        out[f"q_{name}.npy"] = tuple(sizes) + (channels,)
+    check_table_entries(max(total, 1), f"table '{path}' (all quantities)")
+    return out
 
 
 def lut_files() -> Path:

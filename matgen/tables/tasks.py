@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from matgen.errors import MatgenError, TableError
-from matgen.fsutil import FolderLock, atomic_write_text
+from matgen.fsutil import FolderLock, atomic_write_text, strict_json
 from matgen.limits import read_text_limited
 from matgen.provenance import sha256_file
 from matgen.tables.plan import JobFolder, Plan, Task, base_parameters, parameters_at
@@ -441,7 +441,9 @@ def run_task(job: JobFolder, index: int, *, threads: int | None = None, wait_s: 
             "host": socket.gethostname(),
             "pid": os.getpid(),
         }
-        atomic_write_text(job.record_path(index), json.dumps(record, indent=1) + "\n")
+        atomic_write_text(
+            job.record_path(index), strict_json(record, f"record of task {index}", indent=1) + "\n"
+        )
         return "computed"
     finally:
         lock.release()

@@ -36,6 +36,10 @@ def _env() -> dict:
     env = dict(os.environ)
     env.setdefault("NUMBA_NUM_THREADS", "2")
     env["PYTHONWARNINGS"] = "ignore"
+    # the child runs a script in tests/crash: put this checkout's matgen first, not an installed copy
+    root = str(Path(__file__).resolve().parents[2])
+    rest = [p for p in env.get("PYTHONPATH", "").split(os.pathsep) if p]
+    env["PYTHONPATH"] = os.pathsep.join([root] + rest)
     return env
 
 

@@ -72,7 +72,7 @@ def test_bake_into_a_locked_folder_fails_with_the_holder_named(tmp_path, held_lo
     assert sorted(p.name for p in out.iterdir()) == [BAKE_LOCK], "the refused bake wrote into the folder"
 
 
-def test_cli_bake_into_a_locked_folder_is_one_line_and_exit_2(tmp_path, held_lock, capsys):
+def test_cli_bake_into_a_locked_folder_is_one_line_and_exit_75(tmp_path, held_lock, capsys):
     from matgen.cli import main
 
     out, pid = held_lock
@@ -81,7 +81,7 @@ def test_cli_bake_into_a_locked_folder_is_one_line_and_exit_2(tmp_path, held_loc
         warnings.simplefilter("ignore")
         rc = main(["bake", str(cfg), "--out", str(out), "--quiet"])
     err = capsys.readouterr().err.strip()
-    assert rc == 2
+    assert rc == 75  # busy: retry later (EX_TEMPFAIL)
     lines = [ln for ln in err.splitlines() if "Warning" not in ln and ln.strip()]
     assert len(lines) == 1 and "locked" in lines[0] and str(pid) in lines[0], err
 

@@ -98,9 +98,9 @@ def test_whole_bake_refuses_while_a_tile_bake_holds_its_lock(tmp_path, kit, hold
     assert sorted(p.name for p in out.iterdir()) == [".matgen-bake.1002.lock"]  # ours released, nothing else
     rc = main(["bake", str(cfg), "--out", str(out), "--quiet"])
     err = capsys.readouterr().err
-    assert rc == 2 and err.count("\n") == 1 and ".matgen-bake.1002.lock" in err
+    assert rc == 75 and err.count("\n") == 1 and ".matgen-bake.1002.lock" in err
     # the dry run reports it too, and so does the assembly (which takes the whole-bake lock)
-    assert main(["bake", str(cfg), "--out", str(out), "--dry-run"]) == 2
+    assert main(["bake", str(cfg), "--out", str(out), "--dry-run"]) == 75  # busy: retry later
     assert ".matgen-bake.1002.lock" in capsys.readouterr().err
     with pytest.raises(LockError, match=r"\.matgen-bake\.1002\.lock"):
         _quiet_assemble(load_config(cfg), out)
@@ -115,7 +115,7 @@ def test_tile_bake_refuses_while_a_whole_bake_holds_its_lock(tmp_path, kit, hold
     msg = str(exc.value)
     assert f"{out / BAKE_LOCK}" in msg and f"process {pid}" in msg
     assert sorted(p.name for p in out.iterdir()) == [BAKE_LOCK]  # the tile's own lock was released
-    assert main(["bake", str(cfg), "--out", str(out), "--tile", "1001", "--dry-run"]) == 2
+    assert main(["bake", str(cfg), "--out", str(out), "--tile", "1001", "--dry-run"]) == 75
     assert BAKE_LOCK in capsys.readouterr().err
 
 
@@ -147,7 +147,7 @@ def test_different_tiles_bake_into_one_folder_at_once(tmp_path, kit, hold):
     ]
     # 1002 is held by the holder above: that bake must refuse, naming the lock; 1011 must succeed
     errs = [p.communicate(timeout=300)[1] for p in procs]
-    assert procs[0].returncode == 2 and ".matgen-bake.1002.lock" in errs[0]
+    assert procs[0].returncode == 75 and ".matgen-bake.1002.lock" in errs[0]
     assert procs[1].returncode == 0, errs[1]
 
 

@@ -142,9 +142,10 @@ def test_corrupt_task_is_detected_and_recomputed(reference, tmp_path):
     (jobdir / "tasks" / "task-00002.json").unlink()
     with pytest.raises(TableError, match=r"missing tasks 2; corrupt tasks 1"):
         merge_job(job, tmp_path / "x.npz")
-    assert main(["table", "status", str(jobdir)]) == 0
+    assert main(["table", "status", str(jobdir)]) == 1  # tasks missing or corrupt: not ready to merge
     stats = run_job(job, "serial", progress=False)
     assert stats["computed"] == 2 and stats["skipped"] == 1
+    assert main(["table", "status", str(jobdir)]) == 0
     assert task1.read_bytes() == data
     merge_job(job, tmp_path / "c.npz")
     assert _npz_bytes(tmp_path / "c.npz") == _npz_bytes(root / "t.npz")
