@@ -347,6 +347,17 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
                 "QA: 1 where a parameter was clamped to the table / encoding range; largest RGB fit residual",
             )
         )
+        outputs.append(
+            OutputSpec(
+                "qa/parameters",
+                "qa",
+                "parameters",
+                tuple(axis_names),
+                "1",
+                "the decoded skin parameters of every texel, one channel per table axis (their fields' units)",
+                pixel_type="float",
+            )
+        )
     return BakePlan(
         config,
         table,
@@ -494,6 +505,8 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
             v = targets[spec.target][spec.quantity]
         elif spec.kind == "pass":
             v = vals[f"pass_{spec.quantity}"]
+        elif spec.quantity == "parameters":
+            v = params
         else:  # qa
             cols = [clamped.astype(np.float32), enc_flag.astype(np.float32)]
             if "fit_residual" in spec.channels:

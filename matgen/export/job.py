@@ -45,6 +45,7 @@ from matgen.export.descriptor import (
 from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture, set_io_threads
 from matgen.fsutil import FolderLock, live_lock_owner, pid_alive
 from matgen.provenance import sha256_file
+from matgen.targets.solve import table_ior
 from matgen.tables.store import Table, default_table_path, load_default_table
 
 #: Prefix of the hidden staging folders inside an output folder.
@@ -307,7 +308,7 @@ def _build_documents(
     the preview scene's mean texel.
     """
     cfg = plan.config
-    ior = float(np.mean(table.quantities["ior"])) if "ior" in table.quantities else None
+    ior = table_ior(table) if "ior" in table.quantities else None
     targets = renderer_targets(plan, ior)
     names = _document_names(plan)
     out, documents = [], {}
