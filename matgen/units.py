@@ -1,6 +1,6 @@
 """Unit helpers. matgen works in nm (wavelength), mm (length) and 1/mm (coefficients) inside.
 
-Renderer scene units appear only in :mod:`matgen.export` and :mod:`matgen.fit.targets`, through
+Renderer scene units appear only in :mod:`matgen.export` and :mod:`matgen.targets`, through
 ``metres_per_scene_unit``.
 """
 

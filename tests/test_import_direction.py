@@ -13,6 +13,7 @@ RANK = {
     "color": 3,
     "fit": 4,
     "tables": 5,
+    "targets": 5,
     "bake": 6,
     "export": 7,
     "preview": 8,

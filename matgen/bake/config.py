@@ -141,6 +141,8 @@ class OutputOptions:
     pixel_type: str = "half"
     compression: str = "zip"
     texture: bool = False
+    albedo_convention: str = "spec_remap"
+    anisotropy: str = "hg"
 
 
 @dataclass(frozen=True)
@@ -392,6 +394,8 @@ def config_from_dict(
         pixel_type=exr.get("pixel_type", "half"),
         compression=exr.get("compression", "zip"),
         texture=bool(exr.get("texture", False)),
+        albedo_convention=out.get("albedo_convention", "spec_remap"),
+        anisotropy=out.get("anisotropy", "hg"),
     )
     _check_outputs(outputs, where)
     tiles = inp.get("udim_tiles")

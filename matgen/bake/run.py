@@ -23,11 +23,11 @@ from matgen.bake.maps import MapReader, discover_tiles, map_info, scan_map, tile
 from matgen.bake.tiles import rows_per_strip
 from matgen.color import pass_weights
 from matgen.errors import BandError, ClampWarning, ConfigError, ImageError
-from matgen.fit.inversion import albedo_multiple_vanDeHulst1980
 from matgen.fsutil import resolve_inside
 from matgen.limits import check_udim_tiles
 from matgen.spectra.bands import BandSet
-from matgen.units import MM_PER_M
+from matgen.targets import TargetOptions, get_target
+from matgen.targets.solve import cached_inverter, media_request, table_ior, texel_media
 
 #: Units of the spectral and RGB quantities, for channel metadata and the descriptor.
 QUANTITY_UNITS = {
@@ -88,6 +88,8 @@ class OutputSpec:
     unit: str
     description: str
     wavelengths_nm: tuple = ()
+    pixel_type: str | None = None  # "float" forces float32 whatever the config's pixel type
+    target: str | None = None  # the renderer target (matgen.targets) that owns this map
 
     def file_name(self, tile: int | None) -> str:
         """Relative file path of this output for UDIM ``tile`` (or a single texture)."""
@@ -119,6 +121,8 @@ class BakePlan:
     request: dict = field(default_factory=dict)
     derived: dict = field(default_factory=dict)  # name -> grid array (grid_shape + (C,)) made from the table
     single_tile: int | None = None  # the one UDIM tile of a farm bake (``--tile``), else None
+    target_options: TargetOptions = field(default_factory=TargetOptions)
+    inverter: object = None  # matgen.targets.solve.TexelInverter at the table's index, when targets are baked
 
     @property
     def tile_numbers(self) -> list:
@@ -301,53 +305,14 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
                 f"{q} per channel of {table.working_space} ({QUANTITY_UNITS[q]})",
             )
         )
-    if {"openpbr", "standard_surface"} & set(config.outputs.targets):  # both read the same maps
-        request["rgb_albedo_single"] = None
-        request["rgb_mean_free_path_mm"] = None
-        outputs += [
-            OutputSpec(
-                "openpbr/subsurface_color",
-                "target",
-                "subsurface_color",
-                ("R", "G", "B"),
-                "1",
-                f"OpenPBR subsurface_color in {table.working_space}: van de Hulst's A of the effective "
-                "single-scattering albedo, so that OpenPBR's inversion returns it",
-            ),
-            OutputSpec(
-                "openpbr/subsurface_radius",
-                "target",
-                "subsurface_radius",
-                ("Y",),
-                "scene_unit",
-                "OpenPBR subsurface_radius: largest channel mean free path, scene units",
-            ),
-            OutputSpec(
-                "openpbr/subsurface_radius_scale",
-                "target",
-                "subsurface_radius_scale",
-                ("R", "G", "B"),
-                "1",
-                "OpenPBR subsurface_radius_scale: per-channel mean free path / subsurface_radius",
-            ),
-        ]
-        # one scalar g per texel, the A-weighted mean over the table's bands as in
-        # matgen.fit.targets.EffectiveMedium.from_summary; numerator and denominator are linear in the grid
-        # values, so they are formed on the grid once and blended like any quantity
-        a = np.asarray(table.quantities["albedo_multiple"], dtype=np.float64)
-        g = np.asarray(table.quantities["anisotropy"], dtype=np.float64)
-        derived["openpbr_g_num"] = np.sum(a * g, axis=-1, keepdims=True)
-        derived["openpbr_g_den"] = np.sum(a, axis=-1, keepdims=True)
-        outputs.append(
-            OutputSpec(
-                "openpbr/subsurface_scatter_anisotropy",
-                "target",
-                "subsurface_scatter_anisotropy",
-                ("Y",),
-                "1",
-                "OpenPBR subsurface_scatter_anisotropy: albedo-weighted mean g over the table's bands",
-            )
-        )
+    options = TargetOptions(config.outputs.albedo_convention, config.outputs.anisotropy)
+    inverter = None
+    for name in config.outputs.targets:
+        target_outputs, req, der = _target_outputs(name, table, options, spectral_index, spectral_bands)
+        outputs += target_outputs
+        request.update(req)
+        derived.update(der)
+        inverter = inverter or cached_inverter(table_ior(table))
     for name in passes:
         # w @ A is linear in the grid values, so it is formed on the grid once and interpolated like A
         a = np.asarray(table.quantities["albedo_multiple"], dtype=np.float64)
@@ -364,10 +329,10 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         )
     if config.outputs.mitsuba_scene:
         need = {"albedo_single", "mean_free_path_mm"} - set(config.outputs.spectral)
-        if need or not {"openpbr", "standard_surface"} & set(config.outputs.targets):
+        if need or "openpbr" not in config.outputs.targets:
             raise ConfigError(
                 "outputs.mitsuba_scene needs spectral stacks albedo_single and mean_free_path_mm "
-                f"(missing: {sorted(need)}) and a target (openpbr) for the anisotropy"
+                f"(missing: {sorted(need)}) and the openpbr target for the anisotropy"
             )
     if config.outputs.qa:
         chans = ["table_clamped", "encoding_clamped"]
@@ -384,6 +349,17 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
                 "QA: 1 where a parameter was clamped to the table / encoding range; largest RGB fit residual",
             )
         )
+        outputs.append(
+            OutputSpec(
+                "qa/parameters",
+                "qa",
+                "parameters",
+                tuple(axis_names),
+                "1",
+                "the decoded skin parameters of every texel, one channel per table axis (their fields' units)",
+                pixel_type="float",
+            )
+        )
     return BakePlan(
         config,
         table,
@@ -396,7 +372,36 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         request,
         derived,
         single_tile=tile,
+        target_options=options,
+        inverter=inverter,
     )
+
+
+_LAYOUT_CHANNELS = {"rgb": ("R", "G", "B"), "y": ("Y",)}
+
+
+def _target_outputs(name: str, table, options: TargetOptions, spectral_index, spectral_bands) -> tuple:
+    """The OutputSpecs of one renderer target's maps, and the table quantities its media need."""
+    target = get_target(name)
+    request, derived = media_request(table, target.channels, spectral_index)
+    names = tuple(spectral_channel_name(c) for c in spectral_bands.centre_nm)
+    outputs = []
+    for m in target.maps(options):
+        bands = m.layout == "bands"
+        outputs.append(
+            OutputSpec(
+                f"{name}/{m.name}",
+                "target",
+                m.name,
+                names if bands else _LAYOUT_CHANNELS[m.layout],
+                m.unit,
+                m.description + (f" (in {table.working_space})" if m.colour else ""),
+                tuple(spectral_bands.centre_nm.tolist()) if bands else (),
+                pixel_type="float",
+                target=name,
+            )
+        )
+    return outputs, request, derived
 
 
 @dataclass
@@ -474,38 +479,36 @@ class Strip:
     encoding_clamped: int
 
 
-def _openpbr_g(vals: dict) -> np.ndarray:
-    """Per-texel scalar g (N, 1): sum_b A_b g_b / sum_b A_b from the blended numerator and denominator."""
-    num = vals["openpbr_g_num"].astype(np.float64)
-    den = vals["openpbr_g_den"].astype(np.float64)
-    return np.clip(np.divide(num, den, out=np.zeros_like(num), where=den > 0), -1.0, 1.0)
+def _target_texels(plan: BakePlan, vals: dict) -> dict:
+    """Every target map's texels for one strip: each target's media made once, then its conversion."""
+    media, texels = {}, {}
+    opts = plan.target_options
+    for name in plan.config.outputs.targets:
+        target = get_target(name)
+        key = (target.channels, target.scalar_g)
+        if key not in media:
+            media[key] = texel_media(
+                vals, target.channels, plan.inverter, scalar_g=target.scalar_g,
+                isotropic=opts.anisotropy == "isotropic",
+            )
+        texels[name] = target.texel_inputs(media[key], plan.config.metres_per_scene_unit, opts)
+    return texels
 
 
 def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: np.ndarray, shape) -> tuple:
     vals, clamped = lookup(params)
     h, w = shape
     out = {}
-    mpsu_mm = plan.config.metres_per_scene_unit * MM_PER_M
+    targets = _target_texels(plan, vals) if plan.config.outputs.targets else {}
     for spec in plan.outputs:
-        if spec.kind == "spectral":
-            v = vals[spec.quantity]
-        elif spec.kind == "rgb":
+        if spec.kind in ("spectral", "rgb"):
             v = vals[spec.quantity]
         elif spec.kind == "target":
-            if spec.quantity == "subsurface_color":
-                g = _openpbr_g(vals)
-                v = np.clip(albedo_multiple_vanDeHulst1980(vals["rgb_albedo_single"], g), 0.0, 1.0)
-            elif spec.quantity in ("subsurface_radius", "subsurface_radius_scale"):
-                mfp = vals["rgb_mean_free_path_mm"].astype(np.float64) / mpsu_mm
-                radius = mfp.max(axis=1, keepdims=True)
-                if spec.quantity == "subsurface_radius":
-                    v = radius
-                else:
-                    v = np.divide(mfp, radius, out=np.ones_like(mfp), where=radius > 0)
-            else:  # subsurface_scatter_anisotropy
-                v = _openpbr_g(vals)
+            v = targets[spec.target][spec.quantity]
         elif spec.kind == "pass":
             v = vals[f"pass_{spec.quantity}"]
+        elif spec.quantity == "parameters":
+            v = params
         else:  # qa
             cols = [clamped.astype(np.float32), enc_flag.astype(np.float32)]
             if "fit_residual" in spec.channels:
@@ -514,10 +517,19 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
         # half outputs are rounded here (numpy's round-to-nearest-even cast); the writer passes them through.
         # A strided float32 view is first made contiguous: numpy's contiguous float32 -> float16 cast is
         # about 2.5x faster than casting the strided view directly (same values, same rounding).
-        v = np.ascontiguousarray(np.asarray(v).reshape(h, w, -1))
-        dtype = np.float16 if plan.config.outputs.pixel_type == "half" else np.float32
-        out[spec.key] = v.astype(dtype, copy=False)
+        v = np.ascontiguousarray(np.asarray(v, dtype=np.float32).reshape(h, w, -1))
+        out[spec.key] = v.astype(output_dtype(plan, spec), copy=False)
     return out, int(clamped.sum())
+
+
+def output_dtype(plan: BakePlan, spec: OutputSpec):
+    """numpy dtype of an output's texels: float32 where the output or the config asks for float."""
+    return np.float32 if (spec.pixel_type or plan.config.outputs.pixel_type) == "float" else np.float16
+
+
+def output_pixel_type(plan: BakePlan, spec: OutputSpec) -> str:
+    """EXR pixel type of an output ("half" or "float")."""
+    return spec.pixel_type or plan.config.outputs.pixel_type
 
 
 def iter_strips(

@@ -205,7 +205,8 @@ def fit_document(
     from matgen.fit.fitting import fit_dipole_Jensen2001, fit_gaussians_dEon2007
     from matgen.fit.inversion import albedo_single_OpenPBR2024
     from matgen.fit.summary import resolve_inversion, summarize
-    from matgen.fit.targets import TARGETS, EffectiveMedium
+    from matgen.targets import TARGETS, EffectiveMedium
+    from matgen.targets.solve import TexelInverter, summary_media
 
     resolve_space(working_space)  # an unknown name is an error even when no band is visible
     resolve_illuminant(illuminant)
@@ -279,13 +280,9 @@ def fit_document(
     targets = {}
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ClampWarning)
-        spectral = EffectiveMedium(
-            q["albedo_single"][0],
-            q["mean_free_path_mm"][0],
-            q["anisotropy"][0],
-            ior,
-            albedo_multiple=q["albedo_multiple"][0],
-        )
+        # each band inverted with the g written for it (kept inside the inversion's range), as a bake does
+        inverter = TexelInverter(ior, method)
+        spectral = summary_media(q, 0, "bands", inverter).medium(0)
         for name in ("spectral_medium", "reflectance_mfp"):
             opts = {"inversion": method} if name == "reflectance_mfp" else {}
             targets[name] = TARGETS[name].to_inputs(
@@ -296,13 +293,10 @@ def fit_document(
             from matgen.fit.channels import channel_anisotropy, rgb_weights
 
             rgb_g = channel_anisotropy(rgb_weights(bands, space, illuminant), a, g)[0]
-            rgb = EffectiveMedium(
-                q["rgb_albedo_single"][0],
-                q["rgb_mean_free_path_mm"][0],
-                rgb_g,
-                ior,
-                albedo_multiple=q["rgb_albedo_multiple"][0],
-            )
+            # one scalar g for OpenPBR and standard_surface: every channel inverted with it, as a bake does
+            rgb = summary_media(
+                q, 0, "rgb", inverter, scalar_g=True, rgb_anisotropy=rgb_g
+            ).medium(0)
             for name in ("openpbr", "standard_surface"):
                 targets[name] = TARGETS[name].to_inputs(rgb, metres_per_scene_unit=metres_per_scene_unit)
             targets["openpbr"]["fit_residual"] = q["rgb_fit_residual"][0].tolist()

@@ -2,7 +2,7 @@
 
 The descriptor (``material.json``, or ``material.<UDIM>.json`` for a one-tile farm bake) is validated
 against its published JSON Schema, ``matgen/export/schema/material_descriptor.schema.json`` (format version
-1), before it is written. Texture paths are POSIX paths relative to the descriptor's folder, never absolute
+2), before it is written. Texture paths are POSIX paths relative to the descriptor's folder, never absolute
 and never through ``..``; each carries the SHA-256 of its bytes. :func:`inspect_descriptor` checks that every
 texture exists and matches its checksum. A one-tile descriptor of a bake with a preview scene also records
 ``statistics.output_sums`` (per output, the sum of its texels per channel over the tile), from which
@@ -26,7 +26,7 @@ from matgen.provenance import hash_json, sha256_file
 
 #: Format name and version of descriptors written by this matgen.
 DESCRIPTOR_FORMAT = "matgen-material"
-DESCRIPTOR_VERSION = 1
+DESCRIPTOR_VERSION = 2
 
 
 def descriptor_schema() -> dict:
@@ -97,67 +97,71 @@ def _texture_pattern(plan, spec) -> str:
     return f"{spec.key}.<UDIM>.exr" if plan.tile_numbers[0] is not None else f"{spec.key}.exr"
 
 
-def _map_type(spec) -> str:
-    return "color3" if len(spec.channels) == 3 else "float"
-
-
 def renderer_targets(plan, ior: float | None) -> dict:
     """Return the descriptor's ``targets``: per renderer target of the config, its inputs (maps or constants).
+
+    Every entry comes from the target itself (:mod:`matgen.targets`): the maps it wrote and the consumer
+    input each feeds, its constants (index, weight), its colour convention and the remap by which the
+    consumer rebuilds the medium; maps wired to no input are listed under ``reference_maps``.
 
     Parameters
     ----------
     plan : matgen.bake.run.BakePlan
-        The bake's plan (its target outputs and tiles).
+        The bake's plan (its target outputs, options and tiles).
     ior : float or None
-        The table's boundary refractive index (mean over its grid), None when the table has none.
+        The table's boundary refractive index, None when the table has none.
 
     Returns
     -------
     dict
-        ``{"openpbr": {...}, "standard_surface": {...}}`` for the targets the config asks for; Standard
-        Surface reads the OpenPBR maps (its RGB radius is OpenPBR's radius scale, its scale the radius).
+        Target name -> ``{"shading_model", "node", "albedo_convention", ..., "inputs", "reference_maps"}``.
 
     """
+    from matgen.targets import get_target
+
     targets = {}
-    maps = [spec for spec in plan.outputs if spec.kind == "target"]
-    if "openpbr" in plan.config.outputs.targets:
-        inputs = {"subsurface_weight": {"value": 1.0, "type": "float"}}
-        for spec in maps:
-            inputs[spec.quantity] = {
+    opts = plan.target_options
+    for name in plan.config.outputs.targets:
+        target = get_target(name)
+        specs = {spec.quantity: spec for spec in plan.outputs if spec.target == name}
+        inputs, reference = {}, {}
+        for m in target.maps(opts):
+            spec = specs[m.name]
+            entry = {
                 "texture": _texture_pattern(plan, spec),
-                "unit": spec.unit,
-                "type": _map_type(spec),
+                "unit": m.unit,
+                "type": m.mtlx_type or "spectral_stack",
+                "colour_managed": m.colour,
             }
+            if m.input is None:
+                reference[m.name] = entry
+            else:
+                inputs[m.input] = entry
         if ior is not None:
-            inputs["specular_ior"] = {"value": ior, "type": "float", "unit": "1"}
-        targets["openpbr"] = {
-            "shading_model": "OpenPBR Surface (MaterialX 1.39 open_pbr_surface)",
-            "albedo_convention": "spec_remap: subsurface_color is van de Hulst's A of the "
-            "effective single-scattering albedo (matgen.fit.targets)",
+            inputs.update(target.constant_inputs(ior, opts))
+        conv = {k: v for k, v in target.conventions(opts).items() if k != "inputs_extra"}
+        targets[name] = {
+            "shading_model": target.shading_model,
+            "node": target.node,
+            **conv,
             "inputs": inputs,
-        }
-    if "standard_surface" in plan.config.outputs.targets:
-        rename = {
-            "subsurface_color": "subsurface_color",
-            "subsurface_radius_scale": "subsurface_radius",
-            "subsurface_radius": "subsurface_scale",
-            "subsurface_scatter_anisotropy": "subsurface_anisotropy",
-        }
-        inputs = {"subsurface": {"value": 1.0, "type": "float"}}
-        for spec in maps:
-            if spec.quantity in rename:
-                inputs[rename[spec.quantity]] = {
-                    "texture": _texture_pattern(plan, spec),
-                    "unit": spec.unit,
-                    "type": _map_type(spec),
-                }
-        if ior is not None:
-            inputs["specular_IOR"] = {"value": ior, "type": "float", "unit": "1"}
-        targets["standard_surface"] = {
-            "shading_model": "Autodesk Standard Surface (MaterialX standard_surface)",
-            "inputs": inputs,
+            **({"reference_maps": reference} if reference else {}),
         }
     return targets
+
+
+def shader_inputs(targets: dict) -> list:
+    """``[(MaterialX node category, {input: {"texture" or "value", "type", "colour_managed"}})]`` of the
+    targets that have a MaterialX node."""
+    out = []
+    for entry in targets.values():
+        if entry.get("node"):
+            inputs = {
+                k: {kk: vv for kk, vv in v.items() if kk in ("texture", "value", "type", "colour_managed")}
+                for k, v in entry["inputs"].items()
+            }
+            out.append((entry["node"], inputs))
+    return out
 
 
 def build_descriptor(
@@ -265,6 +269,11 @@ def load_descriptor(path) -> dict:
         raise ConfigError(f"{path}: not valid JSON ({exc})") from exc
     except RecursionError:  # nesting deeper than the parser's stack
         raise ConfigError(f"{path}: JSON nested too deeply to be a material descriptor") from None
+    if isinstance(doc, dict) and doc.get("format_version") != DESCRIPTOR_VERSION:
+        raise ConfigError(
+            f"{path}: descriptor format version {doc.get('format_version')!r}; this matgen reads version "
+            f"{DESCRIPTOR_VERSION} (bake the material again)"
+        )
     validate_descriptor(doc, str(path))
     return doc
 

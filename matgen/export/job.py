@@ -38,6 +38,7 @@ from matgen.export.descriptor import (
     build_descriptor,
     descriptor_json,
     renderer_targets,
+    shader_inputs,
     texture_entry,
 )
 from matgen.export.exr import SPECTRAL_LAYOUT_VERSION, StreamingExr, make_texture, set_io_threads
@@ -50,6 +51,7 @@ from matgen.export.publish import (
 )
 from matgen.fsutil import FolderLock, live_lock_owner
 from matgen.provenance import sha256_file
+from matgen.targets.solve import table_ior
 from matgen.tables.store import Table, default_table_path, load_default_table
 
 #: Lock file of a whole bake or a tile assembly in its output folder.
@@ -311,7 +313,7 @@ def _planned_sums(plan: BakePlan, table) -> dict:
     def grid_mean(q):
         return np.asarray(table.quantities[q], dtype=np.float64)[..., idx].reshape(-1, idx.size).mean(axis=0)
 
-    g = float(np.sum(plan.derived["openpbr_g_num"]) / np.sum(plan.derived["openpbr_g_den"]))
+    g = float(np.mean(np.asarray(table.quantities["anisotropy"], dtype=np.float64)[..., idx]))
     return {
         SCENE_KEYS[0]: grid_mean("albedo_single") * n,
         SCENE_KEYS[1]: grid_mean("mean_free_path_mm") * n,
@@ -329,19 +331,14 @@ def _build_documents(
     the preview scene's mean texel.
     """
     cfg = plan.config
-    ior = float(np.mean(table.quantities["ior"])) if "ior" in table.quantities else None
+    ior = table_ior(table) if "ior" in table.quantities else None
     targets = renderer_targets(plan, ior)
     names = _document_names(plan)
     out, documents = [], {}
     if "material.mtlx" in names:
-        from matgen.export.materialx import document_text, openpbr_document
+        from matgen.export.materialx import document_text, material_document
 
-        inputs = targets.get("openpbr", {}).get("inputs", {"subsurface_weight": {"value": 1.0}})
-        doc = openpbr_document(
-            cfg.name,
-            {k: {kk: vv for kk, vv in v.items() if kk in ("texture", "value")} for k, v in inputs.items()},
-            table.working_space,
-        )
+        doc = material_document(cfg.name, shader_inputs(targets), table.working_space)
         data = document_text(doc).encode("utf-8")
         out.append(("material.mtlx", data))
         documents["materialx"] = {"path": "material.mtlx", "sha256": hashlib.sha256(data).hexdigest()}
@@ -472,7 +469,7 @@ def _dry_run_documents(plan: BakePlan, table, table_source) -> None:
     opts = plan.config.outputs
     entries = [
         texture_entry(
-            spec, spec.file_name(ti.tile), None, ti.tile, ti.width, ti.height, opts.pixel_type, opts.texture
+            spec, spec.file_name(ti.tile), None, ti.tile, ti.width, ti.height, spec.pixel_type or opts.pixel_type, opts.texture
         )
         for ti in plan.tiles
         for spec in plan.outputs
@@ -523,9 +520,9 @@ def _bake_into(
                             "matgen:kind": spec.kind,
                         },
                     )
-                    if spec.kind == "spectral":
+                    if spec.kind == "spectral" or spec.wavelengths_nm:
                         attrs["spectralLayoutVersion"] = SPECTRAL_LAYOUT_VERSION
-                    if spec.kind in ("rgb", "target") and len(spec.channels) == 3:
+                    if spec.kind in ("rgb", "target") and spec.channels == ("R", "G", "B"):
                         attrs["matgen:working_space"] = table.working_space
                     target = staging / (rel + ".scan.exr") if opts.texture else staging / rel
                     writers[spec.key] = StreamingExr(
@@ -533,7 +530,7 @@ def _bake_into(
                         ti.width,
                         ti.height,
                         spec.channels,
-                        pixel_type=opts.pixel_type,
+                        pixel_type=spec.pixel_type or opts.pixel_type,
                         compression=opts.compression,
                         attributes=attrs,
                     )
@@ -566,7 +563,7 @@ def _bake_into(
                     (staging / (rel + ".scan.exr")).unlink()
                 entries.append(
                     texture_entry(
-                        spec, rel, staging / rel, ti.tile, ti.width, ti.height, opts.pixel_type, opts.texture
+                        spec, rel, staging / rel, ti.tile, ti.width, ti.height, spec.pixel_type or opts.pixel_type, opts.texture
                     )
                 )
                 written.append(rel)

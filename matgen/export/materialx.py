@@ -1,14 +1,12 @@
-"""MaterialX document: an OpenPBR surface whose subsurface inputs read the baked RGB maps.
+"""MaterialX document: one surface per renderer target (OpenPBR, standard_surface) reading its baked maps.
 
 References: ``MaterialX139`` (the MaterialX 1.39 specification), ``OpenPBR2024`` (the surface's inputs).
 Written with the ``materialx`` package (1.39, which ships the ``open_pbr_surface`` node definition) and
 checked with its own ``Document.validate()`` against the standard data libraries before it is written, so a
 misspelt input or a wrong type is refused. Image nodes use MaterialX's ``<UDIM>`` token for UDIM sets.
-Inputs (OpenPBR 1.1 names): ``subsurface_weight`` (float), ``subsurface_color`` (color3, an albedo in the
-working space), ``subsurface_radius`` (float, scene units), ``subsurface_radius_scale`` (color3,
-dimensionless), ``subsurface_scatter_anisotropy`` (float), ``specular_ior`` (float).
+The inputs, their types and which are colours come from the targets (:mod:`matgen.targets`).
 
-Colour management: only ``subsurface_color`` is a colour; its image's file carries the working space, so a
+Colour management: only the inputs a target marks as colours (``subsurface_color``) are colour-managed; its image's file carries the working space, so a
 renderer in another working space converts it. Every other map is data (a ratio of lengths, a length, g) and
 must reach the shader unchanged: MaterialX colour-manages only colour types (the "color" type semantic of the
 MaterialX 1.39 specification), so such maps are read by images of a non-colour type (``float``, or
@@ -29,20 +27,6 @@ MATERIALX_COLORSPACES = {
     "ITU-R BT.709": "lin_rec709",
 }
 
-#: OpenPBR input -> MaterialX type.
-OPENPBR_INPUT_TYPES = {
-    "subsurface_weight": "float",
-    "subsurface_color": "color3",
-    "subsurface_radius": "float",
-    "subsurface_radius_scale": "color3",
-    "subsurface_scatter_anisotropy": "float",
-    "specular_ior": "float",
-}
-
-
-#: OpenPBR inputs that are colours (colour-managed from the working space); every other map is data.
-COLOUR_INPUTS = ("subsurface_color",)
-
 #: MaterialX's reserved colour-space name for "no conversion" (MaterialX 1.39 specification, Color Spaces).
 RAW_COLORSPACE = "none"
 
@@ -53,15 +37,17 @@ def _libraries(mx):
     return lib
 
 
-def openpbr_document(name: str, inputs: dict, working_space: str):
-    """Build and validate a MaterialX document with one OpenPBR material.
+def material_document(name: str, shaders: list, working_space: str):
+    """Build and validate a MaterialX document with one material per renderer target's node.
 
     Parameters
     ----------
     name : str
         Material name (letters, digits, underscores).
-    inputs : dict
-        OpenPBR input name -> ``{"texture": relative path (may hold <UDIM>)}`` or ``{"value": number}``.
+    shaders : list of (str, dict)
+        ``(node category, inputs)`` per target (:func:`matgen.export.descriptor.shader_inputs`); inputs map
+        an input name to ``{"texture": relative path (may hold <UDIM>)}`` or ``{"value": number}``, with
+        its MaterialX ``type`` and ``colour_managed`` flag, as the target declares them.
     working_space : str
         Working space of the colour maps (a key of :data:`MATERIALX_COLORSPACES`).
 
@@ -88,35 +74,40 @@ def openpbr_document(name: str, inputs: dict, working_space: str):
     doc = mx.createDocument()
     doc.setDataLibrary(_libraries(mx))
     doc.setColorSpace(cs)
-    shader = doc.addNode("open_pbr_surface", f"{safe}_shader", "surfaceshader")
-    for key, entry in inputs.items():
-        if key not in OPENPBR_INPUT_TYPES:
-            raise DataError(
-                f"'{key}' is not an OpenPBR input matgen writes; known: {sorted(OPENPBR_INPUT_TYPES)}"
-            )
-        typ = OPENPBR_INPUT_TYPES[key]
-        inp = shader.addInput(key, typ)
-        if "texture" in entry:
-            colour = key in COLOUR_INPUTS
-            # data maps: a non-colour image type, so that no colour management touches the values
-            read = typ if colour or typ == "float" else "vector3"
-            img = doc.addNode("image", f"{safe}_{key}_image", read)
-            f = img.addInput("file", "filename")
-            f.setValueString(entry["texture"])
-            f.setColorSpace(cs if colour else RAW_COLORSPACE)
-            if read == typ:
-                inp.setNodeName(img.getName())
-            else:
-                conv = doc.addNode("convert", f"{safe}_{key}_{typ}", typ)
-                conv.addInput("in", read).setNodeName(img.getName())
-                inp.setNodeName(conv.getName())
-        else:
-            inp.setValue(float(entry["value"]))
-    doc.addMaterialNode(safe, shader)
+    for category, inputs in shaders:
+        prefix = f"{safe}_{category}" if len(shaders) > 1 else safe
+        shader = doc.addNode(category, f"{prefix}_shader", "surfaceshader")
+        for key, entry in inputs.items():
+            _add_input(doc, shader, prefix, key, entry, cs)
+        doc.addMaterialNode(prefix, shader)
     ok, message = doc.validate()
     if not ok:
         raise DataError(f"the MaterialX document for '{name}' fails MaterialX validation: {message.strip()}")
     return doc
+
+
+def _add_input(doc, shader, prefix: str, key: str, entry: dict, cs: str) -> None:
+    """One shader input: a constant, or an image node (colour-managed only for colour inputs)."""
+    typ = entry.get("type", "float")
+    if typ not in ("float", "color3"):
+        raise DataError(f"MaterialX input '{key}' has type '{typ}'; matgen writes float and color3 inputs")
+    inp = shader.addInput(key, typ)
+    if "texture" not in entry:
+        inp.setValue(float(entry["value"]))
+        return
+    colour = bool(entry.get("colour_managed", False))
+    # data maps: a non-colour image type, so that no colour management touches the values
+    read = typ if colour or typ == "float" else "vector3"
+    img = doc.addNode("image", f"{prefix}_{key}_image", read)
+    f = img.addInput("file", "filename")
+    f.setValueString(entry["texture"])
+    f.setColorSpace(cs if colour else RAW_COLORSPACE)
+    if read == typ:
+        inp.setNodeName(img.getName())
+    else:
+        conv = doc.addNode("convert", f"{prefix}_{key}_{typ}", typ)
+        conv.addInput("in", read).setNodeName(img.getName())
+        inp.setNodeName(conv.getName())
 
 
 def document_text(doc) -> str:

@@ -1,9 +1,9 @@
-"""matgen.fit: profile fits, effective-medium inversion, renderer targets and RGB / pass reduction.
+"""matgen.fit: profile fits, effective-medium inversion and RGB / pass reduction.
 
 Units: lengths in mm, profiles in mm^-2, albedos dimensionless; renderer scene units only in
-:mod:`matgen.fit.targets` through an explicit ``metres_per_scene_unit``.
+:mod:`matgen.targets` through an explicit ``metres_per_scene_unit``.
 
 Entry points: :func:`matgen.fit.diffusion.fit_burley2015` (vectorised profile fit),
 :func:`matgen.fit.inversion.effective_medium`, :func:`matgen.fit.summary.summarize` (the table quantities),
-:data:`matgen.fit.targets.TARGETS`.
+:data:`matgen.targets.TARGETS`.
 """

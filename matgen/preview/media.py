@@ -169,17 +169,19 @@ def exported_medium(
 ) -> ExportedMedium:
     """The raw spectral-medium target's inputs for a summary, read back into mm and 1/mm.
 
-    Goes through ``matgen.fit.targets.TARGETS["spectral_medium"].to_inputs`` so that what is validated is
+    Goes through ``matgen.targets.TARGETS["spectral_medium"].to_inputs`` (each band inverted with its g) so that what is validated is
     what matgen exports (``albedo``, ``sigma_t`` per scene unit, ``g``, ``eta``); sigma_t is converted back
     to 1/mm here with ``metres_per_scene_unit``, independently of the target's own ``from_inputs``.
     """
     try:
-        from matgen.fit.targets import TARGETS, EffectiveMedium
+        from matgen.targets import TARGETS
+        from matgen.targets.solve import TexelInverter, summary_media
     except ImportError as exc:
         raise DependencyError(f"matgen's renderer targets are not available ({exc})") from exc
     from matgen.units import scene_units_to_mm
 
-    medium = EffectiveMedium.from_summary(summary, 0, channels="bands")
+    n = float(np.asarray(summary["ior"]).reshape(-1)[0])
+    medium = summary_media(summary, 0, "bands", TexelInverter(n)).medium(0)
     inputs = TARGETS["spectral_medium"].to_inputs(medium, metres_per_scene_unit=metres_per_scene_unit)
     albedo = np.asarray(inputs["albedo"], dtype=np.float64).reshape(-1)
     per_scene_unit = np.asarray(inputs["sigma_t"], dtype=np.float64).reshape(-1)

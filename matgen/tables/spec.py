@@ -11,7 +11,7 @@ A spec file looks like this (every key shown; ``axes`` keep the order in which t
     seed = 20261201                  # spec seed; each task's seed derives from it and the task's identity
     working_space = "ACEScg"         # RGB working space of the rgb_* quantities
     illuminant = "D65"
-    targets = ["openpbr"]            # renderer targets the table is meant for (matgen.fit.targets names)
+    targets = ["openpbr"]            # renderer targets the table is meant for (matgen.targets names)
 
     [bands]                          # either start_nm/stop_nm/step_nm[/width_nm] or centres_nm = [...]
     start_nm = 300.0
@@ -134,9 +134,9 @@ def skin_parameter_fields() -> tuple | None:
 
 
 def renderer_targets() -> tuple | None:
-    """Names of the renderer targets of :mod:`matgen.fit.targets`, or None where it is not installed."""
+    """Names of the renderer targets of :mod:`matgen.targets`, or None where it is not installed."""
     try:
-        from matgen.fit.targets import TARGETS
+        from matgen.targets import TARGETS
     except ImportError:
         return None
     return tuple(TARGETS)

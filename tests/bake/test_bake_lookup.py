@@ -14,7 +14,8 @@ from matgen.bake.maps import MapReader, map_info
 from matgen.bake.run import plan_bake
 from matgen.export.exr import read_exr
 from matgen.export.job import bake
-from matgen.fit.targets import EffectiveMedium, get_target
+from matgen.fit.channels import rgb_weights
+from matgen.fit.inversion import albedo_multiple, albedo_single_OpenPBR2024, effective_medium
 from matgen.tables.store import Table
 
 
@@ -66,10 +67,10 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
     pix, chans, _ = read_exr(out / "rgb" / "albedo_multiple.exr")
     assert chans == ("R", "G", "B")
     np.testing.assert_array_equal(pix[ys, xs], ref["rgb_albedo_multiple"])
-    # OpenPBR maps equal matgen.fit.targets' OpenPBR convention applied to the looked-up effective medium
-    target = get_target("openpbr")
+    # OpenPBR maps, read back through the consumer's remap: each channel's alpha is the exact inversion of
+    # the texel's interpolated A at the one g written, and radius x scale is the mean free path l = (l/d) d
     maps = {
-        k: read_exr(out / "openpbr" / f"{k}.exr")[0][ys, xs]
+        k: read_exr(out / "openpbr" / f"{k}.exr")[0][ys, xs].astype(np.float64)
         for k in (
             "subsurface_color",
             "subsurface_radius",
@@ -77,53 +78,48 @@ def test_baked_texels_equal_table_lookup(tmp_path, kit):
             "subsurface_scatter_anisotropy",
         )
     }
-    g_blend = _blended_g(table, pts[ys, xs])
-    for i in range(len(ys)):
-        medium = EffectiveMedium(
-            ref["rgb_albedo_single"][i],
-            ref["rgb_mean_free_path_mm"][i],
-            np.full(3, g_blend[i]),
-            ior=float(ref["ior"][i, 0]),
-        )
-        inputs = target.to_inputs(medium, metres_per_scene_unit=0.01)
-        np.testing.assert_allclose(maps["subsurface_color"][i], inputs["subsurface_color"], rtol=1e-6)
-        np.testing.assert_allclose(maps["subsurface_radius"][i, 0], inputs["subsurface_radius"], rtol=1e-6)
-        np.testing.assert_allclose(
-            maps["subsurface_radius_scale"][i], inputs["subsurface_radius_scale"], rtol=1e-6
-        )
-        np.testing.assert_allclose(
-            maps["subsurface_scatter_anisotropy"][i, 0], inputs["subsurface_scatter_anisotropy"], rtol=1e-6
-        )
-    # the test table's g varies with pigment and band: the texels' g differ, and the albedo-weighted mean
-    # differs from the plain mean over bands by far more than the tolerance, so a wrong weighting would fail
-    g_plain = ref["anisotropy"].astype(np.float64).mean(axis=1)
-    assert np.ptp(g_blend) > 0.02 and np.min(np.abs(g_blend - g_plain)) > 1e-4
+    _check_openpbr_texels(table, pts[ys, xs], maps)
     assert res.table_clamped == 0 and res.texels == 40 * 24
 
 
-def _blended_g(table, pts):
-    """The bake's per-texel g, built independently: sum_b A_b g_b and sum_b A_b formed on the table's grid,
-    interpolated by the table's own lookup (an auxiliary Table holding just those two), then divided."""
+def _channel_g(table, pts):
+    """Channel g, built independently: sum_b |W_cb| A_b g_b and sum_b |W_cb| A_b formed on the table's
+    grid, interpolated by the table's own lookup (an auxiliary Table holding just those two), divided."""
     a = table.quantities["albedo_multiple"].astype(np.float64)
     g = table.quantities["anisotropy"].astype(np.float64)
+    w = np.abs(rgb_weights(table.bands, table.working_space, table.illuminant))
     aux = Table(
         axes=table.axes,
         bands=table.bands,
-        quantities={
-            "num": (a * g).sum(axis=-1, keepdims=True).astype(np.float32),
-            "den": a.sum(axis=-1, keepdims=True).astype(np.float32),
-        },
+        quantities={"num": ((a * g) @ w.T).astype(np.float32), "den": (a @ w.T).astype(np.float32)},
         working_space=table.working_space,
         illuminant=table.illuminant,
         manifest={"name": "aux"},
     )
     r, _ = aux.lookup(np.asarray(pts, dtype=np.float64), ["num", "den"])
-    return r["num"][:, 0].astype(np.float64) / r["den"][:, 0]
+    return r["num"].astype(np.float64) / r["den"]
 
 
-def test_anisotropy_and_colour_at_grid_nodes_follow_the_fit_modules_convention(tmp_path, kit):
-    """At texels on the table's grid nodes the baked g is EffectiveMedium.from_summary's albedo-weighted
-    mean g of the node's spectra (matgen.fit.targets), and subsurface_color follows from it."""
+def _check_openpbr_texels(table, pts, maps, a_tol=2e-6):
+    ref, _ = table.lookup(pts, ["rgb_albedo_multiple", "rgb_shape_distance_mm", "ior"])
+    a = ref["rgb_albedo_multiple"].astype(np.float64)
+    d = ref["rgb_shape_distance_mm"].astype(np.float64)
+    n = float(ref["ior"][0, 0])
+    g = np.clip(_channel_g(table, pts).mean(axis=1), 0.0, 0.9)  # the inversion table covers g <= 0.9
+    g_file = maps["subsurface_scatter_anisotropy"][:, 0]
+    np.testing.assert_allclose(g_file, g, rtol=1e-6)
+    gg = np.repeat(g_file[:, None], 3, axis=1)
+    # OpenPBR's remap of the stored colour, then the half-space forward model: the skin's A comes back
+    alpha = albedo_single_OpenPBR2024(maps["subsurface_color"], gg)
+    np.testing.assert_allclose(albedo_multiple(alpha, gg, n), a, rtol=a_tol)
+    med = effective_medium(a, d, gg, n)
+    mfp_cm = maps["subsurface_radius"] * maps["subsurface_radius_scale"]
+    np.testing.assert_allclose(mfp_cm * 10.0, med["mean_free_path_mm"], rtol=1e-5)
+
+
+def test_openpbr_at_grid_nodes_reproduces_each_nodes_reflectance(tmp_path, kit):
+    """At texels on the table's grid nodes, the OpenPBR maps read back through the specification's remap
+    and the boundary-aware forward model return the node's own RGB A, with g varying from node to node."""
     table = kit.make_test_table()
     mel_nodes, eu_nodes, blood_nodes = (table.axes[i].values for i in range(3))
     cfg = kit.make_project(tmp_path / "p", len(blood_nodes), len(mel_nodes), pixel_type="float")
@@ -136,26 +132,13 @@ def test_anisotropy_and_colour_at_grid_nodes_follow_the_fit_modules_convention(t
     kit.write_map(maps / "blood.exr", (blood_nodes[iy] - 0.002) / (0.1 - 0.002))
     out = tmp_path / "out"
     bake(load_config(cfg), out, table=table)
-    g_map = read_exr(out / "openpbr" / "subsurface_scatter_anisotropy.exr")[0][..., 0]
-    colour = read_exr(out / "openpbr" / "subsurface_color.exr")[0]
-    i_s = int(np.flatnonzero(table.axes[3].values == 0.75)[0])
-    target = get_target("openpbr")
-    names = (
-        "albedo_multiple",
-        "anisotropy",
-        "rgb_albedo_single",
-        "rgb_albedo_multiple",
-        "rgb_mean_free_path_mm",
-        "ior",
-    )
-    for y, x in np.ndindex(g_map.shape):
-        node = (ix[y, x], ie[y, x], iy[y, x], i_s)
-        q = {n: table.quantities[n][node][None].astype(np.float64) for n in names}
-        medium = EffectiveMedium.from_summary(q, 0)
-        inputs = target.to_inputs(medium, metres_per_scene_unit=0.01)
-        np.testing.assert_allclose(g_map[y, x], inputs["subsurface_scatter_anisotropy"], rtol=1e-6)
-        np.testing.assert_allclose(colour[y, x], inputs["subsurface_color"], rtol=1e-6)
-    assert np.ptp(g_map) > 0.05  # g differs from node to node
+    names = ("subsurface_color", "subsurface_radius", "subsurface_radius_scale", "subsurface_scatter_anisotropy")
+    maps = {k: read_exr(out / "openpbr" / f"{k}.exr")[0].reshape(ix.size, -1).astype(np.float64) for k in names}
+    i_s = float(table.axes[3].values[1])
+    pts = np.column_stack([mel_nodes[ix].ravel(), eu_nodes[ie].ravel(), blood_nodes[iy].ravel(),
+                           np.full(ix.size, i_s)])
+    _check_openpbr_texels(table, pts, maps)
+    assert np.ptp(maps["subsurface_scatter_anisotropy"]) > 0.05  # g differs from node to node
 
 
 def test_half_float_output_within_half_precision(tmp_path, kit):

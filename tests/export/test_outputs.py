@@ -23,7 +23,7 @@ from matgen.errors import ConfigError, DataError, PathError
 from matgen.export.descriptor import descriptor_schema, inspect_descriptor, validate_descriptor
 from matgen.export.exr import read_exr, write_exr
 from matgen.export.job import bake
-from matgen.export.materialx import openpbr_document, validate_file
+from matgen.export.materialx import material_document, validate_file
 from matgen.tables.store import Table
 
 PASSES_EXTRA = 'passes = ["uv365", "nir850"]\n'
@@ -293,7 +293,8 @@ def test_materialx_only_subsurface_color_is_colour_managed(baked):
 
 def test_materialx_validation_catches_a_misspelt_input():
     with pytest.raises(DataError, match="subsurface_colour"):
-        openpbr_document("m", {"subsurface_colour": {"value": 1.0}}, "ACEScg")
+        material_document("m", [("open_pbr_surface", {"subsurface_colour": {"value": 1.0, "type": "float"}})],
+                          "ACEScg")
 
 
 def test_pass_maps_are_response_weighted_albedo(baked):
@@ -434,18 +435,37 @@ def test_srgb_tagged_png_warns_and_is_read_as_data(tmp_path, kit):
         np.testing.assert_allclose(r8.read_rows(0, 4), np.round(vals * 255) / 255, atol=1e-7)
 
 
-def test_standard_surface_target_shares_the_openpbr_maps(tmp_path, kit):
+def test_standard_surface_target_writes_its_own_maps_and_node(tmp_path, kit):
+    """standard_surface gets its own maps (radius = per-channel mfp / scale, scale = largest mfp) and a
+    real standard_surface node; read back through MaterialX's graph convention (mfp = radius x scale) the
+    mean free path equals OpenPBR's (radius x radius_scale) texel by texel."""
+    import MaterialX as mx
+
     cfg = kit.make_project(tmp_path / "p", 8, 8)
-    cfg.write_text(cfg.read_text().replace("passes = []", 'passes = []\ntargets = ["standard_surface"]'))
+    cfg.write_text(
+        cfg.read_text().replace("passes = []", 'passes = []\ntargets = ["openpbr", "standard_surface"]')
+    )
     res = bake(load_config(cfg), tmp_path / "out")
     doc = json.loads(res.descriptor.read_text())
-    assert set(doc["targets"]) == {"standard_surface"}
+    assert set(doc["targets"]) == {"openpbr", "standard_surface"}
     inputs = doc["targets"]["standard_surface"]["inputs"]
-    assert inputs["subsurface_radius"]["texture"] == "openpbr/subsurface_radius_scale.exr"
-    assert inputs["subsurface_scale"]["texture"] == "openpbr/subsurface_radius.exr"
+    assert inputs["subsurface_radius"]["texture"] == "standard_surface/subsurface_radius.exr"
+    assert inputs["subsurface_scale"]["texture"] == "standard_surface/subsurface_scale.exr"
     for entry in inputs.values():
         if "texture" in entry:
             assert (tmp_path / "out" / entry["texture"]).is_file()
+    out = tmp_path / "out"
+    ss = read_exr(out / "standard_surface" / "subsurface_radius.exr")[0] * read_exr(
+        out / "standard_surface" / "subsurface_scale.exr")[0]
+    op = read_exr(out / "openpbr" / "subsurface_radius_scale.exr")[0] * read_exr(
+        out / "openpbr" / "subsurface_radius.exr")[0]
+    np.testing.assert_allclose(ss, op, rtol=1e-6)
+    mdoc = mx.createDocument()
+    mx.readFromXmlFile(mdoc, str(out / "material.mtlx"))
+    categories = sorted(n.getCategory() for n in mdoc.getNodes() if n.getType() == "surfaceshader")
+    assert categories == ["open_pbr_surface", "standard_surface"]
+    ok, message = validate_file(out / "material.mtlx")
+    assert ok, message
 
 
 def test_tiff_maps_read_as_data_without_colour_tag(tmp_path, kit):
