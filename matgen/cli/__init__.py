@@ -22,6 +22,7 @@ COMMAND_MODULES = (
     "fit",
     "table",
     "bake",
+    "estimate",
     "inspect",
     "validate",
     "preview",
