@@ -158,7 +158,9 @@ def run(args) -> int:
                 bar.update(done - bar.n)
 
         try:
-            result = estimate(plan, args.out, progress=progress, memory_budget_bytes=int(args.memory_mb) << 20)
+            result = estimate(
+                plan, args.out, progress=progress, memory_budget_bytes=int(args.memory_mb) << 20
+            )
         finally:
             if bar is not None:
                 bar.close()
@@ -172,10 +174,10 @@ def run(args) -> int:
     print(f"estimated {result.texels} texels in {result.seconds:.1f} s into {result.out_dir}")
     print(f"  estimated: {', '.join(s['model']['estimated'])}; held: {s['model']['held']}")
     print(
-        f"  residual CIEDE2000 in gamut: median {res['in_gamut']['p50']:.3f}, p95 {res['in_gamut']['p95']:.3f}; "
+        f"  residual CIEDE2000 in gamut: median {res['in_gamut']['p50']:.3f}, "
+        f"p95 {res['in_gamut']['p95']:.3f}; "
         f"out of gamut: {100 * s['out_of_gamut']['share']:.2f} % of texels"
     )
     print(f"  bake it with: matgen bake {Path(args.out) / 'material.toml'} --out <folder>")
     print(f"  {CAUTION}")
     return 0
-

@@ -141,7 +141,7 @@ def resolve_input_space(name: str, source: str, working_space: str, transfer: st
 
 
 def integer_format(fmt: str) -> bool:
-    """True for OpenImageIO integer pixel formats (``uint8``, ``uint16``...)."""
+    """Tell whether an OpenImageIO pixel format is an integer one (``uint8``, ``uint16``...)."""
     return "int" in str(fmt).lower()
 
 
@@ -249,12 +249,15 @@ def scan_file(info, nchannels: int, what: str, rows_per_read: int = 256) -> None
             scan_rows(reader.read_rows(y0, y1), y0, stats)
     if stats:
         where = f"{info.path}" + (f" (UDIM tile {info.tile})" if info.tile is not None else "")
-        parts = [f"{n} texel(s) {label}, the first at texel (x={f[0]}, y={f[1]})" for label, (n, f) in stats.items()]
+        parts = [
+            f"{n} texel(s) {label}, the first at texel (x={f[0]}, y={f[1]})"
+            for label, (n, f) in stats.items()
+        ]
         raise ImageError(
             f"{what} {where}: {'; '.join(parts)}; albedo and capture values must be finite and in [0, 1]"
         )
 
 
 def tile_file(pattern, tile) -> Path:
-    """The file of UDIM ``tile`` of ``pattern`` (the pattern itself for a single file)."""
+    """Return the file of UDIM ``tile`` of ``pattern`` (the pattern itself for a single file)."""
     return tile_path(Path(pattern), tile)

@@ -302,7 +302,7 @@ def solve_kernel(
 
 @numba.njit(cache=True, parallel=True)
 def grid_guess_kernel(target, origin, step, counts, index, cand_x, out_x):
-    """Starting coordinates from the inverse grid: the candidate stored for the target's Lab cell.
+    """Look up starting coordinates in the inverse grid: the candidate stored for the target's Lab cell.
 
     ``origin``, ``step`` (3,) and ``counts`` (3,) describe a regular grid over L*, a*, b*; ``index`` (cells,)
     holds per cell the row of ``cand_x`` (M, k) nearest to its centre. Targets outside use the nearest cell.
@@ -319,8 +319,3 @@ def grid_guess_kernel(target, origin, step, counts, index, cand_x, out_x):
         for i in range(k):
             out_x[p, i] = cand_x[row, i]
 
-
-def as_kernel_arrays(prepared):
-    """The (coords, offsets, strides, grid) of :func:`matgen.tables.interpolate.prepare`, grid as float64."""
-    coords, offsets, strides, flat = prepared
-    return coords, offsets, strides, np.ascontiguousarray(flat, dtype=np.float64)

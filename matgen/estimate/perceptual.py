@@ -1,4 +1,4 @@
-"""CIELAB and CIEDE2000 per texel, compiled. Units: XYZ and RGB relative (white Y = 1); L*, a*, b* in CIE units.
+"""CIELAB and CIEDE2000 per texel, compiled. Units: XYZ and RGB relative (white Y = 1); L*, a*, b*: CIE.
 
 CIELAB follows CIE 15:2004 (``CIE2004``) with the reference white given as XYZ (Y = 1):
 ``f(t) = t^(1/3)`` above ``(6/29)^3``, else ``t / (3 (6/29)^2) + 4/29``; ``L* = 116 f(Y/Yn) - 16``,
@@ -83,7 +83,7 @@ def _hue_deg(b, a):
 
 @numba.njit(cache=True)
 def de2000_texel(l1, a1, b1, l2, a2, b2):
-    """CIEDE2000 colour difference of two CIELAB colours (Sharma, Wu & Dalal 2005 Eqs. 1-22, ``Sharma2005``)."""
+    """CIEDE2000 difference of two CIELAB colours (Sharma, Wu & Dalal 2005 Eqs. 1-22, ``Sharma2005``)."""
     c1 = math.sqrt(a1 * a1 + b1 * b1)
     c2 = math.sqrt(a2 * a2 + b2 * b2)
     cm7 = ((c1 + c2) / 2.0) ** 7

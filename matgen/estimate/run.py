@@ -134,9 +134,13 @@ def _capture_weights(name: str, response: str, bands) -> np.ndarray:
 
 def _space(req: EstimateRequest, info, working_space: str):
     if req.colour_space:
-        return inputs.resolve_input_space(req.colour_space, "option --colour-space", working_space, req.transfer)
+        return inputs.resolve_input_space(
+            req.colour_space, "option --colour-space", working_space, req.transfer
+        )
     if info.colorspace:
-        return inputs.resolve_input_space(info.colorspace, f"file tag of {info.path}", working_space, req.transfer)
+        return inputs.resolve_input_space(
+            info.colorspace, f"file tag of {info.path}", working_space, req.transfer
+        )
     raise ParameterError(
         f"albedo {info.path} carries no colour-space tag; declare it with --colour-space "
         "(e.g. acescg, lin_rec709, srgb)"
@@ -202,7 +206,9 @@ class EstimateStrip:
     albedo_in: np.ndarray
 
 
-def iter_estimate_strips(plan: EstimatePlan, tile, *, memory_budget_bytes: int = 256 << 20, jobs=None, rows=None):
+def iter_estimate_strips(
+    plan: EstimatePlan, tile, *, memory_budget_bytes: int = 256 << 20, jobs=None, rows=None
+):
     """Solve one tile strip by strip; yields :class:`EstimateStrip`."""
     ti = next(t for t in plan.tiles if t.tile == tile)
     model = plan.model
@@ -237,7 +243,7 @@ def iter_estimate_strips(plan: EstimatePlan, tile, *, memory_budget_bytes: int =
 
 
 def material_config(plan: EstimatePlan) -> dict:
-    """The material config (as a TOML-ready mapping) that bakes the estimated maps."""
+    """Return the material config (as a TOML-ready mapping) that bakes the estimated maps."""
     udim = any(t.tile is not None for t in plan.tiles)
     params = {}
     for ax in plan.table.axes:
@@ -352,7 +358,9 @@ def estimate(plan: EstimatePlan, out_dir, *, progress=None, memory_budget_bytes:
                 shutil.copyfile(src.with_suffix(".json"), staging / "table" / f"{src.stem}.json")
             files = plan.files()
             seconds = time.perf_counter() - t0
-            summary = acc.summary(plan, CAUTION, {rel: sha256_file(staging / rel) for rel in files[:-1]}, seconds)
+            summary = acc.summary(
+                plan, CAUTION, {rel: sha256_file(staging / rel) for rel in files[:-1]}, seconds
+            )
             (staging / "estimate.json").write_text(json.dumps(summary, indent=1) + "\n")
             for rel in files:
                 dst = out_dir / rel
@@ -364,7 +372,7 @@ def estimate(plan: EstimatePlan, out_dir, *, progress=None, memory_budget_bytes:
 
 
 def load_table_for(table_path):
-    """The table of ``table_path`` (None: the shipped default) and its source path (None for the default)."""
+    """Load the table of ``table_path`` (None: the shipped default); return it and its path (or None)."""
     from matgen.tables.store import Table, load_default_table
 
     if table_path in (None, "default"):

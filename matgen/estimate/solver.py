@@ -150,7 +150,7 @@ class InverseModel:
 
     # ------------------------------------------------------------------ solve
     def initial_guess(self, target: np.ndarray, jobs: int | None = None) -> np.ndarray:
-        """Starting coordinates (N, k) of each texel from the coarse inverse grid (or the k-d tree)."""
+        """Find starting coordinates (N, k) of each texel in the coarse inverse grid (or the k-d tree)."""
         n, k = target.shape[0], len(self.estimated)
         out = np.empty((n, k))
         if self.grid_index is not None:
@@ -225,7 +225,8 @@ def _check_roles(table, estimate, held, priors):
     estimable = [n for n in names if n in ESTIMABLE_AXES]
     if not estimable:
         raise TableError(
-            f"the table's axes {names} hold none of the axes colour can estimate ({', '.join(ESTIMABLE_AXES)})"
+            f"the table's axes {names} hold none of the axes colour can estimate "
+            f"({', '.join(ESTIMABLE_AXES)})"
         )
     if estimate is None:
         estimate = [n for n in DEFAULT_ESTIMATED if n in names] or estimable[:1]
@@ -240,7 +241,9 @@ def _check_roles(table, estimate, held, priors):
             raise ParameterError(f"axis '{n}' is both estimated and held at {held[n]}; choose one")
     for n in priors:
         if n not in estimate:
-            raise ParameterError(f"a prior is given for '{n}', which is not estimated; add it to the estimate")
+            raise ParameterError(
+                f"a prior is given for '{n}', which is not estimated; add it to the estimate"
+            )
     if len(estimate) > 4:
         raise ParameterError("at most 4 axes can be estimated at once")
     return names, estimate
@@ -300,7 +303,9 @@ def _candidates(model: InverseModel) -> None:
         hi = model.cand_f.max(axis=0) + GRID_MARGIN
         counts = np.full(3, GRID_CELLS, dtype=np.int64)
         step = (hi - lo) / counts
-        centres = np.meshgrid(*[lo[d] + (np.arange(GRID_CELLS) + 0.5) * step[d] for d in range(3)], indexing="ij")
+        centres = np.meshgrid(
+            *[lo[d] + (np.arange(GRID_CELLS) + 0.5) * step[d] for d in range(3)], indexing="ij"
+        )
         centres = np.stack([c.ravel() for c in centres], axis=1)
         _, index = model.tree.query(centres * model.weights, workers=1)
         model.grid_index = (lo, step, counts, np.ascontiguousarray(index, dtype=np.int64))
@@ -381,9 +386,7 @@ def build_model(
         arrays=(coords, offsets, strides, np.ascontiguousarray(grid.reshape(-1, grid.shape[-1]))),
         is_log=np.array([a.spacing == "log" for a in est_axes]),
         prior_mu=np.array([priors.get(n, (0.0, 0.0))[0] for n in estimate], dtype=np.float64),
-        prior_isig=np.array(
-            [1.0 / priors[n][1] if n in priors else 0.0 for n in estimate], dtype=np.float64
-        ),
+        prior_isig=np.array([1.0 / priors[n][1] if n in priors else 0.0 for n in estimate], dtype=np.float64),
         weights=np.ones(3 + len(captures)),
         gamut_tolerance=float(gamut_tolerance),
         iterations=int(iterations),

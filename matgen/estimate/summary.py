@@ -40,7 +40,11 @@ class SummaryAccumulator:
         self.edges = []
         for ax in model.axes:
             lo, hi = float(ax.values[0]), float(ax.values[-1])
-            e = np.geomspace(lo, hi, PIGMENT_BINS + 1) if ax.spacing == "log" else np.linspace(lo, hi, PIGMENT_BINS + 1)
+            e = (
+                np.geomspace(lo, hi, PIGMENT_BINS + 1)
+                if ax.spacing == "log"
+                else np.linspace(lo, hi, PIGMENT_BINS + 1)
+            )
             self.edges.append(e)
         self.counts = [np.zeros(PIGMENT_BINS, dtype=np.int64) for _ in model.axes]
         self.sums = np.zeros(len(model.axes))
@@ -89,7 +93,7 @@ class SummaryAccumulator:
         return out
 
     def summary(self, plan, caution: str, checksums: dict, seconds: float) -> dict:
-        """The JSON summary of a finished estimate."""
+        """Return the JSON summary of a finished estimate."""
         pigments = {}
         for i, ax in enumerate(self.model.axes):
             pigments[ax.name] = {

@@ -45,7 +45,9 @@ def write_image(path, values, pixel_type=oiio.FLOAT, colorspace=None):
 def noisy(values, rng):
     """Capture-like noise (module docstring) added to an array of albedo values."""
     v = np.asarray(values, dtype=np.float64)
-    return v * (1.0 + NOISE_RELATIVE * rng.standard_normal(v.shape)) + NOISE_ABSOLUTE * rng.standard_normal(v.shape)
+    return v * (1.0 + NOISE_RELATIVE * rng.standard_normal(v.shape)) + NOISE_ABSOLUTE * rng.standard_normal(
+        v.shape
+    )
 
 
 def bake_truth(folder, maps: dict, held: dict, passes=("uv365", "nir850"), pixel_type="float"):

@@ -1,4 +1,4 @@
-"""``matgen estimate``: colour spaces, UDIM sets, outputs the bake accepts, and refusals that write nothing."""
+"""``matgen estimate``: colour spaces, UDIM sets, outputs the bake accepts, refusals that write nothing."""
 
 import json
 
@@ -57,7 +57,7 @@ def test_outputs_summary_and_config_baked_as_is(albedo, tmp_path, capsys, ekit):
         from matgen.provenance import sha256_file
 
         assert sha256_file(out / rel) == sha
-    pixels, channels, attrs = ekit.read(out / "maps" / "melanin_fraction.exr"), None, None
+    pixels = ekit.read(out / "maps" / "melanin_fraction.exr")
     assert pixels.shape == (24, 32, 1)
     assert np.max(np.abs(pixels[..., 0] / maps["melanin_fraction"] - 1)) < 0.01
     spec = oiio.ImageInput.open(str(out / "maps" / "melanin_fraction.exr"))
@@ -166,7 +166,15 @@ def test_refusals(albedo, tmp_path, capsys, ekit):
     assert "eumelanin_share = 2" in msg
     bad_curve = tmp_path / "swir.csv"
     bad_curve.write_text("wavelength_nm,weight\n1100,0\n1200,1\n1300,0\n")
-    msg = _refused(capsys, out, path, "--colour-space", "acescg", "--capture", f"{bad_curve}={baked / 'passes' / 'uv365.exr'}")
+    msg = _refused(
+        capsys,
+        out,
+        path,
+        "--colour-space",
+        "acescg",
+        "--capture",
+        f"{bad_curve}={baked / 'passes' / 'uv365.exr'}",
+    )
     assert "swir" in msg and "outside the table's bands" in msg
     small = tmp_path / "small.exr"
     ekit.write_image(small, np.full((4, 4), 0.3))

@@ -1,4 +1,4 @@
-"""CIELAB and CIEDE2000 kernels against colour-science, and the compiled kernels against their Python twins."""
+"""CIELAB and CIEDE2000 kernels against colour-science; compiled kernels against their Python twins."""
 
 import json
 import os
@@ -47,7 +47,7 @@ def test_de2000_matches_colour_science():
 
 
 def test_lab_matches_colour_science_in_both_segments():
-    """colour-science 0.4.7 ``XYZ_to_Lab`` with the ACEScg white; dark colours exercise CIELAB's linear part."""
+    """colour-science 0.4.7 ``XYZ_to_Lab``, ACEScg white; dark colours exercise CIELAB's linear part."""
     import colour
 
     rng = np.random.default_rng(5)
@@ -60,7 +60,9 @@ def test_lab_matches_colour_science_in_both_segments():
     # white is L* = 100, a* = b* = 0 in every working space
     for space in ("ACEScg", "rec709", "rec2020"):
         assert np.allclose(rgb_to_lab(np.ones((1, 3)), _space_matrix(space)), [[100, 0, 0]], atol=1e-9)
-    assert np.allclose(lightness(np.array([1.0, 0.18])), [100.0, colour.XYZ_to_Lab([0.18] * 3, [1 / 3, 1 / 3])[0]])
+    assert np.allclose(
+        lightness(np.array([1.0, 0.18])), [100.0, colour.XYZ_to_Lab([0.18] * 3, [1 / 3, 1 / 3])[0]]
+    )
 
 
 TWIN_SCRIPT = r"""

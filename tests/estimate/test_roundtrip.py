@@ -20,7 +20,9 @@ def _lab(rgb):
     import colour
 
     cs = colour.RGB_COLOURSPACES["ACEScg"]
-    return colour.XYZ_to_Lab(np.asarray(rgb, dtype=float).reshape(-1, 3) @ cs.matrix_RGB_to_XYZ.T, cs.whitepoint)
+    return colour.XYZ_to_Lab(
+        np.asarray(rgb, dtype=float).reshape(-1, 3) @ cs.matrix_RGB_to_XYZ.T, cs.whitepoint
+    )
 
 
 def _de(a, b):
@@ -105,7 +107,11 @@ def grid_truth(tmp_path_factory, ekit):
 
 def _blockwise_p95(err, shape, block=12):
     h, w = shape
-    e = err.reshape(h // block, block, w // block, block).transpose(0, 2, 1, 3).reshape(h // block, w // block, -1)
+    e = (
+        err.reshape(h // block, block, w // block, block)
+        .transpose(0, 2, 1, 3)
+        .reshape(h // block, w // block, -1)
+    )
     return np.percentile(e, 95, axis=2)
 
 
@@ -157,11 +163,17 @@ def test_captures_make_all_four_axes_estimable(tmp_path_factory, ekit, table):
     folder = tmp_path_factory.mktemp("four")
     baked = ekit.bake_truth(folder, maps, {})
     files = {}
-    for name, rel in (("albedo", "rgb/albedo_multiple.exr"), ("uv365", "passes/uv365.exr"), ("nir850", "passes/nir850.exr")):
+    for name, rel in (
+        ("albedo", "rgb/albedo_multiple.exr"),
+        ("uv365", "passes/uv365.exr"),
+        ("nir850", "passes/nir850.exr"),
+    ):
         path = folder / f"scan_{name}.exr"
         ekit.write_image(path, ekit.noisy(ekit.read(baked / rel), rng))
         files[name] = path
-    held = _estimate(folder / "held", files["albedo"], "--fix", "eumelanin_share=0.55", "--fix", "oxygen_saturation=0.725")
+    held = _estimate(
+        folder / "held", files["albedo"], "--fix", "eumelanin_share=0.55", "--fix", "oxygen_saturation=0.725"
+    )
     four = _estimate(
         folder / "four",
         files["albedo"],
@@ -180,7 +192,13 @@ def test_captures_make_all_four_axes_estimable(tmp_path_factory, ekit, table):
 
     for axis in maps:
         rel = axis in ("melanin_fraction", "blood_fraction")
-        print(axis, "held" if rel else "", round(p95(held, axis), 4) if rel else "", "four", round(p95(four, axis, rel), 4))
+        print(
+            axis,
+            "held" if rel else "",
+            round(p95(held, axis), 4) if rel else "",
+            "four",
+            round(p95(four, axis, rel), 4),
+        )
     for axis in ("melanin_fraction", "blood_fraction"):
         assert p95(four, axis) <= 0.05
         assert p95(held, axis) > 2 * p95(four, axis)

@@ -68,9 +68,9 @@ def test_interpolant_gradient_matches_central_differences(table):
             xp, xm = x.copy(), x.copy()
             xp[j] += step
             xm[j] -= step
-            fd = (model.forward(model.to_values(xp[None]))[0] - model.forward(model.to_values(xm[None]))[0]) / (
-                2 * step
-            )
+            fd = (
+                model.forward(model.to_values(xp[None]))[0] - model.forward(model.to_values(xm[None]))[0]
+            ) / (2 * step)
             assert np.allclose(jac[:, j], fd, rtol=1e-4, atol=1e-4 * np.abs(fd).max())
 
 
@@ -121,7 +121,9 @@ def test_a_prior_decides_an_axis_colour_leaves_open(table):
     rgb = table.lookup(pts, "rgb_albedo_multiple")[0]["rgb_albedo_multiple"]
     est = ["melanin_fraction", "eumelanin_share", "blood_fraction"]
     free = build_model(table, estimate=est, held={"oxygen_saturation": 0.8})
-    tight = build_model(table, estimate=est, held={"oxygen_saturation": 0.8}, priors={"eumelanin_share": (0.6, 0.01)})
+    tight = build_model(
+        table, estimate=est, held={"oxygen_saturation": 0.8}, priors={"eumelanin_share": (0.6, 0.01)}
+    )
     f = free.solve(free.features_of(rgb))
     t = tight.solve(tight.features_of(rgb))
     assert np.median(np.abs(f.values[:, 1] - 0.3)) < 0.02  # noise-free: colour alone finds it
@@ -169,7 +171,9 @@ def test_solver_kernel_matches_its_pure_python_twin():
         env = dict(os.environ, PYTHONPATH=str(ROOT))
         if not jit:
             env["NUMBA_DISABLE_JIT"] = "1"
-        proc = subprocess.run([sys.executable, "-c", SOLVE_TWIN], capture_output=True, text=True, env=env, cwd=ROOT)
+        proc = subprocess.run(
+            [sys.executable, "-c", SOLVE_TWIN], capture_output=True, text=True, env=env, cwd=ROOT
+        )
         assert proc.returncode == 0, proc.stderr
         outs.append(json.loads(proc.stdout))
     assert np.max(np.abs(np.array(outs[0]["x"]) - np.array(outs[1]["x"]))) < 1e-8
