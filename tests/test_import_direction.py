@@ -16,6 +16,7 @@ RANK = {
     "targets": 5,
     "bake": 6,
     "export": 7,
+    "estimate": 7.5,
     "preview": 8,
     "lut": 5,
     "scenario": 8,

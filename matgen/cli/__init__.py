@@ -74,6 +74,7 @@ COMMAND_MODULES = (
     "fit",
     "table",
     "bake",
+    "estimate",
     "inspect",
     "validate",
     "preview",

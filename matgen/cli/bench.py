@@ -12,6 +12,7 @@ BENCHES = {
     "transport": "matgen.transport.bench",
     "tables": "matgen.tables.bench",
     "bake": "matgen.bake.bench",
+    "estimate": "matgen.estimate.bench",
 }
 
 
