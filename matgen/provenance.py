@@ -55,7 +55,7 @@ def sha256_file(path, chunk_bytes: int = 1 << 20) -> str:
 
 
 def code_version() -> str:
-    """The matgen version string that enters every content hash."""
+    """Return the matgen version string that enters every content hash."""
     return __version__
 
 

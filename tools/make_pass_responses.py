@@ -44,13 +44,15 @@ CURVES = {
         "range_nm": (750.0, 960.0),
         "make": lambda wl: gaussian(wl, 850.0, 40.0) * logistic(wl, 800.0, 5.0) * silicon_slope(wl),
         "description": "850 nm infrared illuminator (Gaussian, FWHM 40 nm) through a long-pass filter "
-        "(logistic edge at 800 nm, 5 nm scale) on a silicon sensor (QE falling linearly 1 -> 0.2 over 700-1000 nm)",
+        "(logistic edge at 800 nm, 5 nm scale) on a silicon sensor "
+        "(QE falling linearly 1 -> 0.2 over 700-1000 nm)",
     },
     "nir940": {
         "range_nm": (840.0, 1040.0),
         "make": lambda wl: gaussian(wl, 940.0, 40.0) * logistic(wl, 900.0, 5.0) * silicon_slope(wl),
         "description": "940 nm infrared illuminator (Gaussian, FWHM 40 nm) through a long-pass filter "
-        "(logistic edge at 900 nm, 5 nm scale) on a silicon sensor (QE falling linearly 1 -> 0.2 over 700-1000 nm)",
+        "(logistic edge at 900 nm, 5 nm scale) on a silicon sensor "
+        "(QE falling linearly 1 -> 0.2 over 700-1000 nm)",
     },
 }
 
@@ -70,7 +72,10 @@ def main():
             "units": "wavelength_nm in nm; weight relative (peak 1), normalised by matgen over the band set",
             "license": "BSD-3-Clause (part of matgen)",
             "wavelength_range_nm": [lo, hi],
-            "resampling": "evaluated analytically every 1 nm; matgen integrates the piecewise-linear curve over each band",
+            "resampling": (
+                "evaluated analytically every 1 nm; "
+                "matgen integrates the piecewise-linear curve over each band"
+            ),
             "generated_by": "tools/make_pass_responses.py",
         }
         (OUT / f"{name}.provenance.json").write_text(json.dumps(record, indent=2) + "\n")

@@ -53,7 +53,7 @@ def _colour():
 
 
 def resolve_space(space: str):
-    """Return the colour-science RGB colourspace for ``space`` (name or alias; linear encoding is always used).
+    """Return the colour-science RGB colourspace for ``space`` (name or alias; always linear encoding).
 
     Raises :class:`ParameterError` naming the space and a few known names.
     """

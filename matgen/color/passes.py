@@ -89,7 +89,8 @@ def load_response(name_or_csv_path):
     path = Path(key)
     if not path.is_file():
         raise DataError(
-            f"response curve {key!r} is neither a built-in pass ({', '.join(BUILTIN_PASSES)}) nor a readable CSV file"
+            f"response curve {key!r} is neither a built-in pass ({', '.join(BUILTIN_PASSES)}) "
+            "nor a readable CSV file"
         )
     try:
         text = limits.read_text_limited(path, "response curve")

@@ -70,7 +70,8 @@ def validate_profiles(ring_edges_mm, radial_per_mm2, radial_stderr, albedo_multi
         if bad.any():
             idx = np.unravel_index(int(np.argmax(bad)), arr.shape)
             raise FitError(
-                f"{what}: {name}[{', '.join(map(str, idx))}] is {arr[idx]!r}; ring values must be finite and >= 0"
+                f"{what}: {name}[{', '.join(map(str, idx))}] is {arr[idx]!r}; "
+                "ring values must be finite and >= 0"
             )
     empty = ~np.any(y > 0, axis=-1)
     if empty.any():

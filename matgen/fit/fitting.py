@@ -98,7 +98,8 @@ def _reduced_albedo_for(total, n_relative):
     top = float(dipole_total_Jensen2001(1.0, n_relative))
     if not 0.0 < total < top:
         raise FitError(
-            f"albedo_multiple = {total:.6g} is outside the range the dipole reaches (0, {top:.6g}) for eta = {n_relative:g}"
+            f"albedo_multiple = {total:.6g} is outside the range the dipole reaches (0, {top:.6g}) "
+            f"for eta = {n_relative:g}"
         )
     return brentq(lambda x: float(dipole_total_Jensen2001(x, n_relative)) - total, 0.0, 1.0, xtol=1e-14)
 

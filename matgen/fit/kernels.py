@@ -1,7 +1,7 @@
 """Numba kernel of the normalised-diffusion fit.
 
-Its pure-Python twin is the NumPy path of :func:`matgen.fit.diffusion.fit_burley2015` (``backend="numpy"``), checked for parity in
-``tests/fit/test_kernel_parity.py``. Units: radii and d in mm, profiles in mm^-2.
+Its pure-Python twin is the NumPy path of :func:`matgen.fit.diffusion.fit_burley2015` (``backend="numpy"``),
+checked for parity in ``tests/fit/test_kernel_parity.py``. Units: radii and d in mm, profiles in mm^-2.
 
 One profile per parallel iteration: coarse log-d grid, then golden-section search, each cost evaluated in
 one fused loop over the rings (no temporaries). Same steps, same order of comparisons as the twin.
@@ -19,7 +19,10 @@ _INVPHI = (math.sqrt(5.0) - 1.0) / 2.0
 
 @numba.njit(cache=True)
 def ring_fraction(r0, dr, d):
-    """Fraction of the normalised-diffusion reflectance (A = 1) leaving through [r0, r0 + dr) (``Christensen2015``)."""
+    """Fraction of the normalised-diffusion reflectance (A = 1) leaving through [r0, r0 + dr).
+
+    ``Christensen2015``; radii and d in mm.
+    """
     return 0.25 * (
         math.exp(-r0 / d) * -math.expm1(-dr / d)
         + 3.0 * math.exp(-r0 / (3.0 * d)) * -math.expm1(-dr / (3.0 * d))

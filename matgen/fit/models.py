@@ -269,7 +269,7 @@ def gaussian_sum_profile(radius_mm, weights, variances_mm2=GAUSSIAN_VARIANCES_DE
 
 
 def internal_diffuse_reflectance_Groenhuis1983(n_relative):
-    """Compute the internal diffuse Fresnel reflectance F_dr of a boundary of relative index eta (dimensionless).
+    """Compute the internal diffuse Fresnel reflectance F_dr of a boundary of relative index eta.
 
     F_dr = -1.440 / eta^2 + 0.710 / eta + 0.668 + 0.0636 eta (empirical fit).
 

@@ -31,7 +31,8 @@ def test_perfect_reflector_rec709_d65_via_colour_matrix():
 
 def test_perfect_reflector_acescg_d65_with_cat02():
     """ACEScg (ACES white) under D65 with CAT02: colour.XYZ_to_RGB(..., illuminant=D65 xy,
-    chromatic_adaptation_transform='CAT02') maps the perfect reflector to (1, 1, 1) to 1e-3; so does matgen."""
+    chromatic_adaptation_transform='CAT02') maps the perfect reflector to (1, 1, 1) to 1e-3; so does matgen.
+    """
     wl = np.arange(360, 831)
     xyz = _colour_direct_xyz(np.ones(wl.size), wl, "D65")
     d65 = colour.CCS_ILLUMINANTS[CMFS]["D65"]

@@ -1,8 +1,8 @@
-"""Same inputs and seed give bit-identical results across thread counts, executors, task orders and tile splits.
+"""Same inputs and seed: bit-identical results across thread counts, executors, task orders and tile splits.
 
-Compared byte for byte (or array for array with np.array_equal, no tolerance): transport tallies with 1 and
-2 threads and over split photon ranges; table files built by the serial executor (kernels on 2 threads), a
-local pool of 2 processes (1 thread each), a Dask LocalCluster of 2 workers, and farm-style single tasks run in
+Compared byte for byte (or array for array with np.array_equal, no tolerance): transport tallies with 1 and 2
+threads and over split photon ranges; table files built by the serial executor (kernels on 2 threads), a local
+pool of 2 processes (1 thread each), a Dask LocalCluster of 2 workers, and farm-style single tasks run in
 reverse order and merged; bakes with 1 and 2 lookup threads and UDIM tiles baked one by one in reverse order.
 """
 

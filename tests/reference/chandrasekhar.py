@@ -39,7 +39,7 @@ class HFunction:
         return self._apply(mu, self.h)
 
     def reflection_per_sr(self, mu, mu0: float = 1.0):
-        """rho(mu, mu0) = a/(4 pi) H(mu) H(mu0) / (mu + mu0), reflected radiance per incident irradiance (sr^-1)."""
+        """rho(mu, mu0) = a/(4 pi) H(mu) H(mu0) / (mu + mu0), in 1/sr (radiance per incident irradiance)."""
         mu = np.asarray(mu, dtype=np.float64)
         return self.a / (4 * np.pi) * self(mu) * self(mu0)[0] / (mu + mu0)
 

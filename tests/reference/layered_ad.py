@@ -1,4 +1,4 @@
-"""Layered adding-doubling built on iadpython 0.5.3 primitives (a slow, literal reference for transport tests).
+"""Layered adding-doubling on iadpython 0.5.3 primitives (a slow, literal reference for transport tests).
 
 iadpython's ``Sample.rt()`` handles one homogeneous slab between air boundaries. Here each layer's
 reflection and transmission matrices come from ``iadpython.combine.simple_single_layer_matrices`` (same

@@ -12,7 +12,7 @@ needs_jit = pytest.mark.skipif(JIT_DISABLED, reason="Monte Carlo accuracy tests 
 
 
 def benchmark_stack(band: int = 550, mu_a=None) -> Stack:
-    """matgen's own five-layer timing stack at 550 or 800 nm (invented, skin-like values; not a published case)."""
+    """Matgen's own five-layer timing stack at 550 or 800 nm (invented skin-like values, not published)."""
     d = [0.02, 0.10, 0.20, 1.80, 3.00]
     n = [1.55, 1.40, 1.40, 1.40, 1.44]
     if band == 550:

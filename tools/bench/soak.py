@@ -169,13 +169,16 @@ def print_report(rep: dict) -> None:
         f"{rep['workers']} worker processes"
     )
     print(
-        f"  wall {rep['wall_s']:.1f} s, {rep['tiles_per_s']:.2f} tiles/s, {rep['texels_per_s'] / 1e3:.0f} k texels/s; "
+        f"  wall {rep['wall_s']:.1f} s, {rep['tiles_per_s']:.2f} tiles/s, "
+        f"{rep['texels_per_s'] / 1e3:.0f} k texels/s; "
         f"median steady tile {rep['steady_seconds_per_tile_median']:.3f} s"
     )
     for w in rep["per_worker"]:
         print(
-            f"  worker {w['pid']}: {w['tiles']} tiles, RSS {w['rss_first_mb']:.0f} -> {w['rss_last_mb']:.0f} MB, "
-            f"peak {w['maxrss_last_mb']:.0f} MB, slope (2nd half) {w['rss_slope_second_half_mb_per_tile']:+.3f} "
+            f"  worker {w['pid']}: {w['tiles']} tiles, "
+            f"RSS {w['rss_first_mb']:.0f} -> {w['rss_last_mb']:.0f} MB, "
+            f"peak {w['maxrss_last_mb']:.0f} MB, "
+            f"slope (2nd half) {w['rss_slope_second_half_mb_per_tile']:+.3f} "
             f"MB/tile; first tile {w['seconds_first_tile']:.2f} s, median {w['seconds_median_tile']:.3f} s"
         )
     verdict = "flat" if rep["memory_flat"] else "GROWING"
