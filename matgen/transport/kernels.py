@@ -191,7 +191,7 @@ def trace_photon(s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath):
     z_top = lay[0, Z_TOP]
     z_bot = lay[0, Z_BOT]
     mus = lay[0, MU_S]
-    inv_mus = 1.0 / mus
+    inv_mus = 1.0 / mus if mus > 0.0 else 0.0  # clear layer: never used
     mua = lay[0, MU_A]
     iso, hg1, hg2, hg3, hg4, hg5 = hg_constants(lay[0, G])
     visit = 0.0  # path (mm) in this layer since the last drop
@@ -275,7 +275,7 @@ def trace_photon(s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath):
             z_top = lay[layer, Z_TOP]
             z_bot = lay[layer, Z_BOT]
             mus = lay[layer, MU_S]
-            inv_mus = 1.0 / mus
+            inv_mus = 1.0 / mus if mus > 0.0 else 0.0  # clear layer: never used
             mua = lay[layer, MU_A]
             iso, hg1, hg2, hg3, hg4, hg5 = hg_constants(lay[layer, G])
             visit_limit = _roulette_path(mua, log_w)
