@@ -77,7 +77,7 @@ def assemble(job: JobFolder) -> dict:
     dict
         ``albedo_multiple``, ``albedo_multiple_stderr``, ``g_effective`` (N, B); ``radial_per_mm2``,
         ``radial_stderr_per_mm2`` (N, B, R); ``ring_edges_mm`` (R+1,); ``n_top`` (N, B); N = grid points in
-        C order of the grid.
+        C order of the grid; ``photons_total`` (photons of all tasks).
 
     """
     check_complete(job)
@@ -91,8 +91,10 @@ def assemble(job: JobFolder) -> dict:
     n_top = np.full((n_points, n_bands), np.nan)
     radial = np.full((n_points, n_bands, n_rings), np.nan)
     radial_err = np.full((n_points, n_bands, n_rings), np.nan)
-    for task in plan.tasks:
+    photons = 0
+    for task in plan.tasks:  # each output is read (and checked) once
         out = load_task_output(job, task.index)
+        photons += int(out["photons"][0])
         if not np.array_equal(out["ring_edges_mm"], plan.ring_edges_mm):
             raise TableError(f"task {task.index} of {job.path} used other ring edges than its plan")
         flat = np.ravel_multi_index(tuple(out["grid_index"].T), shape)
@@ -115,6 +117,7 @@ def assemble(job: JobFolder) -> dict:
         "g_effective": g_eff,
         "n_top": n_top,
         "ring_edges_mm": plan.ring_edges_mm.copy(),
+        "photons_total": photons,
     }
 
 
@@ -177,7 +180,7 @@ def merge(job: JobFolder) -> Table:
         quantities["albedo_multiple_stderr"] = (
             data["albedo_multiple_stderr"].reshape(shape + (-1,)).astype(np.float32)
         )
-    total_photons = sum(int(load_task_output(job, t.index)["photons"][0]) for t in plan.tasks)
+    total_photons = data["photons_total"]
     manifest = {
         "spec": spec.to_dict(),
         "provenance": {

@@ -17,12 +17,12 @@ Method (Wang, Jacques & Zheng 1995, with absorption applied continuously, as in 
   (one uniform drawn), else refracted by Snell's law; without an index step it passes unchanged and no
   uniform is drawn. Leaving the top is diffuse reflectance, leaving the bottom transmittance.
 * **spin**: Henyey-Greenstein polar cosine (one uniform) and a uniform azimuth (rejection from the unit disc).
-* **roulette**: after a scattering event, below weight ``ROULETTE_WEIGHT`` the packet survives with probability ``ROULETTE_CHANCE``
-  and weight divided by it (unbiased), else it ends (one uniform drawn).
+* **roulette**: after a scattering event, below weight ``ROULETTE_WEIGHT`` the packet survives with
+  probability ``ROULETTE_CHANCE`` and weight divided by it (unbiased), else it ends (one uniform drawn).
 
 Random numbers per photon come in this order: hop, [boundary draws], spin polar, spin azimuth (pairs until
-one falls in the unit disc), [roulette], hop, ... The pure-Python twin :mod:`matgen.transport.kernels_py` follows the same order, and the parity test
-compares both.
+one falls in the unit disc), [roulette], hop, ... The pure-Python twin :mod:`matgen.transport.kernels_py`
+follows the same order, and the parity test compares both.
 
 Tallies are integers: each photon's contribution ``x`` in [0, 1] to a tally (weight, weight squared, ...)
 is rounded to ``round(x * 2^32)`` and summed in int64. Integer sums are associative, so totals are
@@ -44,7 +44,7 @@ import numpy as np
 from numba import njit, prange
 
 from matgen.transport.boundary import fresnel
-from matgen.transport.phase import hg_sample_mu, spin
+from matgen.transport.phase import hg_constants, hg_sample_mu_with, spin
 from matgen.transport.rng import photon_state, uniform, uniform_open0
 
 #: Roulette threshold weight and survival chance (Wang, Jacques & Zheng 1995, sec. 3.9: 1e-4 and 0.1).
@@ -166,8 +166,9 @@ def trace_photon(s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath):
     :func:`_roulette_path`, with the log-weight tracked alongside). The weight is the product of the same
     exponential factors as per-segment decay, up to rounding, and the roulette decision is the exact test
     ``w < ROULETTE_WEIGHT`` on the flushed weight. Hot-loop form: the current layer's constants live in
-    locals, the boundary test compares ``tau |uz| < mu_s * distance`` without a division, and the azimuth
-    comes from a rejection sampler (no trigonometric call).
+    locals (with 1 / mu_s and the Henyey-Greenstein constants of :func:`hg_constants`, two divisions
+    fewer per scattering event), the boundary test compares ``tau |uz| < mu_s * distance`` without a
+    division, and the azimuth comes from a rejection sampler (no trigonometric call).
 
     """
     n_layers = lay.shape[0]
@@ -190,8 +191,9 @@ def trace_photon(s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath):
     z_top = lay[0, Z_TOP]
     z_bot = lay[0, Z_BOT]
     mus = lay[0, MU_S]
+    inv_mus = 1.0 / mus if mus > 0.0 else 0.0  # clear layer: never used
     mua = lay[0, MU_A]
-    g = lay[0, G]
+    iso, hg1, hg2, hg3, hg4, hg5 = hg_constants(lay[0, G])
     visit = 0.0  # path (mm) in this layer since the last drop
     visit_limit = _roulette_path(mua, log_w)
     while True:
@@ -207,7 +209,7 @@ def trace_photon(s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath):
                 auz = -uz
             if tau * auz < mus * dist:
                 # scatters inside this layer: move
-                s = tau / mus
+                s = tau * inv_mus
                 x += s * ux
                 y += s * uy
                 z += s * uz
@@ -273,13 +275,14 @@ def trace_photon(s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath):
             z_top = lay[layer, Z_TOP]
             z_bot = lay[layer, Z_BOT]
             mus = lay[layer, MU_S]
+            inv_mus = 1.0 / mus if mus > 0.0 else 0.0  # clear layer: never used
             mua = lay[layer, MU_A]
-            g = lay[layer, G]
+            iso, hg1, hg2, hg3, hg4, hg5 = hg_constants(lay[layer, G])
             visit_limit = _roulette_path(mua, log_w)
         # spin
         scatterings += 1
         u, s0, s1 = uniform(s0, s1)
-        mu = hg_sample_mu(g, u)
+        mu = hg_sample_mu_with(iso, hg1, hg2, hg3, hg4, hg5, u)
         cos_phi, sin_phi, s0, s1 = sample_azimuth(s0, s1)
         ux, uy, uz = spin(ux, uy, uz, mu, cos_phi, sin_phi)
         # roulette: only when the weight may have fallen below the threshold is it evaluated
@@ -394,7 +397,7 @@ def run_tallies_records(
     rec_weight,
     rec_side,
 ):
-    """As :func:`run_tallies`, and store each photon's record at its local index (arrays of length n_photons)."""
+    """As :func:`run_tallies`, and store each photon's record at its local index (arrays of n_photons)."""
     n_layers = lay.shape[0]
     log_w0 = math.log(w0)
     size = N_SCALAR_TALLIES + 2 * n_layers + 2 * (ring_edges.size - 1) + 2 * (cos_edges.size - 1)

@@ -74,11 +74,18 @@ def fresnel(n_i: float, n_t: float, cos_i: float):
 
 
 def hg_sample(g: float, u: float) -> float:
-    """Henyey-Greenstein cosine by inversion. Source: Wang1995mcml eq. 3.28."""
+    """Henyey-Greenstein cosine by inversion, as the kernel computes it. Source: Wang1995mcml eq. 3.28."""
     if abs(g) < 1.0e-6:
         return 2.0 * u - 1.0
-    t = (1.0 - g * g) / (1.0 - g + 2.0 * g * u)
-    return min(1.0, max(-1.0, (1.0 + g * g - t * t) / (2.0 * g)))
+    one_minus_g2, one_minus_g, two_g, one_plus_g2, inv_two_g = (
+        1.0 - g * g,
+        1.0 - g,
+        2.0 * g,
+        1.0 + g * g,
+        1.0 / (2.0 * g),
+    )
+    t = one_minus_g2 / (one_minus_g + two_g * u)
+    return min(1.0, max(-1.0, (one_plus_g2 - t * t) * inv_two_g))
 
 
 def spin(d, mu: float, cos_phi: float, sin_phi: float):
@@ -153,7 +160,7 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
             else:
                 dist, auz = pos[2] - lay["z_top"], -d[2]
             if tau * auz < lay["mu_s"] * dist:
-                s = tau / lay["mu_s"]
+                s = tau * (1.0 / lay["mu_s"])
                 pos = [pos[0] + s * d[0], pos[1] + s * d[1], pos[2] + s * d[2]]
                 visit += s
                 zmax = max(zmax, pos[2])

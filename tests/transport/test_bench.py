@@ -85,7 +85,9 @@ def test_c_reference_agrees_with_van_de_hulst(tmp_path):
     src = B.Path(__file__).resolve().parents[2] / "tools" / "bench" / "layered_mc.c"
     subprocess.run(["gcc", "-O2", "-o", str(exe), str(src), "-lm"], check=True)
     B.write_layers_file(B.benchmark_stacks()["matched slab"], tmp_path / "slab.layers")
-    _, est = B.run_reference(f"{exe} {{layers}} {{photons}} {{seed}}", tmp_path / "slab.layers", 200_000, 3)
+    cmd = f"{exe} {{layers}} {{photons}} {{seed}}"
+    _, cpu, est = B.run_reference(cmd, tmp_path / "slab.layers", 200_000, 3)
+    assert cpu > 0  # the child's CPU time is accounted
     for key, ref in (("Rd", 0.09739), ("Tt", 0.66096)):
         value, stderr = est[key]
         assert abs(value - ref) <= 3 * stderr, (key, value, stderr)
