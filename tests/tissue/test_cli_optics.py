@@ -19,7 +19,8 @@ def test_cheek_table_and_plot(tmp_path, capsys):
     png = tmp_path / "cheek.png"
     assert main(["optics", "--preset", "cheek", "--plot", str(png)]) == 0
     out = capsys.readouterr().out
-    for name in ("stratum_corneum", "epidermis", "papillary_dermis", "reticular_dermis", "hypodermis", "muscle"):
+    layers = ("stratum_corneum", "epidermis", "papillary_dermis", "reticular_dermis", "hypodermis", "muscle")
+    for name in layers:
         assert name in out
     assert "packaging=on" in out
     assert len([ln for ln in out.splitlines() if ln.strip().startswith(("300.0", "1000.0"))]) == 2
