@@ -89,6 +89,28 @@ JACQUES2013_EPIDERMIS_A_PRIME_PER_CM = 66.7
 JACQUES2013_EPIDERMIS_F_RAY = 0.29
 JACQUES2013_EPIDERMIS_B_MIE = 0.689
 
+#: Generic soft tissue, Jacques 2013 Table 2 ("other soft tissues", the average of the review's muscle, liver
+#: and similar entries): mu_s' = 18.9 (lambda / 500 nm)^-1.286 1/cm (Jacques2013; from memory, the table could
+#: not be re-read). Used for skeletal muscle below the hypodermis, as a pure power law (f_Ray = 0).
+SOFT_TISSUE_JACQUES2013_A_PRIME_PER_CM = 18.9
+SOFT_TISSUE_JACQUES2013_B = 1.286
+
+#: Skeletal muscle below the hypodermis (matgen's deep layer), volume fractions (all from memory): water about
+#: 0.75 of lean muscle (WoodardWhite1986); lipid a few % (0.05 taken); haem
+#: pigment: blood 1-3 % of muscle volume plus myoglobin, whose absorption spectrum resembles haemoglobin's,
+#: taken together as 4 % whole-blood-equivalent haemoglobin at 70 % oxygen saturation (a model choice). The
+#: rest is the bloodless baseline. At 800 nm this gives mu_a = 0.023 1/mm, within the 0.1-0.3 1/cm that
+#: near-infrared spectroscopy of muscle reports (from memory).
+MUSCLE_WATER_FRACTION = 0.75
+MUSCLE_LIPID_FRACTION = 0.05
+MUSCLE_BLOOD_FRACTION = 0.04
+MUSCLE_OXYGEN_SATURATION = 0.7
+
+#: Thickness of the muscle layer that closes the stack, mm (a model choice standing for a semi-infinite
+#: medium: light that reaches 20 mm of muscle below the hypodermis and still leaves its bottom is 0.1-0.2 %
+#: of the incident power at 700-1000 nm, measured with matgen's transport on the cheek preset).
+MUSCLE_THICKNESS_MM = 20.0
+
 #: Subcutaneous adipose tissue, Bashkatov et al. 2005: mu_s' = 1050.6 lambda[nm]^-0.68 1/cm, 400-2000 nm
 #: (Bashkatov2005, from memory).
 FAT_BASHKATOV2005_PER_CM = 1050.6
@@ -101,7 +123,7 @@ G_VANGEMERT1989_SLOPE_PER_NM = 0.29e-3
 #: Refractive indices of the skin layers, dimensionless, non-dispersive (all from memory of the named
 #: sources): stratum corneum (Tearney1995 measured about 1.51 in vivo by OCT; modelled at 1.5-1.55,
 #: Lister2012), viable epidermis (Lister2012; Ding2006), papillary and reticular dermis (Ding2006;
-#: Bolin1989), adipose tissue (Bolin1989), and skeletal muscle below the stack (Bolin1989).
+#: Bolin1989), adipose tissue (Bolin1989), and skeletal muscle, the stack's deepest layer (Bolin1989).
 N_STRATUM_CORNEUM = 1.55
 N_EPIDERMIS = 1.40
 N_PAPILLARY_DERMIS = 1.39

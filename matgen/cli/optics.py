@@ -49,8 +49,9 @@ def register(sub):
         "Print per-layer mu_a, mu_s, g, n and thickness of the skin model over wavelength bands",
         EXAMPLE,
         description=(
-            "Optical coefficients of the five-layer skin model (stratum corneum, epidermis, papillary and "
-            "reticular dermis, hypodermis) for a body-region preset, with any parameter overridden. "
+            "Optical coefficients of the skin model (stratum corneum, epidermis, papillary and reticular "
+            "dermis, hypodermis, and the muscle below them) for a body-region preset, with any parameter "
+            "overridden. "
             "Units: nm, "
             "mm, 1/mm. Sources of every spectrum and law: docs/developers/tissue.md."
         ),
@@ -102,7 +103,7 @@ def format_table(optics: SkinOptics) -> str:
         f"melanin_fraction={p.melanin_fraction:g} eumelanin_share={p.eumelanin_share:g} "
         f"blood_fraction={p.blood_fraction:g} oxygen_saturation={p.oxygen_saturation:g}\n"
     )
-    short = ("SC", "EPI", "PAP", "RET", "HYP")
+    short = ("SC", "EPI", "PAP", "RET", "HYP", "MUS")
     out.write("layers:\n")
     for i, name in enumerate(optics.layer_names):
         out.write(

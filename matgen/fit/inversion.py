@@ -11,10 +11,11 @@ Methods (``method=`` of :func:`albedo_single` and :func:`albedo_multiple`):
   specification v0.4 (``OpenPBR2024``, Subsurface section), the inverse of van de Hulst's
   A = (1 - s)(1 - 0.139 s) / (1 + 1.17 s), s = sqrt((1 - alpha) / (1 - g alpha)) (``vandeHulst1980``);
   index matched;
-- ``"boundary_table"``: matgen's own boundary-aware inversion, a table of A(alpha, g, n) and of the
-  profile scaling l / d computed with matgen's transport engine for a homogeneous half-space under a smooth
+- ``"boundary_table"``: matgen's boundary-aware inversion for a homogeneous half-space under a smooth
   boundary of index n against air (``tools/make_inversion_table.py``; file ``fit/data/inversion_table.npz``
-  with its provenance record), inverted numerically.
+  with its provenance record): A(alpha, g, n) from adding-doubling nodes (``Prahl1993iad``) through a
+  smooth, monotone interpolant (:class:`matgen.fit.albedo_grid.AlbedoGrid`), inverted exactly, and the
+  profile scaling l / d from matgen's transport engine.
 
 The mean free path of the effective medium follows from the fitted shape distance d: l = s d with the
 scaling factor s of Christensen & Burley's searchlight mean-free-path fit s = 1.85 - A + 7 |A - 0.8|^3
@@ -31,6 +32,7 @@ from importlib import resources
 import numpy as np
 
 from matgen.errors import ClampWarning, DataError, FitError, ParameterError
+from matgen.fit.albedo_grid import AlbedoGrid
 from matgen.fit.models import shape_scaling_Christensen2015
 
 #: Names accepted by ``method=``.
@@ -184,6 +186,11 @@ def albedo_single_OpenPBR2024(albedo_multiple, g=0.0):
 class InversionTable:
     """Table of A(alpha, g, n) and of the profile scaling l/d for a homogeneous half-space.
 
+    With an ``albedo_grid`` (the shipped table has one), A and its inverse come from that smooth
+    adding-doubling model and the arrays below serve the scaling l/d (their A is matgen's transport at the
+    same nodes, kept as a cross-check); without one, A is interpolated from ``albedo_multiple`` linearly
+    in the similarity parameter.
+
     Attributes
     ----------
     albedo_single : ndarray, shape (Na,)
@@ -200,6 +207,8 @@ class InversionTable:
         end nodes, where no profile exists; interpolation there uses the neighbouring node).
     provenance : dict
         How the table was made.
+    albedo_grid : AlbedoGrid or None
+        Smooth forward model of A used for lookups and inversion when present.
 
     """
 
@@ -213,6 +222,8 @@ class InversionTable:
         shape_scaling,
         shape_scaling_stderr,
         provenance=None,
+        *,
+        albedo_grid=None,
     ):
         self.albedo_single = np.asarray(albedo_single, dtype=np.float64)
         self.g = np.asarray(g, dtype=np.float64)
@@ -241,12 +252,29 @@ class InversionTable:
         if np.isnan(s).any():
             raise DataError("inversion table: shape_scaling has NaN at interior nodes")
         self._scaling_filled = s
+        self.albedo_grid = albedo_grid
+        lo_g, hi_g, lo_n, hi_n = self.g[0], self.g[-1], self.n[0], self.n[-1]
+        if albedo_grid is not None:
+            lo_g, hi_g = max(lo_g, albedo_grid.g[0]), min(hi_g, albedo_grid.g[-1])
+            lo_n, hi_n = max(lo_n, albedo_grid.n[0]), min(hi_n, albedo_grid.n[-1])
+        #: Covered (g, n) domain: the intersection of both grids.
+        self.g_range = (float(lo_g), float(hi_g))
+        self.n_range = (float(lo_n), float(hi_n))
 
     # -- io --------------------------------------------------------------------------------------------
     def save(self, path_npz, path_provenance=None):
         """Write the table (``.npz``) and, if given, its provenance record (JSON)."""
+        grid = {}
+        if self.albedo_grid is not None:
+            grid = {
+                "grid_similarity": self.albedo_grid.similarity,
+                "grid_g": self.albedo_grid.g,
+                "grid_n": self.albedo_grid.n,
+                "grid_log_ratio": self.albedo_grid.log_ratio,
+            }
         np.savez_compressed(
             path_npz,
+            **grid,
             albedo_single=self.albedo_single,
             g=self.g,
             n=self.n,
@@ -272,8 +300,16 @@ class InversionTable:
         if path_provenance is not None:
             with open(path_provenance) as fh:
                 prov = json.load(fh)
+        grid = None
+        keys = ("grid_similarity", "grid_g", "grid_n", "grid_log_ratio")
+        if any(k in arrays for k in keys):
+            try:
+                parts = [arrays.pop(k) for k in keys]
+            except KeyError as exc:
+                raise DataError(f"inversion table {path_npz} lacks the albedo grid array {exc}") from exc
+            grid = AlbedoGrid(*parts, provenance=prov.get("albedo_grid"))
         try:
-            return cls(provenance=prov, **arrays)
+            return cls(provenance=prov, albedo_grid=grid, **arrays)
         except TypeError as exc:
             raise DataError(f"inversion table {path_npz} lacks arrays ({exc})") from exc
 
@@ -285,14 +321,11 @@ class InversionTable:
         """Bilinear weights over the (g, n) grid: index arrays (4, K) into g and n, weights (4, K)."""
         g = np.asarray(g, dtype=np.float64).reshape(-1)
         n = np.asarray(n, dtype=np.float64).reshape(-1)
-        for name, v, nodes in (("anisotropy g", g, self.g), ("refractive index n", n, self.n)):
-            out = (v < nodes[0] - 1e-12) | (v > nodes[-1] + 1e-12)
+        for name, v, (lo, hi) in (("anisotropy g", g, self.g_range), ("refractive index n", n, self.n_range)):
+            out = (v < lo - 1e-12) | (v > hi + 1e-12)
             if out.any():
                 i = int(np.argmax(out))
-                msg = (
-                    f"{name} = {v[i]!r} lies outside the boundary-aware inversion table "
-                    f"[{nodes[0]:g}, {nodes[-1]:g}]"
-                )
+                msg = f"{name} = {v[i]!r} lies outside the boundary-aware inversion table [{lo:g}, {hi:g}]"
                 if self.out_of_range != "clamp":
                     raise ParameterError(msg + "; use a closed-form method or extend the table")
                 warnings.warn(
@@ -301,8 +334,8 @@ class InversionTable:
                     ClampWarning,
                     stacklevel=4,
                 )
-        g = np.clip(g, self.g[0], self.g[-1])
-        n = np.clip(n, self.n[0], self.n[-1])
+        g = np.clip(g, *self.g_range)
+        n = np.clip(n, *self.n_range)
 
         def axis(v, nodes):
             if nodes.size == 1:
@@ -351,17 +384,19 @@ class InversionTable:
         g = np.broadcast_to(np.asarray(g, dtype=np.float64), shape).reshape(-1)
         n = np.broadcast_to(np.asarray(n, dtype=np.float64), shape).reshape(-1)
         gi, ni, w = self._corner_weights(g, n)
-        return v.reshape(-1), shape, np.clip(g, self.g[0], self.g[-1]), gi, ni, w
+        return v.reshape(-1), shape, np.clip(g, *self.g_range), np.clip(n, *self.n_range), gi, ni, w
 
     def albedo_multiple_of(self, albedo_single, g, n):
         """A(alpha, g, n) by interpolation.
 
-        At each of the four (g, n) corner nodes A is interpolated linearly in van de Hulst's similarity
-        parameter s = sqrt((1 - alpha) / (1 - g alpha)) (``vandeHulst1980``: half-spaces of equal s have
-        nearly equal A, so blending corners at equal s is far more accurate than at equal alpha); the
-        corner values are blended bilinearly in g and n.
+        With an albedo grid: its smooth model (:meth:`AlbedoGrid.albedo_multiple_of`). Otherwise, at each
+        of the four (g, n) corner nodes A is interpolated linearly in van de Hulst's similarity parameter
+        s = sqrt((1 - alpha) / (1 - g alpha)) (``vandeHulst1980``) and the corner values are blended
+        bilinearly in g and n.
         """
-        a, shape, g, gi, ni, w = self._prepare(albedo_single, g, n)
+        a, shape, g, n, gi, ni, w = self._prepare(albedo_single, g, n)
+        if self.albedo_grid is not None:
+            return self.albedo_grid.albedo_multiple_of(a, g, n).reshape(shape)
         s = np.sqrt(np.clip((1.0 - a) / (1.0 - g * a), 0.0, None))
         return self._blend_at_similarity(self.albedo_multiple, s, gi, ni, w).reshape(shape)
 
@@ -373,14 +408,19 @@ class InversionTable:
         Raises :class:`FitError` where A exceeds the largest diffuse reflectance the boundary allows,
         1 - R_specular(n).
         """
-        a, shape, g, gi, ni, w = self._prepare(albedo_multiple, g, n)
+        a, shape, g, n, gi, ni, w = self._prepare(albedo_multiple, g, n)
+        if self.albedo_grid is not None:
+            s = self.albedo_grid.similarity_of(a, g, n)
+            alpha = (1.0 - s**2) / (1.0 - g * s**2)
+            scale = self._blend_at_similarity(self._scaling_filled, s, gi, ni, w)
+            return alpha.reshape(shape), scale.reshape(shape)
         top = np.einsum("ck,ck->k", self.albedo_multiple[-1][gi, ni], w)
         over = a >= top
         if over.any():
             i = int(np.argmax(over))
             raise FitError(
                 f"albedo_multiple[{i}] = {a[i]:.6g} is not reachable by a half-space of index "
-                f"{np.broadcast_to(n, shape).reshape(-1)[i]:g}: at most {top[i]:.6g} "
+                f"{n[i]:g}: at most {top[i]:.6g} "
                 "(1 - normal specular reflectance)"
             )
         lo = np.zeros(a.size)  # s = 0: alpha = 1, largest A

@@ -26,10 +26,13 @@ LAYER_INDEX: dict[str, tuple[float, str]] = {
     "reticular_dermis": (C.N_RETICULAR_DERMIS, "Ding2006; Bolin1989 (from memory)"),
     # adipose tissue about 1.44-1.46 (Bolin1989, from memory)
     "hypodermis": (C.N_HYPODERMIS, "Bolin1989 (from memory)"),
+    # skeletal muscle about 1.37-1.38 (Bolin1989, from memory)
+    "muscle": (C.N_MUSCLE, "Bolin1989 (from memory)"),
 }
 
-#: Index of the medium below the hypodermis (skeletal muscle / fascia), about 1.37-1.38 (Bolin1989, from
-#: memory). It sets the Fresnel reflection at the bottom of the finite stack.
+#: Index of the medium below the stack's last layer (muscle): the same muscle index, so the bottom of the
+#: stack is index matched and light leaving it (0.1-0.2 % of the incident power) is lost without a Fresnel
+#: reflection (Bolin1989, from memory).
 N_BELOW_MUSCLE = C.N_MUSCLE
 N_BELOW_SOURCE = "Bolin1989 (muscle, from memory)"
 

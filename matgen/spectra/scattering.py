@@ -60,7 +60,8 @@ class PowerLaw:
 #: here (from memory; the table could not be re-read): skin 46.0 1/cm, 0.409, 0.562; dermis 43.6 1/cm, 0.41,
 #: 0.562; epidermis 66.7 1/cm, 0.29, 0.689. simpa's literature_values quotes other epidermis / dermis
 #: parameters from Jacques 2013 Table 1 (Salomatina et al. 2006: f_Ray 0.29, b_Mie 2.8; f_Ray 0.1,
-#: b_Mie 3.5); see docs/developers/tissue.md. Subcutaneous fat: Bashkatov et al. 2005 fit
+#: b_Mie 3.5); see docs/developers/tissue.md. Soft tissue (used for muscle): 18.9 1/cm, b = 1.286 as a pure
+#: power law (from memory). Subcutaneous fat: Bashkatov et al. 2005 fit
 #: mu_s' = 1050.6 lambda^-0.68 1/cm (from memory), written as a pure Mie law (f_Ray = 0) with
 #: a' = 1050.6 * 500^-0.68 1/cm.
 _DERMIS_1998_RAYLEIGH_PER_CM = C.DERMIS_JACQUES1998_RAYLEIGH_PER_CM * REFERENCE_WAVELENGTH_NM**-4
@@ -94,6 +95,12 @@ POWER_LAWS: dict[str, PowerLaw] = {
         _DERMIS_1998_RAYLEIGH_PER_CM / _DERMIS_1998_A_PRIME_PER_CM,
         -C.DERMIS_JACQUES1998_MIE_EXPONENT,
         "Jacques1998 (dermis)",
+    ),
+    "soft_tissue_Jacques2013": PowerLaw(
+        C.SOFT_TISSUE_JACQUES2013_A_PRIME_PER_CM / MM_PER_CM,
+        0.0,
+        C.SOFT_TISSUE_JACQUES2013_B,
+        "Jacques2013 Table 2 (other soft tissues; used for skeletal muscle)",
     ),
     "subcutaneous_fat_Bashkatov2005": PowerLaw(
         C.FAT_BASHKATOV2005_PER_CM * REFERENCE_WAVELENGTH_NM**C.FAT_BASHKATOV2005_EXPONENT / MM_PER_CM,

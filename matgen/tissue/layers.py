@@ -1,7 +1,10 @@
-"""The five-layer skin stack: layer identities, their scattering laws and refractive indices. Units: nm, 1/mm.
+"""The skin stack: layer identities, their scattering laws and refractive indices. Units: nm, 1/mm.
 
-Top to bottom: stratum corneum, viable epidermis, papillary dermis, reticular dermis, hypodermis. The stack is
-finite; below it lies muscle/fascia (index :data:`matgen.spectra.refractive.N_BELOW_MUSCLE`), above it air.
+Top to bottom: stratum corneum, viable epidermis, papillary dermis, reticular dermis, hypodermis, and
+skeletal muscle. The five skin layers take their thicknesses from the parameters; the muscle layer is
+:data:`matgen.constants.MUSCLE_THICKNESS_MM` thick and stands for the deep scattering tissue below the skin
+(a clear medium there would swallow the 23-25 % of the incident light that reaches it at 700-850 nm). Below
+it the index is matched (:data:`matgen.spectra.refractive.N_BELOW_MUSCLE`); above the stack is air.
 
 Scattering of a layer depends on its identity only (law, anisotropy method, index), never on pigments:
 tables reuse one scattering simulation for every pigment combination.
@@ -13,6 +16,7 @@ tables reuse one scattering simulation for every pigment combination.
 | papillary_dermis | Jacques 2013 Table 2, dermis | van Gemert 1989 | 1.39 |
 | reticular_dermis | Jacques 2013 Table 2, dermis | van Gemert 1989 | 1.40 |
 | hypodermis | Bashkatov 2005, subcutaneous fat | van Gemert 1989 | 1.44 |
+| muscle | Jacques 2013 Table 2, other soft tissues | van Gemert 1989 | 1.37 |
 
 The stratum corneum takes the epidermis law for want of a separate published fit over 300-1000 nm; the van
 Gemert fit was made for dermis and is used for every layer (both limits are stated in
@@ -45,7 +49,10 @@ LAYERS: tuple[LayerSpec, ...] = (
     LayerSpec("papillary_dermis", "dermis_Jacques2013"),
     LayerSpec("reticular_dermis", "dermis_Jacques2013"),
     LayerSpec("hypodermis", "subcutaneous_fat_Bashkatov2005"),
+    LayerSpec("muscle", "soft_tissue_Jacques2013"),
 )
+#: The layers whose thickness comes from :class:`matgen.tissue.parameters.SkinParameters` (all but muscle).
+SKIN_LAYER_COUNT = 5
 LAYER_NAMES: tuple[str, ...] = tuple(layer.name for layer in LAYERS)
 
 

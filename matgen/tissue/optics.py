@@ -8,8 +8,12 @@ Jacques1998 for the epidermis / dermis split):
     dermis (2 layers) f_bl P_bl mu_blood + f_w mu_water + f_lip mu_lipid
                       + (1 - f_bl - f_w - f_lip) mu_baseline
     hypodermis        f_bl P_bl mu_blood + f_w mu_water + f_lip mu_lipid + (rest) mu_baseline
+    muscle            F_bl mu_blood(S_m) + F_w mu_water + F_lip mu_lipid + (rest) mu_baseline
 
-where mu_melanosome mixes eumelanin and pheomelanin by the eumelanin share, mu_blood holds oxy- and
+with the muscle's fixed composition F and saturation S_m of :mod:`matgen.constants` (``MUSCLE_*``; no
+packaging, no bilirubin), the same for every parameter set;
+
+and where mu_melanosome mixes eumelanin and pheomelanin by the eumelanin share, mu_blood holds oxy- and
 deoxyhaemoglobin at the oxygen saturation plus plasma bilirubin, P_mel and P_bl are the packaging factors of
 :mod:`matgen.tissue.packaging` (1 when packaging is off), and the baseline (Jacques1998, bloodless skin)
 stands for the protein background of the volume not given to an explicit chromophore.
@@ -25,6 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from matgen import constants as C
 from matgen.constants import BLOOD_PLASMA_VOLUME_FRACTION, LN10, MM_PER_CM, MOL_PER_UMOL, N_AIR
 from matgen.errors import BandError, ParameterError
 from matgen.spectra import chromophores as ch
@@ -141,7 +146,16 @@ def absorption_batch(
         col("hypodermis_lipid_fraction"),
     )
     hyp = fb * blood_ret + fw * water + fl * lipid + (1.0 - fb - fw - fl) * base
-    return np.stack([sc, epi, pap, ret, hyp], axis=1)
+    mus = np.broadcast_to(_muscle_absorption(sp), hyp.shape)
+    return np.stack([sc, epi, pap, ret, hyp, mus], axis=1)
+
+
+def _muscle_absorption(sp):
+    """mu_a of the muscle layer (1/mm, shape (B,)): fixed composition, see matgen.constants MUSCLE_*."""
+    s = C.MUSCLE_OXYGEN_SATURATION
+    fb, fw, fl = C.MUSCLE_BLOOD_FRACTION, C.MUSCLE_WATER_FRACTION, C.MUSCLE_LIPID_FRACTION
+    blood = s * sp["hbo2"] + (1.0 - s) * sp["hb"]
+    return fb * blood + fw * sp["water"] + fl * sp["lipid"] + (1.0 - fb - fw - fl) * sp["baseline"]
 
 
 @dataclass(frozen=True)
@@ -157,7 +171,7 @@ class SkinOptics:
         Refractive index, absorption and scattering coefficients (1/mm), Henyey-Greenstein anisotropy.
     bands : BandSet
     n_above, n_below : float
-        Indices of the media above (air) and below (muscle) the stack.
+        Indices of the media above (air) and below the stack (index matched to the muscle layer).
     packaging : str
         Packaging mode used for mu_a.
     params : SkinParameters
@@ -229,7 +243,7 @@ class SkinOptics:
 
 
 def skin_optics(params: SkinParameters, bands: BandSet, packaging: str = "on") -> SkinOptics:
-    """Optical coefficients of the five-layer skin model.
+    """Optical coefficients of the skin model: five skin layers and the muscle below them.
 
     Parameters
     ----------
@@ -251,7 +265,7 @@ def skin_optics(params: SkinParameters, bands: BandSet, packaging: str = "on") -
     mu_a = absorption_batch([params], bands, packaging)[0]
     sp = chromophore_spectra(bands)
     arrays = {
-        "thickness_mm": np.array(params.thicknesses_mm()),
+        "thickness_mm": np.array((*params.thicknesses_mm(), C.MUSCLE_THICKNESS_MM)),
         "n": np.array(sp["scatter_n"]),
         "mu_a": mu_a,
         "mu_s": np.array(sp["scatter_mu_s"]),

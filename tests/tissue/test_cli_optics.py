@@ -19,7 +19,8 @@ def test_cheek_table_and_plot(tmp_path, capsys):
     png = tmp_path / "cheek.png"
     assert main(["optics", "--preset", "cheek", "--plot", str(png)]) == 0
     out = capsys.readouterr().out
-    for name in ("stratum_corneum", "epidermis", "papillary_dermis", "reticular_dermis", "hypodermis"):
+    layers = ("stratum_corneum", "epidermis", "papillary_dermis", "reticular_dermis", "hypodermis", "muscle")
+    for name in layers:
         assert name in out
     assert "packaging=on" in out
     assert len([ln for ln in out.splitlines() if ln.strip().startswith(("300.0", "1000.0"))]) == 2
@@ -59,7 +60,7 @@ def test_json_matches_library(capsys):
 def test_csv_long_format(capsys):
     assert main(["optics", "--format", "csv", "--wavelengths", "500,600", "--packaging", "off"]) == 0
     rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
-    assert len(rows) == 5 * 2
+    assert len(rows) == 6 * 2  # six layers (five skin layers and muscle), two bands
     assert {r["packaging"] for r in rows} == {"off"}
     r = rows[0]
     assert float(r["mu_s_reduced_per_mm"]) == pytest.approx(

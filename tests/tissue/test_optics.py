@@ -24,8 +24,12 @@ def test_layout_and_stack_handoff():
     assert (
         o.layer_names
         == LAYER_NAMES
-        == ("stratum_corneum", "epidermis", "papillary_dermis", "reticular_dermis", "hypodermis")
+        == ("stratum_corneum", "epidermis", "papillary_dermis", "reticular_dermis", "hypodermis", "muscle")
     )
+    # the five skin layers take the parameters' thicknesses; the deep muscle layer closes the stack, index
+    # matched below it so that nothing is reflected back from a clear sink
+    assert tuple(o.thickness_mm[:5]) == preset("cheek").thicknesses_mm()
+    assert o.thickness_mm[5] == 20.0 and o.n_below == o.n[5, 0] == 1.37
     for arr in (o.n, o.mu_a, o.mu_s, o.g):
         assert arr.shape == (L, B) and np.all(np.isfinite(arr))
     assert o.thickness_mm.shape == (L,) and o.n_above == 1.0 and o.n_below > 1.0
@@ -66,7 +70,8 @@ def test_batch_equals_one_by_one():
         SkinParameters(melanin_fraction=0.3, eumelanin_share=0.2)
     ]
     batch = absorption_batch(sets, BANDS, packaging="on")
-    assert batch.shape == (3, 5, len(BANDS))
+    assert batch.shape == (3, 6, len(BANDS))
+    assert np.array_equal(batch[0, 5], batch[2, 5])  # muscle: one fixed composition
     for k, p in enumerate(sets):
         assert np.array_equal(batch[k], skin_optics(p, BANDS).mu_a)
     with pytest.raises(ParameterError):
@@ -97,7 +102,9 @@ def test_composition_without_packaging_matches_literal_sum():
     epi = 0.1 * mel + 0.6 * water + car + 0.3 * base
     derm = 0.05 * blood + 0.65 * water + 0.05 * lipid + 0.25 * base
     hyp = 0.01 * blood + 0.15 * water + 0.8 * lipid + 0.04 * base
-    assert np.allclose(got, np.stack([sc, epi, derm, derm, hyp]), rtol=1e-12)
+    # muscle: 4 % blood-equivalent haem at 70 % saturation, 75 % water, 5 % lipid (matgen.constants MUSCLE_*)
+    mus = 0.04 * ch.mu_a_blood(bands, 0.7) + 0.75 * water + 0.05 * lipid + 0.16 * base
+    assert np.allclose(got, np.stack([sc, epi, derm, derm, hyp, mus]), rtol=1e-12)
 
 
 def test_packaging_lowers_absorption_where_pigment_is_strong():
@@ -120,6 +127,7 @@ def test_pigment_trends():
     lo = skin_optics(SkinParameters(melanin_fraction=0.02), bands).mu_a
     hi = skin_optics(SkinParameters(melanin_fraction=0.2), bands).mu_a
     assert np.all(hi[1] > lo[1]) and np.array_equal(hi[2:], lo[2:])
+    assert np.array_equal(hi[5], lo[5])
     ox = skin_optics(SkinParameters(oxygen_saturation=1.0, blood_fraction=0.05), bands).mu_a
     de = skin_optics(SkinParameters(oxygen_saturation=0.0, blood_fraction=0.05), bands).mu_a
     assert de[3, 1] > ox[3, 1] and de[3, 2] < ox[3, 2]
