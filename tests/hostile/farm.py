@@ -75,36 +75,47 @@ def run_cli(
     )
     if script is not None and args:
         cmd += [os.fsdecode(a) for a in args]
-    with tempfile.TemporaryFile() as fo, tempfile.TemporaryFile() as fe:
-        t0 = time.perf_counter()
-        proc = subprocess.Popen(
-            cmd,
-            cwd=ROOT,
-            env=_env(env),
-            stdout=stdout_fd if stdout_fd is not None else fo,
-            stderr=fe,
-            preexec_fn=preexec,
-            start_new_session=True,
-        )
-        timer = threading.Timer(timeout, lambda: _kill_group(proc.pid))
-        timer.start()
-        if term_after is not None:
-            threading.Timer(term_after, lambda: _signal(proc.pid, signal.SIGTERM)).start()
-        try:
-            _, status, usage = os.wait4(proc.pid, 0)
-        finally:
-            timer.cancel()
-        proc.returncode = os.waitstatus_to_exitcode(status)
-        secs = time.perf_counter() - t0
-        fo.seek(0)
-        fe.seek(0)
-        return Run(
-            proc.returncode,
-            fo.read().decode(errors="replace"),
-            fe.read().decode(errors="replace"),
-            secs,
-            usage.ru_maxrss / 1024.0,
-        )
+    # pipes, not files: a file size limit (the disk-full family) must not stop the child's error message
+    t0 = time.perf_counter()
+    proc = subprocess.Popen(
+        cmd,
+        cwd=ROOT,
+        env=_env(env),
+        stdout=stdout_fd if stdout_fd is not None else subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        preexec_fn=preexec,
+        start_new_session=True,
+    )
+    chunks = {"out": [], "err": []}
+
+    def drain(stream, key):
+        for block in iter(lambda: stream.read(65536), b""):
+            chunks[key].append(block)
+
+    readers = [threading.Thread(target=drain, args=(proc.stderr, "err"), daemon=True)]
+    if proc.stdout is not None:
+        readers.append(threading.Thread(target=drain, args=(proc.stdout, "out"), daemon=True))
+    for t in readers:
+        t.start()
+    timer = threading.Timer(timeout, lambda: _kill_group(proc.pid))
+    timer.start()
+    if term_after is not None:
+        threading.Timer(term_after, lambda: _signal(proc.pid, signal.SIGTERM)).start()
+    try:
+        _, status, usage = os.wait4(proc.pid, 0)
+    finally:
+        timer.cancel()
+    proc.returncode = os.waitstatus_to_exitcode(status)
+    for t in readers:
+        t.join(10.0)
+    secs = time.perf_counter() - t0
+    return Run(
+        proc.returncode,
+        b"".join(chunks["out"]).decode(errors="replace"),
+        b"".join(chunks["err"]).decode(errors="replace"),
+        secs,
+        usage.ru_maxrss / 1024.0,
+    )
 
 
 def _signal(pid, sig):
@@ -579,7 +590,7 @@ def family_memory(tmp: Path) -> list:
 
     big = re.sub(r"count = \d+", "count = 1000000000", spec_text, count=1)
     (tmp / "big.toml").write_text(big)
-    r = run_cli(["table", "plan", tmp / "big.toml", "--jobdir", tmp / "big.job"])
+    r = run_cli(["table", "plan", tmp / "big.toml", tmp / "big.job"])
     rows.append(judge("memory bombs", "axis count 10^9 (table plan)", r, 2))
     photons = spec_text.replace("photons_per_band = 4000", "photons_per_band = 1000000000")
     (tmp / "ph.toml").write_text(photons)
@@ -587,7 +598,7 @@ def family_memory(tmp: Path) -> list:
         judge(
             "memory bombs",
             "photons_per_band 10^9 (table plan)",
-            run_cli(["table", "plan", tmp / "ph.toml", "--jobdir", tmp / "ph.job"]),
+            run_cli(["table", "plan", tmp / "ph.toml", tmp / "ph.job"]),
             2,
         )
     )
@@ -700,7 +711,7 @@ def family_tracebacks(tmp: Path) -> list:
         judge(
             "tracebacks",
             'working_space = "foo" (table plan)',
-            run_cli(["table", "plan", spec, "--jobdir", tmp / "ws.job"]),
+            run_cli(["table", "plan", spec, tmp / "ws.job"]),
             2,
         )
     )
@@ -709,7 +720,7 @@ def family_tracebacks(tmp: Path) -> list:
         judge(
             "tracebacks",
             'illuminant = "foo" (table plan)',
-            run_cli(["table", "plan", spec, "--jobdir", tmp / "il.job"]),
+            run_cli(["table", "plan", spec, tmp / "il.job"]),
             2,
         )
     )
@@ -727,7 +738,7 @@ def family_tracebacks(tmp: Path) -> list:
         .read_text()
         .replace("photons_per_band = 4000", "photons_per_band = 300")
     )
-    run_cli(["table", "plan", tiny, "--jobdir", job])
+    run_cli(["table", "plan", tiny, job])
     rows.append(judge("tracebacks", "table status with tasks missing", run_cli(["table", "status", job]), 1))
     # a stale lock's warning is a log line, not a raw Python warning
     out = tmp / "stale"
@@ -848,6 +859,8 @@ def summarise(verdicts) -> list:
                 "seconds": 0.0,
             },
         )
+        r.setdefault("exits", {})
+        r["exits"][v.rc] = r["exits"].get(v.rc, 0) + 1
         r["cases"] += 1
         r["ok"] += v.ok
         r["tracebacks"] += v.traceback
