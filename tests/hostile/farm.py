@@ -544,7 +544,9 @@ def family_sigterm(tmp: Path) -> list:
             term_after=delay,
             timeout=240,
         )
-        v = judge("SIGTERM with pool workers", f"table build, 2 workers, SIGTERM at {delay:g} s", r, (143, 0))
+        v = judge(
+            "SIGTERM with pool workers", f"table build, 2 workers, SIGTERM at {delay:g} s", r, (143, 0, -15)
+        )
         time.sleep(1.0)
         stray = _stray_workers(out)
         if stray:
@@ -557,9 +559,11 @@ def family_sigterm(tmp: Path) -> list:
     for k, delay in enumerate((2.5, 3.5, 5.0)):
         out = tmp / f"b{k}"
         r = run_cli(["bake", cfg, "--out", out, "--quiet", "--jobs", "1"], term_after=delay)
-        v = judge("SIGTERM with pool workers", f"bake, SIGTERM at {delay:g} s", r, (143, 0))
+        # -15: the signal came before the handler was installed (imports) or during interpreter shutdown,
+        # when Python has restored the default action; a shell and a scheduler read that as 143 as well
+        v = judge("SIGTERM with pool workers", f"bake, SIGTERM at {delay:g} s", r, (143, 0, -15))
         v.partial += [f"left {x}" for x in leftovers(out)] + consistent(out)
-        if r.rc == 143 and visible(out):
+        if r.rc in (143, -15) and visible(out) and consistent(out):
             v.partial.append("a terminated bake published files")
         rows.append(v)
     return rows
