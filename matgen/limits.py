@@ -439,7 +439,7 @@ def read_text_limited(path, what: str = "input file") -> str:
 MAX_JSON_INT_DIGITS = 20
 
 
-def loads_json_checked(text: str, what: str):
+def loads_json_checked(text: str, what: str, allow_nonfinite: bool = False):
     """Parse JSON text, refusing what no matgen input holds: NaN / Infinity tokens, numbers that overflow.
 
     Python's parser accepts ``NaN``, ``Infinity``, ``1e400`` (read as infinity) and integers of any size
@@ -452,6 +452,9 @@ def loads_json_checked(text: str, what: str):
         The JSON text.
     what : str
         The file and its role, for messages ("stack file 'a.json'").
+    allow_nonfinite : bool
+        Read ``NaN`` / ``Infinity`` / ``1e400`` as floats, for a reader that checks every field itself and
+        names it (over-long integers are still refused).
 
     Returns
     -------
@@ -461,7 +464,9 @@ def loads_json_checked(text: str, what: str):
     Raises
     ------
     ConfigError
-        On invalid JSON, a non-finite or overflowing number, or nesting too deep to parse.
+        On a non-finite or overflowing number.
+    json.JSONDecodeError, RecursionError
+        As :func:`json.loads` (invalid JSON, nesting too deep): the caller words them for its file.
 
     """
     import json
@@ -483,9 +488,5 @@ def loads_json_checked(text: str, what: str):
             )
         return int(token)
 
-    try:
-        return json.loads(text, parse_constant=bad_constant, parse_float=parse_float, parse_int=parse_int)
-    except json.JSONDecodeError as exc:
-        raise ConfigError(f"{what} is not valid JSON ({exc.msg}, line {exc.lineno})") from None
-    except RecursionError:
-        raise ConfigError(f"{what}: JSON nested too deeply") from None
+    kw = {} if allow_nonfinite else {"parse_constant": bad_constant, "parse_float": parse_float}
+    return json.loads(text, parse_int=parse_int, **kw)

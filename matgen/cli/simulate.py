@@ -65,7 +65,8 @@ def load_stacks(path):
 
     text = read_text_limited(path, "stack file")
     try:
-        doc = limits.loads_json_checked(text, f"stack file '{path}'")
+        # NaN and infinities pass to the per-field checks below, which name the band, layer and field
+        doc = limits.loads_json_checked(text, f"stack file '{path}'", allow_nonfinite=True)
     except json.JSONDecodeError as exc:
         raise ConfigError(f"stack file '{path}' is not valid JSON: {exc}") from None
     except RecursionError:  # nesting deeper than the parser's stack
@@ -205,7 +206,7 @@ def _simulate_with_progress(stack, args, cos_i, wave):
     what = f"{wave:g} nm" if wave is not None else "simulate"
     if eta <= PROGRESS_AFTER_S:
         rest = simulate(stack, n - pilot, args.seed, first_photon=pilot, **kw)
-        return combine([first, rest], stack)
+        return _timed(combine([first, rest], stack), n, t0)
     from tqdm import tqdm
 
     _log.info("%s: %d photons, about %.0f s (ETA from the first %d photons)", what, n, eta, pilot)
@@ -226,7 +227,16 @@ def _simulate_with_progress(stack, args, cos_i, wave):
             parts.append(simulate(stack, k, args.seed, first_photon=done, **kw))
             done += k
             bar.update(k)
-    return combine(parts, stack)
+    return _timed(combine(parts, stack), n, t0)
+
+
+def _timed(result, n: int, t0: float):
+    """Give a combined result the photon rate of the whole run (combine() leaves it unknown)."""
+    import dataclasses
+    import time
+
+    elapsed = time.perf_counter() - t0
+    return dataclasses.replace(result, photons_per_second=n / elapsed if elapsed > 0 else 0.0)
 
 
 def _jsonable(obj):

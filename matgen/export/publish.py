@@ -199,6 +199,12 @@ def recover_commits(out_dir: Path, own_lock: str) -> list:
     so one-tile bakes of other tiles working in the same folder are left alone.
     """
     done = []
+    for tmp in Path(out_dir).glob("." + JOURNAL_PREFIX + "*.tmp*"):  # a journal killed before its rename
+        # ".<journal stem>.<random>.tmp.json" (matgen.fsutil.atomic_path): the journal stem names the lock
+        lock_name = tmp.name[len(JOURNAL_PREFIX) + 1 :].removesuffix(".tmp.json").rsplit(".", 1)[0]
+        if lock_name == own_lock or live_lock_owner(Path(out_dir) / lock_name) is None:
+            with contextlib.suppress(OSError):
+                tmp.unlink()
     for journal in _journals(out_dir):
         lock_name = journal.name[len(JOURNAL_PREFIX) : -len(".json")]
         lock = Path(out_dir) / lock_name

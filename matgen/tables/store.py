@@ -485,8 +485,10 @@ class Table:
                 side_doc = loads_json_checked(
                     read_text_limited(side, "table manifest"), f"table manifest {side}"
                 )
-            except ConfigError as exc:  # unreadable, not UTF-8, not JSON (a LimitError passes as itself)
+            except ConfigError as exc:  # unreadable, not UTF-8, a non-finite number (a LimitError passes)
                 raise TableError(str(exc)) from exc
+            except (ValueError, RecursionError) as exc:  # RecursionError: nesting too deep to parse
+                raise TableError(f"table manifest {side} is not valid JSON ({exc})") from exc
             if not isinstance(side_doc, dict):
                 raise TableError(
                     f"table manifest {side} must hold a JSON object, not {type(side_doc).__name__}"
@@ -587,7 +589,7 @@ def read_table_archive(data: bytes, path) -> tuple:
             raw = np.lib.format.read_array(fh, allow_pickle=False)
         try:
             header = loads_json_checked(bytes(raw).decode("utf-8"), f"table file {path} header")
-        except (ConfigError, UnicodeDecodeError):
+        except (ConfigError, ValueError, RecursionError):  # UnicodeDecodeError is a ValueError
             raise TableError(f"{path} is not a matgen table file (its header is not JSON)") from None
         if not isinstance(header, dict) or header.get("format") != "matgen-table":
             raise TableError(f"{path} is not a matgen table file (its header is not a matgen table header)")
