@@ -42,6 +42,9 @@ AD_RELATIVE_STDERR = 2e-4
 AD_OPTICAL_THICKNESS = 1e4
 #: Photons per band of the fresh skin transport.
 PHOTONS = {"quick": 20_000, "full": 200_000}
+#: Relative standard error a band's fresh transport is run to, and the photon ceiling per band.
+TARGET_RELATIVE_STDERR = {"quick": 0.008, "full": 0.004}
+MAX_PHOTONS = {"quick": 400_000, "full": 2_000_000}
 #: Random texels beyond lightest / darkest / median.
 RANDOM_TEXELS = {"quick": 0, "full": 3}
 #: Bands of the spectral comparisons (stack bands kept: every k-th).
@@ -185,16 +188,19 @@ def pick_texels(folder: Path, doc: dict, table, mode: str, seed: int = 0) -> lis
 
 # -- the two sides ---------------------------------------------------------------------------------------
 
-def skin_reference(table, params: dict, band_index, photons: int, seed: int = 0) -> tuple:
+def skin_reference(table, params: dict, band_index, photons: int, seed: int = 0,
+                   target_relative_stderr: float = 0.0, max_photons: int = 0) -> tuple:
     """Fresh layered transport of a texel's pigments in the given table bands: (A (K,), stderr (K,)).
 
     The skin is the table's region preset with the texel's axis values and the table's packaging
-    (``matgen.tissue``), transported by ``matgen.transport.simulate`` with ``photons`` per band.
+    (``matgen.tissue``), transported by ``matgen.transport.simulate`` with ``photons`` per band; a band
+    whose relative standard error exceeds ``target_relative_stderr`` gets more photons (the same seed
+    continued, ``first_photon``; ``matgen.transport.simulate.combine``), up to ``max_photons``.
     """
     try:
         from matgen.tissue.optics import skin_optics
         from matgen.tissue.presets import preset
-        from matgen.transport.simulate import simulate
+        from matgen.transport.simulate import combine, simulate
         from matgen.transport.stack import Stack
     except ImportError as exc:
         raise DependencyError(f"the tissue model or transport engine is missing ({exc})") from exc
@@ -204,7 +210,17 @@ def skin_reference(table, params: dict, band_index, photons: int, seed: int = 0)
     optics = skin_optics(skin, bands, packaging=spec.get("packaging", "on"))
     a, se = [], []
     for b in range(len(bands)):
-        r = simulate(Stack(**optics.band(b)), photons, seed=seed + int(band_index[b]))
+        stack, s = Stack(**optics.band(b)), seed + int(band_index[b])
+        runs = [simulate(stack, photons, seed=s)]
+        r = runs[0]
+        done = photons
+        while (target_relative_stderr and done < max_photons
+               and r.diffuse_reflectance.stderr > target_relative_stderr * r.diffuse_reflectance.value):
+            rel = r.diffuse_reflectance.stderr / max(r.diffuse_reflectance.value, 1e-12)
+            more = min(max_photons - done, max(photons, int(done * ((rel / target_relative_stderr) ** 2 - 1))))
+            runs.append(simulate(stack, more, seed=s, first_photon=done))
+            done += more
+            r = combine(runs, stack)
         a.append(r.diffuse_reflectance.value)
         se.append(r.diffuse_reflectance.stderr)
     return np.array(a), np.array(se)
@@ -254,6 +270,7 @@ class TargetCheck:
     reference_se: np.ndarray
     allowance: float
     de2000: float | None = None
+    transport_se: np.ndarray | None = None  # the fresh transport's part of reference_se
 
     @property
     def relative_error(self) -> np.ndarray:
@@ -279,6 +296,7 @@ class TargetCheck:
             "rendered": self.rendered.tolist(), "rendered_stderr": self.rendered_se.tolist(),
             "reference": self.reference.tolist(), "reference_stderr": self.reference_se.tolist(),
             "relative_error": self.relative_error.tolist(), "relative_bound": self.relative_bound.tolist(),
+            "transport_stderr": None if self.transport_se is None else self.transport_se.tolist(),
             "allowance": self.allowance, "de2000": self.de2000, "passed": self.passed,
         }
 
@@ -392,7 +410,8 @@ def _check_target(name, entry, folder, texel, mpsu, table, ctx, renderer, seed) 
                        medium.ior, (table.bands.lower_nm[ctx["stack_index"][k]],
                                     table.bands.upper_nm[ctx["stack_index"][k]]), seed + k) for k in ks]
         ref = a_ref[bands]
-        ref_se = np.hypot(se_ref[bands], table_se[np.asarray(ctx["stack_index"])[ks]])
+        mc_se = se_ref[bands]
+        ref_se = np.hypot(mc_se, table_se[np.asarray(ctx["stack_index"])[ks]])
         labels = [f"{table.bands.centre_nm[ctx['stack_index'][k]]:g} nm" for k in ks]
         de, allowance = None, ALLOWANCE_BAND
     else:
@@ -400,12 +419,13 @@ def _check_target(name, entry, folder, texel, mpsu, table, ctx, renderer, seed) 
         est = [_render(renderer, medium.albedo_single[c], medium.mean_free_path_mm[c], medium.anisotropy[c],
                        medium.ior, RGB_RENDER_BAND_NM, seed + c) for c in range(3)]
         ref = w @ a_ref
-        ref_se = np.hypot(np.sqrt((w**2) @ se_ref**2), np.sqrt((ctx["w"] ** 2) @ table_se**2))
+        mc_se = np.sqrt((w**2) @ se_ref**2)
+        ref_se = np.hypot(mc_se, np.sqrt((ctx["w"] ** 2) @ table_se**2))
         labels = ["R", "G", "B"]
         rendered = np.array([e.value for e in est])
         de, allowance = de2000(rendered, ref, table.working_space, table.illuminant), ALLOWANCE_CHANNEL
     return TargetCheck(name, texel.label, labels, np.array([e.value for e in est]),
-                       np.array([e.stderr for e in est]), ref, ref_se, allowance, de)
+                       np.array([e.stderr for e in est]), ref, ref_se, allowance, de, mc_se)
 
 
 def validate_bake(folder, *, table=None, table_source=None, quick: bool = True,
@@ -461,7 +481,8 @@ def validate_bake(folder, *, table=None, table_source=None, quick: bool = True,
     union = sorted(union)
     result = BakeValidation(str(folder), renderer, mode, texels)
     for i, texel in enumerate(texels):
-        a, se = skin_reference(table, texel.params, union, PHOTONS[mode], seed=seed + 1000 * i)
+        a, se = skin_reference(table, texel.params, union, PHOTONS[mode], seed=seed + 1000 * i,
+                               target_relative_stderr=TARGET_RELATIVE_STDERR[mode], max_photons=MAX_PHOTONS[mode])
         point = np.array([[texel.params[ax.name] for ax in table.axes]])
         table_se = table.lookup(point, ["albedo_multiple_stderr"])[0]["albedo_multiple_stderr"][0]
         ctx = {"a": a, "se": se, "union": union, "table_se": np.asarray(table_se, dtype=np.float64), "w": w,
