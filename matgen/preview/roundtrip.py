@@ -143,30 +143,38 @@ class Texel:
     params: dict
 
 
-def _off_nodes(table, p: np.ndarray) -> bool:
+def _off_nodes(table, p: np.ndarray, varying) -> bool:
+    """True when ``p`` lies off the nodes of every axis that varies over the bake (constant parameters are
+    the config's choice and may sit on a node)."""
     for i, ax in enumerate(table.axes):
         v = ax.values
-        if v.size > 1 and np.min(np.abs(v - p[i]) / np.maximum(np.abs(v), 1e-12)) < NODE_TOLERANCE:
+        if not varying[i] or v.size < 2:
+            continue
+        if np.min(np.abs(v - p[i]) / np.maximum(np.abs(v), 1e-12)) < NODE_TOLERANCE:
             return False
     return True
 
 
 def pick_texels(folder: Path, doc: dict, table, mode: str, seed: int = 0) -> list:
-    """Lightest, darkest, median (skin green-channel A) and random texels off the table's nodes."""
+    """Lightest, darkest, median (skin green-channel A) and random texels off the table's nodes (of every axis
+    that varies over the bake)."""
     entries = [t for t in doc["textures"] if t["key"] == "qa/parameters"]
     if not entries:
         raise DataError(f"{folder / 'material.json'}: the bake has no qa/parameters map (bake with qa = true)")
     from matgen.export.exr import read_exr
 
-    points, where = [], []
+    names = [a.name for a in table.axes]
+    tiles = []
     for e in entries:
         pix, chans, _ = read_exr(folder / e["path"])
-        names = [a.name for a in table.axes]
         if sorted(chans) != sorted(names):
             raise DataError(f"{folder / e['path']}: channels {list(chans)} are not the table's axes {names}")
-        flat = pix.reshape(-1, len(names))[:, [list(chans).index(n) for n in names]].astype(np.float64)
-        keep = np.array([_off_nodes(table, p) for p in flat])
-        idx = np.flatnonzero(keep)
+        tiles.append((e, pix.reshape(-1, len(names))[:, [list(chans).index(n) for n in names]].astype(np.float64)))
+    every = np.concatenate([flat for _, flat in tiles])
+    varying = np.ptp(every, axis=0) > 0
+    points, where = [], []
+    for e, flat in tiles:
+        idx = np.flatnonzero([_off_nodes(table, p, varying) for p in flat])
         points.append(flat[idx])
         where += [(e["udim"], int(i % e["width"]), int(i // e["width"])) for i in idx]
     if not where:
@@ -179,7 +187,6 @@ def pick_texels(folder: Path, doc: dict, table, mode: str, seed: int = 0) -> lis
     for k in range(min(RANDOM_TEXELS[mode], order.size)):
         chosen[f"random {k + 1}"] = int(rng.integers(order.size))
     out = []
-    names = [a.name for a in table.axes]
     for label, i in chosen.items():
         tile, x, y = where[int(i)]
         out.append(Texel(label, tile, x, y, dict(zip(names, pts[int(i)].tolist(), strict=True))))
