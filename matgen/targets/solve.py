@@ -253,9 +253,12 @@ def texel_media(vals: dict, channels: str, inverter: TexelInverter, *, scalar_g:
         One g per texel (the mean of its channels' g), for consumers with one scalar anisotropy; every
         channel is inverted with it.
     isotropic : bool
-        Isotropic equivalent: g = 0, alpha inverted at g = 0 (so the rendered A is the skin's), mean free
-        path by the similarity relation mfp / (1 - alpha g), which keeps mu_a and mu_s (1 - g) of the
-        anisotropic medium (``vandeHulst1980``, similarity relations).
+        Isotropic equivalent: g = 0 with the similarity-scaled mean free path mfp / (1 - alpha g), the
+        transport mean free path 1 / (mu_a + mu_s (1 - g)) of the anisotropic medium (``vandeHulst1980``,
+        similarity relations), and alpha inverted afresh at g = 0 so that the rendered A stays the skin's.
+        The similarity relation's own alpha (1 - g) / (1 - alpha g) would not: under the n = 1.55 boundary
+        it renders A 0.03 as 0.046-0.049 and A 0.1 as 0.116-0.117 (g 0.75-0.9; measured with the
+        boundary-aware forward model), so only the length scale is taken from it.
 
     """
     if channels == "bands":
