@@ -79,7 +79,7 @@ def test_isotropic_equivalent_keeps_a_and_the_transport_mean_free_path():
     assert np.all(iso.anisotropy == 0)
     np.testing.assert_allclose(albedo_multiple(iso.albedo_single, 0.0, N), [[0.1, 0.45]], rtol=1e-6)
     mu_t = 1 / hg.mean_free_path_mm
-    transport = mu_t * (1 - hg.albedo_single) + mu_t * hg.albedo_single * (1 - 0.8)
+    transport = mu_t * (1 - hg.albedo_single) + mu_t * hg.albedo_single * (1 - hg.anisotropy)
     np.testing.assert_allclose(1 / iso.mean_free_path_mm, transport, rtol=1e-9)
 
 
