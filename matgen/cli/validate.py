@@ -29,7 +29,9 @@ def register(sub):
         default=None,
         help="deep-slab solver of --bake (default: mitsuba for a full run, adding-doubling with --quick)",
     )
-    p.add_argument("--table", metavar="PATH", help="with --bake: the table at hand (default: the shipped one)")
+    p.add_argument(
+        "--table", metavar="PATH", help="with --bake: the table at hand (default: the shipped one)"
+    )
     p.add_argument("--quick", action="store_true", help="fewer bands and paths (under 2 minutes on 2 cores)")
     p.add_argument(
         "--only",

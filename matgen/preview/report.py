@@ -464,13 +464,21 @@ def build_report(
 
 
 def _bake_validation_section(v: dict) -> str:
-    """This bake read back through its files: per target and texel, rendered vs fresh layered transport."""
+    """Build the section of this bake read back through its files (per target and texel)."""
     rows = []
     for c in v.get("checks", []):
         err = np.abs(np.asarray(c["relative_error"], dtype=np.float64))
         de = "" if c.get("de2000") is None else f"{c['de2000']:.2f}"
-        rows.append([c["target"], c["texel"], f"{np.median(err):.2%}", f"{np.max(err):.2%}", de,
-                     "PASS" if c["passed"] else "FAIL"])
+        rows.append(
+            [
+                c["target"],
+                c["texel"],
+                f"{np.median(err):.2%}",
+                f"{np.max(err):.2%}",
+                de,
+                "PASS" if c["passed"] else "FAIL",
+            ]
+        )
     verdict = "PASS" if v.get("passed") else "FAIL"
     head = (
         f"<p class='{'pass' if v.get('passed') else 'fail'}'>This bake through its files: {verdict} "
@@ -480,8 +488,9 @@ def _bake_validation_section(v: dict) -> str:
         "a check fails beyond 3 combined relative standard errors plus the stated allowance (2.5 % per band, "
         "2 % per channel, dE2000 1.0).</p>"
     )
-    return head + _table(["target", "texel", "median |rel. error|", "worst |rel. error|", "dE2000", "verdict"],
-                         rows)
+    return head + _table(
+        ["target", "texel", "median |rel. error|", "worst |rel. error|", "dE2000", "verdict"], rows
+    )
 
 
 def _patch_section(descriptor_path, doc, bands, curves, tmp: Path, allow_outside: bool = False) -> str:

@@ -141,7 +141,8 @@ class Row:
     @property
     def bound(self) -> float:
         """The largest |difference| that passes: 3 combined standard errors plus the allowance (absolute,
-        and relative to the reference value)."""
+        and relative to the reference value).
+        """
         return (SIGMA_BOUND * self.combined_stderr + self.allowance
                 + self.relative_allowance * abs(self.reference.value))
 

@@ -62,8 +62,9 @@ def test_written_g_is_the_inverted_g_inside_the_inversions_range(inverter):
     }
     media = texel_media(vals, "bands", inverter)
     np.testing.assert_allclose(media.anisotropy[0], [0.85, hi], rtol=1e-6)
-    np.testing.assert_allclose(albedo_multiple(media.albedo_single, media.anisotropy, N), [[0.3, 0.4]],
-                               rtol=1e-6)
+    np.testing.assert_allclose(
+        albedo_multiple(media.albedo_single, media.anisotropy, N), [[0.3, 0.4]], rtol=1e-6
+    )
 
 
 def test_isotropic_equivalent_keeps_a_and_the_transport_mean_free_path():
@@ -71,9 +72,11 @@ def test_isotropic_equivalent_keeps_a_and_the_transport_mean_free_path():
     mean free path 1 / (mu_a + mu_s (1 - g)) of the anisotropic medium (similarity relations, van de Hulst
     1980)."""
     inv = TexelInverter(N)
-    vals = {"albedo_multiple": np.array([[0.1, 0.45]], dtype=np.float32),
-            "shape_distance_mm": np.array([[0.2, 0.5]], dtype=np.float32),
-            "anisotropy": np.array([[0.8, 0.8]], dtype=np.float32)}
+    vals = {
+        "albedo_multiple": np.array([[0.1, 0.45]], dtype=np.float32),
+        "shape_distance_mm": np.array([[0.2, 0.5]], dtype=np.float32),
+        "anisotropy": np.array([[0.8, 0.8]], dtype=np.float32),
+    }
     hg = texel_media(vals, "bands", inv)
     iso = texel_media(vals, "bands", inv, isotropic=True)
     assert np.all(iso.anisotropy == 0)

@@ -84,8 +84,12 @@ def test_bake_reproduces_the_skin_through_its_files(baked, tmp_path, capsys):
     for t in doc["texels"]:  # held-out: no coordinate on a table node
         for ax in table.axes:
             assert np.min(np.abs(ax.values - t["params"][ax.name])) > 1e-4 * t["params"][ax.name]
-    assert {c["target"] for c in doc["checks"]} == {"openpbr", "standard_surface", "spectral_medium",
-                                                    "reflectance_mfp"}
+    assert {c["target"] for c in doc["checks"]} == {
+        "openpbr",
+        "standard_surface",
+        "spectral_medium",
+        "reflectance_mfp",
+    }
     for c in doc["checks"]:
         rendered, ref = np.array(c["rendered"]), np.array(c["reference"])
         rel_se = np.hypot(np.array(c["rendered_stderr"]) / rendered, np.array(c["reference_stderr"]) / ref)
@@ -131,14 +135,23 @@ def _other_table(folder):
     table = load_default_table()
     q = dict(table.quantities)
     q["albedo_multiple"] = q["albedo_multiple"] * np.float32(1.01)
-    other = Table(axes=table.axes, bands=table.bands, quantities=q, working_space=table.working_space,
-                  illuminant=table.illuminant, manifest=table.manifest)
+    other = Table(
+        axes=table.axes,
+        bands=table.bands,
+        quantities=q,
+        working_space=table.working_space,
+        illuminant=table.illuminant,
+        manifest=table.manifest,
+    )
     other.save(folder.parent / "other.npz")
     return "material.json", ["--table", str(folder.parent / "other.npz")]
 
 
-@pytest.mark.parametrize("spoil", [_missing, _modified, _other_version, _other_table],
-                         ids=["missing texture", "modified texture", "other format version", "other table"])
+@pytest.mark.parametrize(
+    "spoil",
+    [_missing, _modified, _other_version, _other_table],
+    ids=["missing texture", "modified texture", "other format version", "other table"],
+)
 def test_bad_bake_is_refused_naming_the_file(baked, tmp_path, capsys, spoil):
     folder = _copy(baked, tmp_path)
     name, extra = spoil(folder)
@@ -162,7 +175,7 @@ def test_mitsuba_and_adding_doubling_agree_on_a_rebuilt_medium(baked):
     inputs = roundtrip.target_inputs(baked, doc["targets"]["spectral_medium"], None, 3, 2, textures)
     medium = get_target("spectral_medium").from_inputs(inputs, metres_per_scene_unit=0.01)
     k = doc["bands"]["spectral_stacks"]["centre_nm"].index(550.0)
-    a, l, g = medium.albedo_single[k], medium.mean_free_path_mm[k], medium.anisotropy[k]
+    a, mfp, g = medium.albedo_single[k], medium.mean_free_path_mm[k], medium.anisotropy[k]
     ad = roundtrip.deep_slab_adding_doubling(a, g, medium.ior)
-    mi = roundtrip.deep_slab_mitsuba(a, l, g, medium.ior, 545.0, 555.0, 65_536, 1)
+    mi = roundtrip.deep_slab_mitsuba(a, mfp, g, medium.ior, 545.0, 555.0, 65_536, 1)
     assert abs(mi.value - ad.value) <= 3 * np.hypot(mi.stderr, ad.stderr) + 0.005 * ad.value, (mi, ad)
