@@ -42,8 +42,8 @@ AD_OPTICAL_THICKNESS = 1e4
 #: Photons per band of the fresh skin transport.
 PHOTONS = {"quick": 20_000, "full": 200_000}
 #: Relative standard error a band's fresh transport is run to, and the photon ceiling per band.
-TARGET_RELATIVE_STDERR = {"quick": 0.008, "full": 0.004}
-MAX_PHOTONS = {"quick": 400_000, "full": 2_000_000}
+TARGET_RELATIVE_STDERR = {"quick": 0.008, "full": 0.005}
+MAX_PHOTONS = {"quick": 400_000, "full": 1_000_000}
 #: Random texels beyond lightest / darkest / median.
 RANDOM_TEXELS = {"quick": 0, "full": 3}
 #: Bands of the spectral comparisons (stack bands kept: every k-th).
@@ -443,8 +443,10 @@ def de2000(rgb_a, rgb_b, working_space: str, illuminant: str) -> float:
     )
 
 
-#: Mitsuba paths per deep-slab render (full mode).
-MITSUBA_PATHS = 262_144
+#: Mitsuba paths per deep-slab render, and the stride over the stack's bands of its spectral comparisons
+#: (each render takes seconds; the adding-doubling solve milliseconds).
+MITSUBA_PATHS = 65_536
+MITSUBA_BAND_STRIDE = 6
 #: Band of the RGB targets' renders (each channel's medium is grey, so one band stands for it), nm.
 RGB_RENDER_BAND_NM = (545.0, 555.0)
 RENDERERS = ("adding-doubling", "mitsuba")
@@ -571,7 +573,10 @@ def validate_bake(
     stack_index = [table.bands.index_of(c) for c in doc["bands"]["spectral_stacks"]["centre_nm"]]
     w = rgb_weights(table.bands, table.working_space, table.illuminant)
     channels = {get_target(n).channels for n in doc["targets"]}
-    positions = list(range(0, len(stack_index), BAND_STRIDE[mode]))
+    stride = (
+        BAND_STRIDE[mode] if renderer == "adding-doubling" else max(BAND_STRIDE[mode], MITSUBA_BAND_STRIDE)
+    )
+    positions = list(range(0, len(stack_index), stride))
     union = set()
     if "rgb" in channels:
         union |= set(np.flatnonzero(np.any(w != 0, axis=0)).tolist())
