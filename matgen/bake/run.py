@@ -356,7 +356,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
                 "parameters",
                 tuple(axis_names),
                 "1",
-                "the decoded skin parameters of every texel, one channel per table axis (their fields' units)",
+                "the decoded skin parameters of every texel, one channel per table axis (fields' units)",
                 pixel_type="float",
             )
         )
@@ -381,7 +381,7 @@ _LAYOUT_CHANNELS = {"rgb": ("R", "G", "B"), "y": ("Y",)}
 
 
 def _target_outputs(name: str, table, options: TargetOptions, spectral_index, spectral_bands) -> tuple:
-    """The OutputSpecs of one renderer target's maps, and the table quantities its media need."""
+    """Return the OutputSpecs of one renderer target's maps and the table quantities its media need."""
     target = get_target(name)
     request, derived = media_request(table, target.channels, spectral_index)
     names = tuple(spectral_channel_name(c) for c in spectral_bands.centre_nm)
@@ -488,7 +488,10 @@ def _target_texels(plan: BakePlan, vals: dict) -> dict:
         key = (target.channels, target.scalar_g)
         if key not in media:
             media[key] = texel_media(
-                vals, target.channels, plan.inverter, scalar_g=target.scalar_g,
+                vals,
+                target.channels,
+                plan.inverter,
+                scalar_g=target.scalar_g,
                 isotropic=opts.anisotropy == "isotropic",
             )
         texels[name] = target.texel_inputs(media[key], plan.config.metres_per_scene_unit, opts)
@@ -523,7 +526,7 @@ def _compute(plan: BakePlan, lookup: TexelLookup, params: np.ndarray, enc_flag: 
 
 
 def output_dtype(plan: BakePlan, spec: OutputSpec):
-    """numpy dtype of an output's texels: float32 where the output or the config asks for float."""
+    """Numpy dtype of an output's texels: float32 where the output or the config asks for float."""
     return np.float32 if (spec.pixel_type or plan.config.outputs.pixel_type) == "float" else np.float16
 
 

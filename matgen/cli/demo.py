@@ -203,7 +203,12 @@ def run(args) -> int:
     # contact sheet with colour bars and units
     sheets = descriptor_previews(out / "preview", result.descriptor)
     previews.extend(sheets.values())
-    report = build_report(result.descriptor, out / "report.html")
+    # the baked material itself, read back through its files (quick: three texels, adding-doubling)
+    from matgen.preview.roundtrip import validate_bake
+
+    check = validate_bake(out / "bake", table=table, table_source=source, quick=True, seed=args.seed)
+    print(check.format())
+    report = build_report(result.descriptor, out / "report.html", bake_validation=check.to_dict())
     dt = time.perf_counter() - t0
     if args.json:
         print_json(

@@ -205,7 +205,7 @@ def fit_document(
     from matgen.fit.fitting import fit_dipole_Jensen2001, fit_gaussians_dEon2007
     from matgen.fit.inversion import albedo_single_OpenPBR2024
     from matgen.fit.summary import resolve_inversion, summarize
-    from matgen.targets import TARGETS, EffectiveMedium
+    from matgen.targets import TARGETS
     from matgen.targets.solve import TexelInverter, summary_media
 
     resolve_space(working_space)  # an unknown name is an error even when no band is visible

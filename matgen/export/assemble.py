@@ -173,7 +173,9 @@ def _assembled_documents(plan: BakePlan, table, table_source, out_dir: Path) -> 
             if not f.is_file():
                 bad.append(f"{e['path']} is missing")
                 continue
-            entry = texture_entry(spec, e["path"], f, t, ti.width, ti.height, spec.pixel_type or opts.pixel_type, opts.texture)
+            entry = texture_entry(
+                spec, e["path"], f, t, ti.width, ti.height, spec.pixel_type or opts.pixel_type, opts.texture
+            )
             if entry["sha256"] != e["sha256"]:
                 bad.append(f"{e['path']} does not match its SHA-256 in {name}")
             elif entry != e:

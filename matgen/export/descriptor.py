@@ -151,8 +151,10 @@ def renderer_targets(plan, ior: float | None) -> dict:
 
 
 def shader_inputs(targets: dict) -> list:
-    """``[(MaterialX node category, {input: {"texture" or "value", "type", "colour_managed"}})]`` of the
-    targets that have a MaterialX node."""
+    """Return ``[(node category, inputs)]`` of the targets that have a MaterialX node.
+
+    Inputs map a name to ``{"texture" or "value", "type", "colour_managed"}``.
+    """
     out = []
     for entry in targets.values():
         if entry.get("node"):

@@ -51,8 +51,8 @@ from matgen.export.publish import (
 )
 from matgen.fsutil import FolderLock, live_lock_owner
 from matgen.provenance import sha256_file
-from matgen.targets.solve import table_ior
 from matgen.tables.store import Table, default_table_path, load_default_table
+from matgen.targets.solve import table_ior
 
 #: Lock file of a whole bake or a tile assembly in its output folder.
 BAKE_LOCK = ".matgen-bake.lock"
@@ -469,7 +469,14 @@ def _dry_run_documents(plan: BakePlan, table, table_source) -> None:
     opts = plan.config.outputs
     entries = [
         texture_entry(
-            spec, spec.file_name(ti.tile), None, ti.tile, ti.width, ti.height, spec.pixel_type or opts.pixel_type, opts.texture
+            spec,
+            spec.file_name(ti.tile),
+            None,
+            ti.tile,
+            ti.width,
+            ti.height,
+            spec.pixel_type or opts.pixel_type,
+            opts.texture,
         )
         for ti in plan.tiles
         for spec in plan.outputs
@@ -563,7 +570,14 @@ def _bake_into(
                     (staging / (rel + ".scan.exr")).unlink()
                 entries.append(
                     texture_entry(
-                        spec, rel, staging / rel, ti.tile, ti.width, ti.height, spec.pixel_type or opts.pixel_type, opts.texture
+                        spec,
+                        rel,
+                        staging / rel,
+                        ti.tile,
+                        ti.width,
+                        ti.height,
+                        spec.pixel_type or opts.pixel_type,
+                        opts.texture,
                     )
                 )
                 written.append(rel)

@@ -2,16 +2,17 @@
 
 References: ``MaterialX139`` (the MaterialX 1.39 specification), ``OpenPBR2024`` (the surface's inputs).
 Written with the ``materialx`` package (1.39, which ships the ``open_pbr_surface`` node definition) and
-checked with its own ``Document.validate()`` against the standard data libraries before it is written, so a
-misspelt input or a wrong type is refused. Image nodes use MaterialX's ``<UDIM>`` token for UDIM sets.
+checked with its own ``Document.validate()`` against the standard data libraries before it is written, so
+a misspelt input or a wrong type is refused. Image nodes use MaterialX's ``<UDIM>`` token for UDIM sets.
 The inputs, their types and which are colours come from the targets (:mod:`matgen.targets`).
 
-Colour management: only the inputs a target marks as colours (``subsurface_color``) are colour-managed; its image's file carries the working space, so a
-renderer in another working space converts it. Every other map is data (a ratio of lengths, a length, g) and
-must reach the shader unchanged: MaterialX colour-manages only colour types (the "color" type semantic of the
-MaterialX 1.39 specification), so such maps are read by images of a non-colour type (``float``, or
-``vector3`` turned into the ``color3`` input by a ``convert`` node) whose file input says ``colorspace =
-"none"``, the name MaterialX reserves for "no colour space conversion".
+Colour management: only the inputs a target marks as colours (``subsurface_color``) are colour-managed;
+its image's file carries the working space, so a renderer in another working space converts it. Every
+other map is data (a ratio of lengths, a length, g) and must reach the shader unchanged: MaterialX colour-
+manages only colour types (the "color" type semantic of the MaterialX 1.39 specification), so such maps
+are read by images of a non-colour type (``float``, or ``vector3`` turned into the ``color3`` input by a
+``convert`` node) whose file input says ``colorspace = "none"``, the name MaterialX reserves for "no
+colour space conversion".
 """
 
 from __future__ import annotations

@@ -19,7 +19,6 @@ reflectances dimensionless.
 
 from __future__ import annotations
 
-import math
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -42,6 +41,9 @@ AD_RELATIVE_STDERR = 2e-4
 AD_OPTICAL_THICKNESS = 1e4
 #: Photons per band of the fresh skin transport.
 PHOTONS = {"quick": 20_000, "full": 200_000}
+#: Relative standard error a band's fresh transport is run to, and the photon ceiling per band.
+TARGET_RELATIVE_STDERR = {"quick": 0.008, "full": 0.005}
+MAX_PHOTONS = {"quick": 400_000, "full": 1_000_000}
 #: Random texels beyond lightest / darkest / median.
 RANDOM_TEXELS = {"quick": 0, "full": 3}
 #: Bands of the spectral comparisons (stack bands kept: every k-th).
@@ -60,7 +62,9 @@ def _descriptor(folder: Path):
     if rep.missing:
         raise DataError(f"{folder / rep.missing[0]}: texture listed by {path.name} is missing")
     if rep.modified:
-        raise DataError(f"{folder / rep.modified[0]}: SHA-256 differs from {path.name} (modified after the bake)")
+        raise DataError(
+            f"{folder / rep.modified[0]}: SHA-256 differs from {path.name} (modified after the bake)"
+        )
     return rep.doc
 
 
@@ -77,7 +81,7 @@ def _check_table(doc: dict, table, table_source, folder: Path) -> None:
 
 
 def read_texel(path: Path, x: int, y: int, channels=None) -> np.ndarray:
-    """The channels of texel (x, y) of an image exactly as stored (OpenImageIO, one scanline, float).
+    """Return the channels of texel (x, y) of an image exactly as stored (OpenImageIO, one scanline).
 
     ``channels`` (names) orders the result; OpenEXR stores channels sorted by name, so a spectral stack's
     file order is not its band order.
@@ -111,7 +115,7 @@ def _texture_path(folder: Path, pattern: str, tile) -> Path:
 
 
 def target_inputs(folder: Path, entry: dict, tile, x: int, y: int, textures: dict) -> dict:
-    """A target's inputs at one texel, read from its maps as stored, and its constants.
+    """Return a target's inputs at one texel, read from its maps as stored, and its constants.
 
     ``textures`` maps a texture's relative path to its descriptor entry (for the channel order).
     """
@@ -140,30 +144,46 @@ class Texel:
     params: dict
 
 
-def _off_nodes(table, p: np.ndarray) -> bool:
+def _off_nodes(table, p: np.ndarray, varying) -> bool:
+    """Whether ``p`` lies off the nodes of every axis that varies over the bake.
+
+    Constant parameters are the config's choice and may sit on a node.
+    """
     for i, ax in enumerate(table.axes):
         v = ax.values
-        if v.size > 1 and np.min(np.abs(v - p[i]) / np.maximum(np.abs(v), 1e-12)) < NODE_TOLERANCE:
+        if not varying[i] or v.size < 2:
+            continue
+        if np.min(np.abs(v - p[i]) / np.maximum(np.abs(v), 1e-12)) < NODE_TOLERANCE:
             return False
     return True
 
 
 def pick_texels(folder: Path, doc: dict, table, mode: str, seed: int = 0) -> list:
-    """Lightest, darkest, median (skin green-channel A) and random texels off the table's nodes."""
+    """Pick the lightest, darkest, median (skin green-channel A) and random texels off the table's nodes.
+
+    Off the nodes of every axis that varies over the bake.
+    """
     entries = [t for t in doc["textures"] if t["key"] == "qa/parameters"]
     if not entries:
-        raise DataError(f"{folder / 'material.json'}: the bake has no qa/parameters map (bake with qa = true)")
+        raise DataError(
+            f"{folder / 'material.json'}: the bake has no qa/parameters map (bake with qa = true)"
+        )
     from matgen.export.exr import read_exr
 
-    points, where = [], []
+    names = [a.name for a in table.axes]
+    tiles = []
     for e in entries:
         pix, chans, _ = read_exr(folder / e["path"])
-        names = [a.name for a in table.axes]
         if sorted(chans) != sorted(names):
             raise DataError(f"{folder / e['path']}: channels {list(chans)} are not the table's axes {names}")
-        flat = pix.reshape(-1, len(names))[:, [list(chans).index(n) for n in names]].astype(np.float64)
-        keep = np.array([_off_nodes(table, p) for p in flat])
-        idx = np.flatnonzero(keep)
+        tiles.append(
+            (e, pix.reshape(-1, len(names))[:, [list(chans).index(n) for n in names]].astype(np.float64))
+        )
+    every = np.concatenate([flat for _, flat in tiles])
+    varying = np.ptp(every, axis=0) > 0
+    points, where = [], []
+    for e, flat in tiles:
+        idx = np.flatnonzero([_off_nodes(table, p, varying) for p in flat])
         points.append(flat[idx])
         where += [(e["udim"], int(i % e["width"]), int(i // e["width"])) for i in idx]
     if not where:
@@ -176,7 +196,6 @@ def pick_texels(folder: Path, doc: dict, table, mode: str, seed: int = 0) -> lis
     for k in range(min(RANDOM_TEXELS[mode], order.size)):
         chosen[f"random {k + 1}"] = int(rng.integers(order.size))
     out = []
-    names = [a.name for a in table.axes]
     for label, i in chosen.items():
         tile, x, y = where[int(i)]
         out.append(Texel(label, tile, x, y, dict(zip(names, pts[int(i)].tolist(), strict=True))))
@@ -185,16 +204,27 @@ def pick_texels(folder: Path, doc: dict, table, mode: str, seed: int = 0) -> lis
 
 # -- the two sides ---------------------------------------------------------------------------------------
 
-def skin_reference(table, params: dict, band_index, photons: int, seed: int = 0) -> tuple:
+
+def skin_reference(
+    table,
+    params: dict,
+    band_index,
+    photons: int,
+    seed: int = 0,
+    target_relative_stderr: float = 0.0,
+    max_photons: int = 0,
+) -> tuple:
     """Fresh layered transport of a texel's pigments in the given table bands: (A (K,), stderr (K,)).
 
     The skin is the table's region preset with the texel's axis values and the table's packaging
-    (``matgen.tissue``), transported by ``matgen.transport.simulate`` with ``photons`` per band.
+    (``matgen.tissue``), transported by ``matgen.transport.simulate`` with ``photons`` per band; a band
+    whose relative standard error exceeds ``target_relative_stderr`` gets more photons (the same seed
+    continued, ``first_photon``; ``matgen.transport.simulate.combine``), up to ``max_photons``.
     """
     try:
         from matgen.tissue.optics import skin_optics
         from matgen.tissue.presets import preset
-        from matgen.transport.simulate import simulate
+        from matgen.transport.simulate import combine, simulate
         from matgen.transport.stack import Stack
     except ImportError as exc:
         raise DependencyError(f"the tissue model or transport engine is missing ({exc})") from exc
@@ -204,7 +234,22 @@ def skin_reference(table, params: dict, band_index, photons: int, seed: int = 0)
     optics = skin_optics(skin, bands, packaging=spec.get("packaging", "on"))
     a, se = [], []
     for b in range(len(bands)):
-        r = simulate(Stack(**optics.band(b)), photons, seed=seed + int(band_index[b]))
+        stack, s = Stack(**optics.band(b)), seed + int(band_index[b])
+        runs = [simulate(stack, photons, seed=s)]
+        r = runs[0]
+        done = photons
+        while (
+            target_relative_stderr
+            and done < max_photons
+            and r.diffuse_reflectance.stderr > target_relative_stderr * r.diffuse_reflectance.value
+        ):
+            rel = r.diffuse_reflectance.stderr / max(r.diffuse_reflectance.value, 1e-12)
+            more = min(
+                max_photons - done, max(photons, int(done * ((rel / target_relative_stderr) ** 2 - 1)))
+            )
+            runs.append(simulate(stack, more, seed=s, first_photon=done))
+            done += more
+            r = combine(runs, stack)
         a.append(r.diffuse_reflectance.value)
         se.append(r.diffuse_reflectance.stderr)
     return np.array(a), np.array(se)
@@ -219,24 +264,35 @@ def deep_slab_adding_doubling(albedo: float, g: float, n: float) -> Estimate:
     try:
         import iadpython
     except ImportError as exc:
-        raise DependencyError('validation through the files needs iadpython: pip install "matgen[test]"') from exc
-    sample = iadpython.Sample(a=float(albedo), b=AD_OPTICAL_THICKNESS, g=float(g), n=float(n), n_above=1.0,
-                              n_below=1.0, quad_pts=16)
+        raise DependencyError(
+            'validation through the files needs iadpython: pip install "matgen[test]"'
+        ) from exc
+    sample = iadpython.Sample(
+        a=float(albedo), b=AD_OPTICAL_THICKNESS, g=float(g), n=float(n), n_above=1.0, n_below=1.0, quad_pts=16
+    )
     value = float(sample.rt()[0]) - ((n - 1.0) / (n + 1.0)) ** 2
     return Estimate(value, AD_RELATIVE_STDERR * value)
 
 
-def deep_slab_mitsuba(albedo: float, mfp_mm: float, g: float, n: float, lower_nm: float, upper_nm: float,
-                      paths: int, seed: int) -> Estimate:
-    """Diffuse reflectance of a deep slab rendered by Mitsuba 3 (``matgen.preview.tracer``), specular removed."""
+def deep_slab_mitsuba(
+    albedo: float, mfp_mm: float, g: float, n: float, lower_nm: float, upper_nm: float, paths: int, seed: int
+) -> Estimate:
+    """Diffuse reflectance of a deep slab rendered by Mitsuba 3 (``matgen.preview.tracer``), no specular."""
     from matgen.preview import tracer
     from matgen.preview.media import deep_depth_mfp
     from matgen.transport.stack import Stack
 
     depth = deep_depth_mfp(albedo, g) * mfp_mm
     st = 1.0 / mfp_mm
-    stack = Stack(thickness_mm=[depth], mu_a=[st * (1 - albedo)], mu_s=[st * albedo], g=[g], n=[n],
-                  n_above=1.0, n_below=1.0)
+    stack = Stack(
+        thickness_mm=[depth],
+        mu_a=[st * (1 - albedo)],
+        mu_s=[st * albedo],
+        g=[g],
+        n=[n],
+        n_above=1.0,
+        n_below=1.0,
+    )
     est = tracer.render_stack_reflectance(stack, lower_nm, upper_nm, paths=paths, seed=seed)
     return Estimate(est.value - ((n - 1.0) / (n + 1.0)) ** 2, est.stderr)
 
@@ -254,10 +310,11 @@ class TargetCheck:
     reference_se: np.ndarray
     allowance: float
     de2000: float | None = None
+    transport_se: np.ndarray | None = None  # the fresh transport's part of reference_se
 
     @property
     def relative_error(self) -> np.ndarray:
-        """rendered / reference - 1 per channel or band."""
+        """Rendered / reference - 1 per channel or band."""
         return self.rendered / self.reference - 1.0
 
     @property
@@ -275,11 +332,19 @@ class TargetCheck:
     def to_dict(self) -> dict:
         """JSON form."""
         return {
-            "target": self.target, "texel": self.texel, "labels": list(self.labels),
-            "rendered": self.rendered.tolist(), "rendered_stderr": self.rendered_se.tolist(),
-            "reference": self.reference.tolist(), "reference_stderr": self.reference_se.tolist(),
-            "relative_error": self.relative_error.tolist(), "relative_bound": self.relative_bound.tolist(),
-            "allowance": self.allowance, "de2000": self.de2000, "passed": self.passed,
+            "target": self.target,
+            "texel": self.texel,
+            "labels": list(self.labels),
+            "rendered": self.rendered.tolist(),
+            "rendered_stderr": self.rendered_se.tolist(),
+            "reference": self.reference.tolist(),
+            "reference_stderr": self.reference_se.tolist(),
+            "relative_error": self.relative_error.tolist(),
+            "relative_bound": self.relative_bound.tolist(),
+            "transport_stderr": None if self.transport_se is None else self.transport_se.tolist(),
+            "allowance": self.allowance,
+            "de2000": self.de2000,
+            "passed": self.passed,
         }
 
 
@@ -310,17 +375,22 @@ class BakeValidation:
                 "median_abs_relative_error": float(np.median(err)),
                 "worst_abs_relative_error": float(np.max(err)),
                 "worst_de2000": float(max(de)) if de else None,
-                "passed": sum(c.passed for c in cs), "checks": len(cs),
+                "passed": sum(c.passed for c in cs),
+                "checks": len(cs),
             }
         return out
 
     def format(self) -> str:
-        """The tables a person reads."""
-        lines = [f"validation through the files: {self.folder} ({self.mode}, renderer {self.renderer}, "
-                 f"{self.seconds:.1f} s)"]
+        """Return the lines a person reads."""
+        lines = [
+            f"validation through the files: {self.folder} ({self.mode}, renderer {self.renderer}, "
+            f"{self.seconds:.1f} s)"
+        ]
         for t in self.texels:
-            lines.append(f"  texel {t.label}: tile {t.tile} ({t.x}, {t.y}) "
-                         + ", ".join(f"{k}={v:.4g}" for k, v in t.params.items()))
+            lines.append(
+                f"  texel {t.label}: tile {t.tile} ({t.x}, {t.y}) "
+                + ", ".join(f"{k}={v:.4g}" for k, v in t.params.items())
+            )
         for c in self.checks:
             err = c.relative_error
             worst = int(np.argmax(np.abs(err)))
@@ -332,14 +402,19 @@ class BakeValidation:
             )
         for name, s in self.summary().items():
             de = f", worst dE2000 {s['worst_de2000']:.2f}" if s["worst_de2000"] is not None else ""
-            lines.append(f"  {name}: median |rel| {s['median_abs_relative_error']:.2%}, worst "
-                         f"{s['worst_abs_relative_error']:.2%}{de}; {s['passed']}/{s['checks']} texels pass")
+            lines.append(
+                f"  {name}: median |rel| {s['median_abs_relative_error']:.2%}, worst "
+                f"{s['worst_abs_relative_error']:.2%}{de}; {s['passed']}/{s['checks']} texels pass"
+            )
         return "\n".join(lines)
 
     def to_dict(self) -> dict:
         """JSON form."""
         return {
-            "folder": self.folder, "renderer": self.renderer, "mode": self.mode, "seconds": self.seconds,
+            "folder": self.folder,
+            "renderer": self.renderer,
+            "mode": self.mode,
+            "seconds": self.seconds,
             "passed": self.passed,
             "texels": [t.__dict__ for t in self.texels],
             "checks": [c.to_dict() for c in self.checks],
@@ -361,12 +436,17 @@ def de2000(rgb_a, rgb_b, working_space: str, illuminant: str) -> float:
     """CIEDE2000 between two working-space reflectance triples (``CIE2004``; colour-science)."""
     import colour
 
-    return float(colour.delta_E(_lab(rgb_a, working_space, illuminant), _lab(rgb_b, working_space, illuminant),
-                                method="CIE 2000"))
+    return float(
+        colour.delta_E(
+            _lab(rgb_a, working_space, illuminant), _lab(rgb_b, working_space, illuminant), method="CIE 2000"
+        )
+    )
 
 
-#: Mitsuba paths per deep-slab render (full mode).
-MITSUBA_PATHS = 262_144
+#: Mitsuba paths per deep-slab render, and the stride over the stack's bands of its spectral comparisons
+#: (each render takes seconds; the adding-doubling solve milliseconds).
+MITSUBA_PATHS = 65_536
+MITSUBA_BAND_STRIDE = 6
 #: Band of the RGB targets' renders (each channel's medium is grey, so one band stands for it), nm.
 RGB_RENDER_BAND_NM = (545.0, 555.0)
 RENDERERS = ("adding-doubling", "mitsuba")
@@ -382,34 +462,75 @@ def _check_target(name, entry, folder, texel, mpsu, table, ctx, renderer, seed) 
     from matgen.targets import get_target
 
     target = get_target(name)
-    medium = target.from_inputs(target_inputs(folder, entry, texel.tile, texel.x, texel.y, ctx["textures"]),
-                                metres_per_scene_unit=mpsu)
+    medium = target.from_inputs(
+        target_inputs(folder, entry, texel.tile, texel.x, texel.y, ctx["textures"]),
+        metres_per_scene_unit=mpsu,
+    )
     a_ref, se_ref, union, table_se = ctx["a"], ctx["se"], ctx["union"], ctx["table_se"]
     if target.channels == "bands":
         ks = ctx["stack_positions"]
         bands = [union.index(ctx["stack_index"][k]) for k in ks]
-        est = [_render(renderer, medium.albedo_single[k], medium.mean_free_path_mm[k], medium.anisotropy[k],
-                       medium.ior, (table.bands.lower_nm[ctx["stack_index"][k]],
-                                    table.bands.upper_nm[ctx["stack_index"][k]]), seed + k) for k in ks]
+        est = [
+            _render(
+                renderer,
+                medium.albedo_single[k],
+                medium.mean_free_path_mm[k],
+                medium.anisotropy[k],
+                medium.ior,
+                (table.bands.lower_nm[ctx["stack_index"][k]], table.bands.upper_nm[ctx["stack_index"][k]]),
+                seed + k,
+            )
+            for k in ks
+        ]
         ref = a_ref[bands]
-        ref_se = np.hypot(se_ref[bands], table_se[np.asarray(ctx["stack_index"])[ks]])
+        mc_se = se_ref[bands]
+        ref_se = np.hypot(mc_se, table_se[np.asarray(ctx["stack_index"])[ks]])
         labels = [f"{table.bands.centre_nm[ctx['stack_index'][k]]:g} nm" for k in ks]
         de, allowance = None, ALLOWANCE_BAND
     else:
         w = ctx["w"][:, union]
-        est = [_render(renderer, medium.albedo_single[c], medium.mean_free_path_mm[c], medium.anisotropy[c],
-                       medium.ior, RGB_RENDER_BAND_NM, seed + c) for c in range(3)]
+        est = [
+            _render(
+                renderer,
+                medium.albedo_single[c],
+                medium.mean_free_path_mm[c],
+                medium.anisotropy[c],
+                medium.ior,
+                RGB_RENDER_BAND_NM,
+                seed + c,
+            )
+            for c in range(3)
+        ]
         ref = w @ a_ref
-        ref_se = np.hypot(np.sqrt((w**2) @ se_ref**2), np.sqrt((ctx["w"] ** 2) @ table_se**2))
+        mc_se = np.sqrt((w**2) @ se_ref**2)
+        ref_se = np.hypot(mc_se, np.sqrt((ctx["w"] ** 2) @ table_se**2))
         labels = ["R", "G", "B"]
         rendered = np.array([e.value for e in est])
         de, allowance = de2000(rendered, ref, table.working_space, table.illuminant), ALLOWANCE_CHANNEL
-    return TargetCheck(name, texel.label, labels, np.array([e.value for e in est]),
-                       np.array([e.stderr for e in est]), ref, ref_se, allowance, de)
+    return TargetCheck(
+        name,
+        texel.label,
+        labels,
+        np.array([e.value for e in est]),
+        np.array([e.stderr for e in est]),
+        ref,
+        ref_se,
+        allowance,
+        de,
+        mc_se,
+    )
 
 
-def validate_bake(folder, *, table=None, table_source=None, quick: bool = True,
-                  renderer: str = "adding-doubling", seed: int = 0, progress=None) -> BakeValidation:
+def validate_bake(
+    folder,
+    *,
+    table=None,
+    table_source=None,
+    quick: bool = True,
+    renderer: str = "adding-doubling",
+    seed: int = 0,
+    progress=None,
+) -> BakeValidation:
     """Validate a bake folder through its files (module docstring).
 
     Parameters
@@ -452,7 +573,10 @@ def validate_bake(folder, *, table=None, table_source=None, quick: bool = True,
     stack_index = [table.bands.index_of(c) for c in doc["bands"]["spectral_stacks"]["centre_nm"]]
     w = rgb_weights(table.bands, table.working_space, table.illuminant)
     channels = {get_target(n).channels for n in doc["targets"]}
-    positions = list(range(0, len(stack_index), BAND_STRIDE[mode]))
+    stride = (
+        BAND_STRIDE[mode] if renderer == "adding-doubling" else max(BAND_STRIDE[mode], MITSUBA_BAND_STRIDE)
+    )
+    positions = list(range(0, len(stack_index), stride))
     union = set()
     if "rgb" in channels:
         union |= set(np.flatnonzero(np.any(w != 0, axis=0)).tolist())
@@ -461,15 +585,41 @@ def validate_bake(folder, *, table=None, table_source=None, quick: bool = True,
     union = sorted(union)
     result = BakeValidation(str(folder), renderer, mode, texels)
     for i, texel in enumerate(texels):
-        a, se = skin_reference(table, texel.params, union, PHOTONS[mode], seed=seed + 1000 * i)
+        a, se = skin_reference(
+            table,
+            texel.params,
+            union,
+            PHOTONS[mode],
+            seed=seed + 1000 * i,
+            target_relative_stderr=TARGET_RELATIVE_STDERR[mode],
+            max_photons=MAX_PHOTONS[mode],
+        )
         point = np.array([[texel.params[ax.name] for ax in table.axes]])
         table_se = table.lookup(point, ["albedo_multiple_stderr"])[0]["albedo_multiple_stderr"][0]
-        ctx = {"a": a, "se": se, "union": union, "table_se": np.asarray(table_se, dtype=np.float64), "w": w,
-               "stack_index": stack_index, "stack_positions": positions,
-               "textures": {t["path"]: t for t in doc["textures"]}}
+        ctx = {
+            "a": a,
+            "se": se,
+            "union": union,
+            "table_se": np.asarray(table_se, dtype=np.float64),
+            "w": w,
+            "stack_index": stack_index,
+            "stack_positions": positions,
+            "textures": {t["path"]: t for t in doc["textures"]},
+        }
         for name, entry in doc["targets"].items():
-            result.checks.append(_check_target(name, entry, folder, texel, doc["units"]["metres_per_scene_unit"],
-                                               table, ctx, renderer, seed))
+            result.checks.append(
+                _check_target(
+                    name,
+                    entry,
+                    folder,
+                    texel,
+                    doc["units"]["metres_per_scene_unit"],
+                    table,
+                    ctx,
+                    renderer,
+                    seed,
+                )
+            )
         if progress is not None:
             progress(f"texel {texel.label} done ({time.perf_counter() - t0:.0f} s)")
     result.seconds = time.perf_counter() - t0

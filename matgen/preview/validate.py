@@ -23,10 +23,12 @@ Allowances (absolute reflectance, added to 3 combined standard errors):
   these; with roulette deferred (``matgen.preview.tracer``) no harness deviation beyond 3 standard errors
   was seen at slabs of 10-40 mean free paths (one of 0.4 %, 3.7 se, remains at 200 mfp, outside the tested
   range).
-- :data:`ALLOWANCE_COLLAPSE`: the effective medium reproduces the layered albedo A only through the fitted
-  profile width and the boundary-aware inversion table (``matgen.fit.inversion``), whose interpolation and
-  half-space assumptions carry errors of order 1e-2; the layered stack also has a different top index than
-  the effective medium. 0.02 is the collapse cost matgen promises at most; what is measured is printed.
+- :data:`ALLOWANCE_COLLAPSE` (relative, a fraction of the layered A): the effective medium reproduces the
+  layered albedo A only through the boundary-aware inversion (``matgen.fit.inversion``), whose
+  interpolation and half-space assumptions carry errors of order 1e-2 relative, and the layered stack has
+  another top index than the effective medium. 2.5 % of A is the collapse cost matgen promises at most
+  (the per-band target of the exported spectral medium); an absolute allowance would exceed dark skin's
+  whole blue albedo. What is measured is printed; the bands span 300-1000 nm.
 """
 
 from __future__ import annotations
@@ -52,8 +54,8 @@ from matgen.transport.stack import Stack
 #: Allowance (absolute reflectance) of the tracer comparisons; see the module docstring.
 ALLOWANCE_TRACER = 1.0e-3
 
-#: Allowance (absolute reflectance) of the collapse-cost comparison; see the module docstring.
-ALLOWANCE_COLLAPSE = 0.02
+#: Allowance of the collapse-cost comparison, relative to the layered A; see the module docstring.
+ALLOWANCE_COLLAPSE = 0.025
 
 #: Number of combined standard errors a difference may reach before the allowance.
 SIGMA_BOUND = 3.0
@@ -66,7 +68,10 @@ HOMOGENEOUS_BANDS_NM = {
     "quick": (300.0, 450.0, 600.0, 800.0, 1000.0),
     "full": (300.0, 365.0, 420.0, 500.0, 560.0, 650.0, 760.0, 850.0, 940.0, 1000.0),
 }
-LAYERED_BANDS_NM = {"quick": (450.0, 600.0, 850.0), "full": (365.0, 450.0, 550.0, 600.0, 700.0, 850.0, 940.0)}
+LAYERED_BANDS_NM = {
+    "quick": (300.0, 450.0, 600.0, 850.0, 1000.0),
+    "full": (300.0, 365.0, 450.0, 550.0, 600.0, 700.0, 850.0, 940.0, 1000.0),
+}
 
 #: Melanin settings of the layered comparisons: (label, epidermal melanin volume fraction).
 MELANIN_SETTINGS = (("light", 0.02), ("dark", 0.30))
@@ -121,6 +126,7 @@ class Row:
     reference: Estimate
     allowance: float
     note: str = ""
+    relative_allowance: float = 0.0
 
     @property
     def difference(self) -> float:
@@ -134,8 +140,11 @@ class Row:
 
     @property
     def bound(self) -> float:
-        """The largest |difference| that passes: 3 combined standard errors plus the allowance."""
-        return SIGMA_BOUND * self.combined_stderr + self.allowance
+        """The largest |difference| that passes: 3 combined standard errors plus the allowance (absolute,
+        and relative to the reference value).
+        """
+        return (SIGMA_BOUND * self.combined_stderr + self.allowance
+                + self.relative_allowance * abs(self.reference.value))
 
     @property
     def passed(self) -> bool:
@@ -153,6 +162,7 @@ class Row:
             "difference": self.difference,
             "combined_stderr": self.combined_stderr,
             "allowance": self.allowance,
+            "relative_allowance": self.relative_allowance,
             "bound": self.bound,
             "passed": self.passed,
             "note": self.note,
@@ -515,8 +525,9 @@ def collapse_comparison(runs: list, *, quick: bool = True, seed: int = 0) -> Com
                     float(run.bands.centre_nm[b]),
                     res.diffuse_reflectance,
                     Estimate(est.value - spec, est.stderr),
-                    ALLOWANCE_COLLAPSE,
+                    0.0,
                     f"alpha={a:.4f} l={1.0 / st:.3f} mm g={g:.2f} ior={medium.ior:.2f}, {depth_mfp:.0f} mfp",
+                    relative_allowance=ALLOWANCE_COLLAPSE,
                 )
             )
             k += 1
@@ -562,7 +573,7 @@ class ValidationRun:
             lines.append(
                 f"cost of collapsing the layers into one medium: max |A_layered - A_effective| = "
                 f"{collapse.max_abs_difference:.4f} "
-                f"({'within' if collapse.passed else 'OUTSIDE'} 3 se + {ALLOWANCE_COLLAPSE})"
+                f"({'within' if collapse.passed else 'OUTSIDE'} 3 se + {ALLOWANCE_COLLAPSE:.1%} of A)"
             )
         lines.append(
             f"validation ({'quick' if self.quick else 'full'}): {'PASS' if self.passed else 'FAIL'}"
@@ -580,7 +591,7 @@ class ValidationRun:
             "skipped": dict(self.skipped),
             "allowances": {
                 "tracer": ALLOWANCE_TRACER,
-                "collapse": ALLOWANCE_COLLAPSE,
+                "collapse_relative": ALLOWANCE_COLLAPSE,
                 "sigma_bound": SIGMA_BOUND,
             },
         }

@@ -101,7 +101,7 @@ class Target:
     constants: dict = {}
 
     def maps(self, options: TargetOptions) -> list:
-        """The maps this target writes under ``options`` (list of :class:`MapSpec`)."""
+        """Return the maps this target writes under ``options`` (list of :class:`MapSpec`)."""
         raise NotImplementedError
 
     def texel_inputs(self, media: TexelMedia, metres_per_scene_unit: float, options: TargetOptions) -> dict:

@@ -86,18 +86,29 @@ class TexelMedia:
     albedo_multiple: np.ndarray
 
     def medium(self, k: int = 0) -> EffectiveMedium:
-        """The :class:`EffectiveMedium` of texel ``k``."""
-        return EffectiveMedium(self.albedo_single[k], self.mean_free_path_mm[k], self.anisotropy[k],
-                               float(self.ior[k, 0]), albedo_multiple=self.albedo_multiple[k])
+        """Return the :class:`EffectiveMedium` of texel ``k``."""
+        return EffectiveMedium(
+            self.albedo_single[k],
+            self.mean_free_path_mm[k],
+            self.anisotropy[k],
+            float(self.ior[k, 0]),
+            albedo_multiple=self.albedo_multiple[k],
+        )
 
     @classmethod
     def of(cls, medium: EffectiveMedium) -> TexelMedia:
         """One texel holding ``medium`` (for the per-medium ``to_inputs``)."""
         a = medium.albedo_single[None, :]
-        am = medium.albedo_multiple[None, :] if medium.albedo_multiple is not None else np.full_like(a, np.nan)
+        am = (
+            medium.albedo_multiple[None, :] if medium.albedo_multiple is not None else np.full_like(a, np.nan)
+        )
         return cls(
-            a, 1.0 - a, medium.mean_free_path_mm[None, :], medium.anisotropy[None, :],
-            np.full((1, 1), medium.ior), am,
+            a,
+            1.0 - a,
+            medium.mean_free_path_mm[None, :],
+            medium.anisotropy[None, :],
+            np.full((1, 1), medium.ior),
+            am,
         )
 
 

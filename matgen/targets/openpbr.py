@@ -10,7 +10,8 @@ that g (the mean of the channels' g), so the g written is the g each channel's a
 Colour conventions (``albedo_convention``):
 
 - ``"spec_remap"`` (default): C is the exact inverse of the specification's remap
-  (:func:`color_for_remap`; close to van de Hulst's A(alpha, g), ``vandeHulst1980``), so that the remap, s = 4.09712 + 4.20863 C - sqrt(9.59217 + 41.6808 C + 17.7126 C^2),
+  (:func:`color_for_remap`; close to van de Hulst's A(alpha, g), ``vandeHulst1980``), so that the remap,
+  s = 4.09712 + 4.20863 C - sqrt(9.59217 + 41.6808 C + 17.7126 C^2),
   alpha = (1 - s^2) / (1 - g s^2) (from the OpenPBR specification, recalled: not re-read here), returns
   matgen's alpha exactly and a conformant renderer reproduces the skin's reflectance under the dielectric
   boundary. The remap assumes an index-matched boundary, so C is brighter than the skin looks (the
@@ -33,14 +34,13 @@ from matgen.targets.base import MapSpec, Target
 from matgen.targets.medium import EffectiveMedium, check_scale, require
 from matgen.units import mm_to_scene_units, scene_units_to_mm
 
-
 #: Coefficients of the specification's remap s(C) = K0 + K1 C - sqrt(Q0 + Q1 C + Q2 C^2) (``OpenPBR2024``,
 #: after ``Chiang2016``; recalled, not re-read here).
 _K0, _K1, _Q0, _Q1, _Q2 = 4.09712, 4.20863, 9.59217, 41.6808, 17.7126
 
 
 def color_for_remap(albedo_single_value, g) -> np.ndarray:
-    """The C whose OpenPBR remap returns alpha exactly at anisotropy g (dimensionless).
+    """Return the C whose OpenPBR remap gives alpha exactly at anisotropy g (dimensionless).
 
     s = sqrt((1 - alpha) / (1 - g alpha)) is the remap's similarity parameter; s(C) = K0 + K1 C -
     sqrt(Q0 + Q1 C + Q2 C^2) squared out is the quadratic (K1^2 - Q2) C^2 + (2 (K0 - s) K1 - Q1) C +
@@ -88,18 +88,53 @@ class OpenPBRTarget(Target):
     node = "open_pbr_surface"
 
     def maps(self, options):
-        """The OpenPBR maps (see the module docstring)."""
+        """Return the OpenPBR maps (see the module docstring)."""
         return [
-            MapSpec("subsurface_color", "subsurface_color", "rgb", "1", True, "color3",
-                    f"OpenPBR subsurface_color, convention '{options.albedo_convention}'"),
-            MapSpec("subsurface_radius", "subsurface_radius", "y", "scene_unit", False, "float",
-                    "OpenPBR subsurface_radius: largest channel mean free path, scene units"),
-            MapSpec("subsurface_radius_scale", "subsurface_radius_scale", "rgb", "1", False, "color3",
-                    "OpenPBR subsurface_radius_scale: per-channel mean free path / subsurface_radius"),
-            MapSpec("subsurface_scatter_anisotropy", "subsurface_scatter_anisotropy", "y", "1", False, "float",
-                    "OpenPBR subsurface_scatter_anisotropy: the g every channel was inverted with"),
-            MapSpec("skin_albedo", None, "rgb", "1", True, None,
-                    "the skin's diffuse reflectance per channel (what it looks like; not a shader input)"),
+            MapSpec(
+                "subsurface_color",
+                "subsurface_color",
+                "rgb",
+                "1",
+                True,
+                "color3",
+                f"OpenPBR subsurface_color, convention '{options.albedo_convention}'",
+            ),
+            MapSpec(
+                "subsurface_radius",
+                "subsurface_radius",
+                "y",
+                "scene_unit",
+                False,
+                "float",
+                "OpenPBR subsurface_radius: largest channel mean free path, scene units",
+            ),
+            MapSpec(
+                "subsurface_radius_scale",
+                "subsurface_radius_scale",
+                "rgb",
+                "1",
+                False,
+                "color3",
+                "OpenPBR subsurface_radius_scale: per-channel mean free path / subsurface_radius",
+            ),
+            MapSpec(
+                "subsurface_scatter_anisotropy",
+                "subsurface_scatter_anisotropy",
+                "y",
+                "1",
+                False,
+                "float",
+                "OpenPBR subsurface_scatter_anisotropy: the g every channel was inverted with",
+            ),
+            MapSpec(
+                "skin_albedo",
+                None,
+                "rgb",
+                "1",
+                True,
+                None,
+                "the skin's diffuse reflectance per channel (what it looks like; not a shader input)",
+            ),
         ]
 
     def texel_inputs(self, media, metres_per_scene_unit, options):
@@ -115,8 +150,10 @@ class OpenPBRTarget(Target):
 
     def constant_inputs(self, ior, options):
         """``subsurface_weight`` 1 and ``specular_ior``."""
-        return {"subsurface_weight": {"value": 1.0, "type": "float"},
-                "specular_ior": {"value": float(ior), "type": "float", "unit": "1"}}
+        return {
+            "subsurface_weight": {"value": 1.0, "type": "float"},
+            "specular_ior": {"value": float(ior), "type": "float", "unit": "1"},
+        }
 
     def conventions(self, options):
         """Descriptor lines: the colour convention and the remap the consumer applies."""
@@ -135,17 +172,28 @@ class OpenPBRTarget(Target):
 
     def from_inputs(self, inputs, *, metres_per_scene_unit):
         """Apply OpenPBR's remap: mfp = radius * radius_scale; alpha from C (module docstring)."""
-        require(inputs, ("subsurface_color", "subsurface_radius", "subsurface_radius_scale",
-                         "subsurface_scatter_anisotropy"), self.name)
+        require(
+            inputs,
+            (
+                "subsurface_color",
+                "subsurface_radius",
+                "subsurface_radius_scale",
+                "subsurface_scatter_anisotropy",
+            ),
+            self.name,
+        )
         m = check_scale(metres_per_scene_unit)
         c = np.asarray(inputs["subsurface_color"], dtype=np.float64)
         g = float(inputs["subsurface_scatter_anisotropy"])
         n = float(inputs.get("specular_ior", 1.0))
         mfp_mm = scene_units_to_mm(
-            float(inputs["subsurface_radius"]) * np.asarray(inputs["subsurface_radius_scale"], dtype=np.float64), m
+            float(inputs["subsurface_radius"])
+            * np.asarray(inputs["subsurface_radius_scale"], dtype=np.float64),
+            m,
         )
         if inputs.get("albedo_convention", "spec_remap") == "observed":
             a_ms = c * (1.0 - specular_reflectance_normal(n))
-            return EffectiveMedium(albedo_single(a_ms, g, n, method="boundary_table"), mfp_mm, g, n,
-                                   albedo_multiple=a_ms)
+            return EffectiveMedium(
+                albedo_single(a_ms, g, n, method="boundary_table"), mfp_mm, g, n, albedo_multiple=a_ms
+            )
         return EffectiveMedium(albedo_single_OpenPBR2024(c, g), mfp_mm, g, n)

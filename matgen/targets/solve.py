@@ -49,8 +49,10 @@ def _inversion_nodes(method: str):
 
 
 def inversion_g_range(method: str = "boundary_table") -> tuple:
-    """(g_min, g_max) the inversion covers; the written g is kept inside it (the g written is the g
-    inverted with)."""
+    """Return (g_min, g_max), the g range the inversion covers.
+
+    The written g is kept inside it, so that the g written is the g inverted with.
+    """
     _, g = _inversion_nodes(method)
     return DEFAULT_G_RANGE if g is None else (float(g[0]), float(g[-1]))
 
@@ -136,7 +138,7 @@ class TexelInverter:
         self.s_nodes, self.g_nodes, self.f_grid, self.l_grid = _grid(self.n, method)
 
     def clip_g(self, g) -> np.ndarray:
-        """g limited to the range the inversion covers (the g that is written and inverted with)."""
+        """G limited to the range the inversion covers (the g that is written and inverted with)."""
         return np.clip(np.asarray(g, dtype=np.float64), self.g_range[0], self.g_range[1])
 
     def __call__(self, albedo_multiple, g):
@@ -177,8 +179,12 @@ def _grid(n, method):
     """
     alpha_k, g_k = _inversion_nodes(method)
     g_lo, g_hi = inversion_g_range(method)
-    g = np.unique(np.round(np.concatenate([
-        np.arange(g_lo, g_hi + 1e-9, GRID_G_STEP), [g_hi], [] if g_k is None else g_k]), 12))
+    g = np.unique(
+        np.round(
+            np.concatenate([np.arange(g_lo, g_hi + 1e-9, GRID_G_STEP), [g_hi], [] if g_k is None else g_k]),
+            12,
+        )
+    )
     s = [np.linspace(0.0, 1.0, GRID_S_NODES)]
     if alpha_k is not None:
         for gj in g_k:
@@ -198,20 +204,23 @@ def _grid(n, method):
 
 @lru_cache(maxsize=8)
 def cached_inverter(n: float, method: str = "boundary_table", backend: str = "numba") -> TexelInverter:
-    """A :class:`TexelInverter` shared by every bake of one process at this n and method."""
+    """Return a :class:`TexelInverter` shared by every bake of one process at this n and method."""
     return TexelInverter(n, method, backend=backend)
 
 
 # -- what a bake looks up in the table, and the media it makes of it ------------------------------------
 
+
 def table_ior(table) -> float:
-    """The table's boundary index (one value over its grid); :class:`DataError` otherwise."""
+    """Return the table's boundary index (one value over its grid); :class:`DataError` otherwise."""
     if "ior" not in table.quantities:
         raise DataError("the table holds no boundary refractive index (quantity 'ior')")
     q = np.asarray(table.quantities["ior"], dtype=np.float64)
     if np.ptp(q) > 1e-9:
-        raise DataError(f"the table's boundary index varies over its grid ({q.min():g}-{q.max():g}); "
-                        "a bake inverts at one index")
+        raise DataError(
+            f"the table's boundary index varies over its grid ({q.min():g}-{q.max():g}); "
+            "a bake inverts at one index"
+        )
     return float(q.reshape(-1)[0])
 
 
@@ -239,8 +248,9 @@ def channel_g(vals: dict) -> np.ndarray:
     return np.divide(num, den, out=np.zeros_like(num), where=den > 0)
 
 
-def texel_media(vals: dict, channels: str, inverter: TexelInverter, *, scalar_g: bool = False,
-                isotropic: bool = False) -> TexelMedia:
+def texel_media(
+    vals: dict, channels: str, inverter: TexelInverter, *, scalar_g: bool = False, isotropic: bool = False
+) -> TexelMedia:
     """Effective media of a strip of texels from the looked-up A, d and g.
 
     Parameters
@@ -248,14 +258,19 @@ def texel_media(vals: dict, channels: str, inverter: TexelInverter, *, scalar_g:
     vals : dict
         Looked-up quantities (:func:`media_request`'s names), float32 (N, C).
     channels : {"rgb", "bands"}
+        RGB channels or bands.
     inverter : TexelInverter
+        The per-texel inversion at the bake's index.
     scalar_g : bool
         One g per texel (the mean of its channels' g), for consumers with one scalar anisotropy; every
         channel is inverted with it.
     isotropic : bool
-        Isotropic equivalent: g = 0, alpha inverted at g = 0 (so the rendered A is the skin's), mean free
-        path by the similarity relation mfp / (1 - alpha g), which keeps mu_a and mu_s (1 - g) of the
-        anisotropic medium (``vandeHulst1980``, similarity relations).
+        Isotropic equivalent: g = 0 with the similarity-scaled mean free path mfp / (1 - alpha g), the
+        transport mean free path 1 / (mu_a + mu_s (1 - g)) of the anisotropic medium (``vandeHulst1980``,
+        similarity relations), and alpha inverted afresh at g = 0 so that the rendered A stays the skin's.
+        The similarity relation's own alpha (1 - g) / (1 - alpha g) would not: under the n = 1.55 boundary
+        it renders A 0.03 as 0.046-0.049 and A 0.1 as 0.116-0.117 (g 0.75-0.9; measured with the
+        boundary-aware forward model), so only the length scale is taken from it.
 
     """
     if channels == "bands":
@@ -279,20 +294,35 @@ def texel_media(vals: dict, channels: str, inverter: TexelInverter, *, scalar_g:
     return TexelMedia(alpha, one_minus, mfp, g, ior, a)
 
 
-def summary_media(quantities: dict, index: int, channels: str, inverter: TexelInverter, *,
-                  scalar_g: bool = False, isotropic: bool = False, rgb_anisotropy=None) -> TexelMedia:
-    """Media of parameter set ``index`` of :func:`matgen.fit.summary.summarize` output, made as a bake makes
-    them (A and d inverted at the g written; ``rgb_anisotropy`` (3,) is the channels' g, which the summary
-    does not store)."""
+def summary_media(
+    quantities: dict,
+    index: int,
+    channels: str,
+    inverter: TexelInverter,
+    *,
+    scalar_g: bool = False,
+    isotropic: bool = False,
+    rgb_anisotropy=None,
+) -> TexelMedia:
+    """Make the media of parameter set ``index`` of :func:`matgen.fit.summary.summarize` as a bake does.
+
+    A and d are inverted at the g written; ``rgb_anisotropy`` (3,) is the channels' g, which the summary
+    does not store.
+    """
     if channels == "bands":
-        vals = {k: np.asarray(quantities[k], dtype=np.float64)[index][None, :]
-                for k in ("albedo_multiple", "shape_distance_mm", "anisotropy")}
+        vals = {
+            k: np.asarray(quantities[k], dtype=np.float64)[index][None, :]
+            for k in ("albedo_multiple", "shape_distance_mm", "anisotropy")
+        }
     else:
         g = np.asarray(rgb_anisotropy, dtype=np.float64).reshape(1, 3)
         vals = {
-            "rgb_albedo_multiple": np.asarray(quantities["rgb_albedo_multiple"], dtype=np.float64)[index][None, :],
-            "rgb_shape_distance_mm": np.asarray(quantities["rgb_shape_distance_mm"],
-                                                dtype=np.float64)[index][None, :],
+            "rgb_albedo_multiple": np.asarray(quantities["rgb_albedo_multiple"], dtype=np.float64)[index][
+                None, :
+            ],
+            "rgb_shape_distance_mm": np.asarray(quantities["rgb_shape_distance_mm"], dtype=np.float64)[index][
+                None, :
+            ],
             "rgb_g_num": g,
             "rgb_g_den": np.ones_like(g),
         }

@@ -37,8 +37,15 @@ class SpectralMediumTarget(Target):
         """Per-band stacks: albedo, mean_free_path, anisotropy."""
         return [
             MapSpec("albedo", "albedo", "bands", "1", False, None, "single-scattering albedo per band"),
-            MapSpec("mean_free_path", "mean_free_path", "bands", "scene_unit", False, None,
-                    "mean free path 1 / sigma_t per band, scene units"),
+            MapSpec(
+                "mean_free_path",
+                "mean_free_path",
+                "bands",
+                "scene_unit",
+                False,
+                None,
+                "mean free path 1 / sigma_t per band, scene units",
+            ),
             MapSpec("anisotropy", "g", "bands", "1", False, None, "Henyey-Greenstein g per band"),
         ]
 
@@ -57,20 +64,24 @@ class SpectralMediumTarget(Target):
 
     def conventions(self, options):
         """Descriptor lines: how the medium is rebuilt."""
-        return {"anisotropy": options.anisotropy,
-                "remap": "sigma_t = 1 / mean_free_path, sigma_s = albedo sigma_t, sigma_a = (1 - albedo) "
-                "sigma_t (1/scene unit); phase Henyey-Greenstein g; dielectric boundary of index eta"}
+        return {
+            "anisotropy": options.anisotropy,
+            "remap": "sigma_t = 1 / mean_free_path, sigma_s = albedo sigma_t, sigma_a = (1 - albedo) "
+            "sigma_t (1/scene unit); phase Henyey-Greenstein g; dielectric boundary of index eta",
+        }
 
     def to_inputs(self, medium, *, metres_per_scene_unit, **options):
         """Per-band lists, with sigma_a, sigma_s, sigma_t in 1/scene unit."""
         out = super().to_inputs(medium, metres_per_scene_unit=metres_per_scene_unit, **options)
         sigma_t = 1.0 / np.asarray(out["mean_free_path"])
         a = np.asarray(out["albedo"])
-        out.update(sigma_t=sigma_t.tolist(), sigma_s=(sigma_t * a).tolist(), sigma_a=(sigma_t * (1 - a)).tolist())
+        out.update(
+            sigma_t=sigma_t.tolist(), sigma_s=(sigma_t * a).tolist(), sigma_a=(sigma_t * (1 - a)).tolist()
+        )
         return out
 
     def from_inputs(self, inputs, *, metres_per_scene_unit):
-        """alpha = albedo, mean free path from scene units (or from sigma_a + sigma_s when given)."""
+        """Alpha = albedo, mean free path from scene units (or from sigma_a + sigma_s when given)."""
         m = check_scale(metres_per_scene_unit)
         if "albedo" not in inputs and {"sigma_a", "sigma_s"} <= set(inputs):
             sa = np.asarray(inputs["sigma_a"], dtype=np.float64)
@@ -97,10 +108,24 @@ class ReflectanceMfpTarget(Target):
     def maps(self, options):
         """Per-band stacks: reflectance, mean_free_path, anisotropy."""
         return [
-            MapSpec("reflectance", "reflectance", "bands", "1", False, None,
-                    "diffuse reflectance A per band (the half-space's, under the boundary eta)"),
-            MapSpec("mean_free_path", "mean_free_path", "bands", "scene_unit", False, None,
-                    "mean free path per band, scene units"),
+            MapSpec(
+                "reflectance",
+                "reflectance",
+                "bands",
+                "1",
+                False,
+                None,
+                "diffuse reflectance A per band (the half-space's, under the boundary eta)",
+            ),
+            MapSpec(
+                "mean_free_path",
+                "mean_free_path",
+                "bands",
+                "scene_unit",
+                False,
+                None,
+                "mean free path per band, scene units",
+            ),
             MapSpec("anisotropy", "g", "bands", "1", False, None, "Henyey-Greenstein g per band"),
         ]
 
@@ -115,36 +140,49 @@ class ReflectanceMfpTarget(Target):
 
     def constant_inputs(self, ior, options):
         """``eta`` and the inversion's name."""
-        return {"eta": {"value": float(ior), "type": "float", "unit": "1"},
-                "inversion": {"value": self.inversion, "type": "string"}}
+        return {
+            "eta": {"value": float(ior), "type": "float", "unit": "1"},
+            "inversion": {"value": self.inversion, "type": "string"},
+        }
 
     def conventions(self, options):
         """Descriptor lines: how alpha is rebuilt."""
-        return {"anisotropy": options.anisotropy,
-                "remap": "alpha = matgen.fit.inversion.albedo_single(reflectance, g, eta, method=inversion)"}
+        return {
+            "anisotropy": options.anisotropy,
+            "remap": "alpha = matgen.fit.inversion.albedo_single(reflectance, g, eta, method=inversion)",
+        }
 
     def to_inputs(self, medium, *, metres_per_scene_unit, inversion=None, **options):
-        """Per-band lists; ``reflectance`` is the medium's own A under ``inversion`` (default
-        ``"boundary_table"``), which equals the skin's A when the medium was inverted with it."""
+        """Return per-band lists; ``reflectance`` is the medium's own A under ``inversion``.
+
+        The default inversion is ``"boundary_table"``; A equals the skin's when the medium was inverted
+        with it.
+        """
         from matgen.fit.inversion import INVERSION_METHODS, albedo_multiple
 
         method = inversion or self.inversion
         if method not in INVERSION_METHODS:
             raise ParameterError(f"unknown inversion {method!r}; use one of {', '.join(INVERSION_METHODS)}")
         a = albedo_multiple(medium.albedo_single, medium.anisotropy, medium.ior, method=method)
-        medium = EffectiveMedium(medium.albedo_single, medium.mean_free_path_mm, medium.anisotropy,
-                                 medium.ior, albedo_multiple=a)
+        medium = EffectiveMedium(
+            medium.albedo_single, medium.mean_free_path_mm, medium.anisotropy, medium.ior, albedo_multiple=a
+        )
         out = super().to_inputs(medium, metres_per_scene_unit=metres_per_scene_unit, **options)
         out["inversion"] = method
         return out
 
     def from_inputs(self, inputs, *, metres_per_scene_unit):
-        """alpha from reflectance by the named inversion; mean free path converted to mm."""
+        """Alpha from reflectance by the named inversion; mean free path converted to mm."""
         require(inputs, ("reflectance", "mean_free_path", "g"), self.name)
         m = check_scale(metres_per_scene_unit)
         g = np.asarray(inputs["g"], dtype=np.float64)
         n = float(inputs.get("eta", 1.0))
         refl = np.asarray(inputs["reflectance"], dtype=np.float64)
         alpha = albedo_single(refl, g, n, method=inputs.get("inversion", self.inversion))
-        return EffectiveMedium(alpha, scene_units_to_mm(np.asarray(inputs["mean_free_path"], dtype=np.float64), m),
-                               g, n, albedo_multiple=refl)
+        return EffectiveMedium(
+            alpha,
+            scene_units_to_mm(np.asarray(inputs["mean_free_path"], dtype=np.float64), m),
+            g,
+            n,
+            albedo_multiple=refl,
+        )

@@ -31,16 +31,44 @@ class StandardSurfaceTarget(Target):
     node = "standard_surface"
 
     def maps(self, options):
-        """The standard_surface maps (see the module docstring)."""
+        """Return the standard_surface maps (see the module docstring)."""
         return [
-            MapSpec("subsurface_color", "subsurface_color", "rgb", "1", True, "color3",
-                    f"standard_surface subsurface_color, convention '{options.albedo_convention}'"),
-            MapSpec("subsurface_radius", "subsurface_radius", "rgb", "1", False, "color3",
-                    "standard_surface subsurface_radius: per-channel mean free path / subsurface_scale"),
-            MapSpec("subsurface_scale", "subsurface_scale", "y", "scene_unit", False, "float",
-                    "standard_surface subsurface_scale: largest channel mean free path, scene units"),
-            MapSpec("subsurface_anisotropy", "subsurface_anisotropy", "y", "1", False, "float",
-                    "standard_surface subsurface_anisotropy: the g every channel was inverted with"),
+            MapSpec(
+                "subsurface_color",
+                "subsurface_color",
+                "rgb",
+                "1",
+                True,
+                "color3",
+                f"standard_surface subsurface_color, convention '{options.albedo_convention}'",
+            ),
+            MapSpec(
+                "subsurface_radius",
+                "subsurface_radius",
+                "rgb",
+                "1",
+                False,
+                "color3",
+                "standard_surface subsurface_radius: per-channel mean free path / subsurface_scale",
+            ),
+            MapSpec(
+                "subsurface_scale",
+                "subsurface_scale",
+                "y",
+                "scene_unit",
+                False,
+                "float",
+                "standard_surface subsurface_scale: largest channel mean free path, scene units",
+            ),
+            MapSpec(
+                "subsurface_anisotropy",
+                "subsurface_anisotropy",
+                "y",
+                "1",
+                False,
+                "float",
+                "standard_surface subsurface_anisotropy: the g every channel was inverted with",
+            ),
         ]
 
     def texel_inputs(self, media, metres_per_scene_unit, options):
@@ -55,8 +83,10 @@ class StandardSurfaceTarget(Target):
 
     def constant_inputs(self, ior, options):
         """``subsurface`` 1 and ``specular_IOR``."""
-        return {"subsurface": {"value": 1.0, "type": "float"},
-                "specular_IOR": {"value": float(ior), "type": "float", "unit": "1"}}
+        return {
+            "subsurface": {"value": 1.0, "type": "float"},
+            "specular_IOR": {"value": float(ior), "type": "float", "unit": "1"},
+        }
 
     def conventions(self, options):
         """Descriptor lines: the colour convention and the remap."""
@@ -69,9 +99,12 @@ class StandardSurfaceTarget(Target):
         }
 
     def from_inputs(self, inputs, *, metres_per_scene_unit):
-        """mfp = subsurface_radius * subsurface_scale (MaterialX graph); alpha by the colour convention."""
-        require(inputs, ("subsurface_color", "subsurface_radius", "subsurface_scale", "subsurface_anisotropy"),
-                self.name)
+        """Mfp = subsurface_radius * subsurface_scale (MaterialX graph); alpha by the colour convention."""
+        require(
+            inputs,
+            ("subsurface_color", "subsurface_radius", "subsurface_scale", "subsurface_anisotropy"),
+            self.name,
+        )
         m = check_scale(metres_per_scene_unit)
         g = float(inputs["subsurface_anisotropy"])
         n = float(inputs.get("specular_IOR", 1.0))
@@ -81,6 +114,7 @@ class StandardSurfaceTarget(Target):
         c = np.asarray(inputs["subsurface_color"], dtype=np.float64)
         if inputs.get("albedo_convention", "spec_remap") == "observed":
             a_ms = c * (1.0 - specular_reflectance_normal(n))
-            return EffectiveMedium(albedo_single(a_ms, g, n, method="boundary_table"), mfp_mm, g, n,
-                                   albedo_multiple=a_ms)
+            return EffectiveMedium(
+                albedo_single(a_ms, g, n, method="boundary_table"), mfp_mm, g, n, albedo_multiple=a_ms
+            )
         return EffectiveMedium(albedo_single_OpenPBR2024(c, g), mfp_mm, g, n)

@@ -132,11 +132,19 @@ def test_openpbr_at_grid_nodes_reproduces_each_nodes_reflectance(tmp_path, kit):
     kit.write_map(maps / "blood.exr", (blood_nodes[iy] - 0.002) / (0.1 - 0.002))
     out = tmp_path / "out"
     bake(load_config(cfg), out, table=table)
-    names = ("subsurface_color", "subsurface_radius", "subsurface_radius_scale", "subsurface_scatter_anisotropy")
-    maps = {k: read_exr(out / "openpbr" / f"{k}.exr")[0].reshape(ix.size, -1).astype(np.float64) for k in names}
+    names = (
+        "subsurface_color",
+        "subsurface_radius",
+        "subsurface_radius_scale",
+        "subsurface_scatter_anisotropy",
+    )
+    maps = {
+        k: read_exr(out / "openpbr" / f"{k}.exr")[0].reshape(ix.size, -1).astype(np.float64) for k in names
+    }
     i_s = float(table.axes[3].values[1])
-    pts = np.column_stack([mel_nodes[ix].ravel(), eu_nodes[ie].ravel(), blood_nodes[iy].ravel(),
-                           np.full(ix.size, i_s)])
+    pts = np.column_stack(
+        [mel_nodes[ix].ravel(), eu_nodes[ie].ravel(), blood_nodes[iy].ravel(), np.full(ix.size, i_s)]
+    )
     _check_openpbr_texels(table, pts, maps)
     assert np.ptp(maps["subsurface_scatter_anisotropy"]) > 0.05  # g differs from node to node
 

@@ -126,8 +126,11 @@ def test_round_trips_through_boundary_table():
     if not has_default_table():
         pytest.skip("inversion table not built")
     t = TARGETS["reflectance_mfp"]
-    _close(t.from_inputs(t.to_inputs(BANDS, metres_per_scene_unit=0.01), metres_per_scene_unit=0.01), BANDS,
-           rtol=1e-6)
+    _close(
+        t.from_inputs(t.to_inputs(BANDS, metres_per_scene_unit=0.01), metres_per_scene_unit=0.01),
+        BANDS,
+        rtol=1e-6,
+    )
     from matgen.fit.inversion import albedo_multiple
 
     rgb = EffectiveMedium(
