@@ -34,6 +34,7 @@ from matgen import __version__
 from matgen.bake.config import BakeConfig
 from matgen.bake.lookup import TexelLookup, set_threads
 from matgen.bake.run import BakePlan, check_inputs, iter_strips, plan_bake
+from matgen.color.tags import exr_attributes, space_names
 from matgen.errors import DataError, LimitError, LockError, PathError
 from matgen.export.descriptor import (
     build_descriptor,
@@ -413,6 +414,7 @@ def bake(
     plan = plan_bake(config, table, tile=tile, allow_outside=allow_outside)
     files = planned_files(plan, config.name)
     check_texture_memory(plan, memory_budget_bytes)
+    space_names(table.working_space)  # colour maps are tagged with it: an unknown space fails before writing
     if dry_run:
         check_writable(out_dir, create=False)
         check_unlocked(out_dir, tile)
@@ -496,8 +498,7 @@ def _bake_into(
                     )
                     if spec.kind == "spectral":
                         attrs["spectralLayoutVersion"] = SPECTRAL_LAYOUT_VERSION
-                    if spec.kind in ("rgb", "target") and len(spec.channels) == 3:
-                        attrs["matgen:working_space"] = table.working_space
+                    attrs.update(exr_attributes(spec.quantity, spec.channels, table.working_space))
                     target = staging / (rel + ".scan.exr") if opts.texture else staging / rel
                     writers[spec.key] = StreamingExr(
                         target,
