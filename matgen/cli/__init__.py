@@ -23,6 +23,7 @@ COMMAND_MODULES = (
     "table",
     "bake",
     "inspect",
+    "usd",
     "validate",
     "preview",
     "report",

@@ -63,6 +63,7 @@ SPACE_NAMES = {
     "sRGB": SpaceNames("lin_rec709_scene", "Linear Rec.709 (sRGB)", "lin_rec709"),
     "ITU-R BT.2020": SpaceNames("lin_rec2020_scene", "Linear Rec.2020", None),
     "P3-D65": SpaceNames("lin_p3d65_scene", "Linear P3-D65", "lin_displayp3"),
+    "Display P3": SpaceNames("lin_p3d65_scene", "Linear P3-D65", "lin_displayp3"),
     "Adobe RGB (1998)": SpaceNames("lin_adobergb_scene", "Linear AdobeRGB", "lin_adobergb"),
 }
 
