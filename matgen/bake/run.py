@@ -21,10 +21,9 @@ from matgen.bake.config import BakeConfig
 from matgen.bake.lookup import TexelLookup
 from matgen.bake.maps import MapReader, discover_tiles, map_info, scan_map, tile_path
 from matgen.bake.tiles import rows_per_strip
-from matgen.color import pass_weights
+from matgen.color.curves import resolve_pass_entry
 from matgen.errors import BandError, ClampWarning, ConfigError, ImageError
 from matgen.fit.inversion import albedo_multiple_vanDeHulst1980
-from matgen.fsutil import resolve_inside
 from matgen.limits import check_udim_tiles
 from matgen.spectra.bands import BandSet
 from matgen.units import MM_PER_M
@@ -119,6 +118,7 @@ class BakePlan:
     request: dict = field(default_factory=dict)
     derived: dict = field(default_factory=dict)  # name -> grid array (grid_shape + (C,)) made from the table
     single_tile: int | None = None  # the one UDIM tile of a farm bake (``--tile``), else None
+    pass_curves: dict = field(default_factory=dict)  # pass name -> curve records (matgen.color.curves)
 
     @property
     def tile_numbers(self) -> list:
@@ -154,19 +154,14 @@ def _spectral_subset(table_bands: BandSet, spec: str):
     return idx, table_bands.subset(idx)
 
 
-def _resolve_passes(config: BakeConfig, bands: BandSet, allow_outside: bool) -> dict:
-    if not config.outputs.passes:
-        return {}
-    out = {}
-    for entry in config.outputs.passes:
-        if entry.lower().endswith(".csv"):
-            path = resolve_inside(config.base_dir, entry, "pass response file", allow_outside=allow_outside)
-            name = path.stem
-            w = pass_weights(str(path), bands)
-        else:
-            name, w = entry, pass_weights(entry, bands)
-        out[name] = np.asarray(w, dtype=np.float64)
-    return out
+def _resolve_passes(config: BakeConfig, bands: BandSet, allow_outside: bool) -> tuple:
+    """Pass name -> weights (B,), and pass name -> curve records (path, SHA-256; matgen.color.curves)."""
+    weights, curves = {}, {}
+    for entry in config.outputs.passes or ():
+        name, w, records = resolve_pass_entry(entry, config.base_dir, bands, allow_outside=allow_outside)
+        weights[name] = np.asarray(w, dtype=np.float64)
+        curves[name] = records
+    return weights, curves
 
 
 def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outside: bool = False) -> BakePlan:
@@ -271,7 +266,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
     # bands and outputs
     bands = table.bands
     spectral_index, spectral_bands = _spectral_subset(bands, config.outputs.spectral_bands)
-    passes = _resolve_passes(config, bands, allow_outside)
+    passes, pass_curves = _resolve_passes(config, bands, allow_outside)
     outputs, request, derived = [], {}, {}
     names = tuple(spectral_channel_name(c) for c in spectral_bands.centre_nm)
     for q in config.outputs.spectral:
@@ -394,6 +389,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         request,
         derived,
         single_tile=tile,
+        pass_curves=pass_curves,
     )
 
 
