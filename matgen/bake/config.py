@@ -31,6 +31,7 @@ from pathlib import Path
 
 import jsonschema
 
+from matgen.bake.config_messages import schema_error_message
 from matgen.errors import ConfigError
 from matgen.fsutil import resolve_inside
 from matgen.limits import read_text_limited
@@ -156,6 +157,9 @@ class BakeConfig:
     outputs : OutputOptions
     source : dict
         The config as read (for provenance).
+    table_out_of_range : str
+        ``"clamp"`` or ``"error"`` for decoded parameters outside the table's axes
+        (:mod:`matgen.bake.table_range`).
 
     """
 
@@ -171,6 +175,7 @@ class BakeConfig:
     udim_tiles: tuple | None
     outputs: OutputOptions
     source: dict = field(default_factory=dict)
+    table_out_of_range: str = "clamp"  # "clamp" / "error": parameters outside the table (bake.table_range)
 
     def parameter(self, name: str) -> ParameterSource:
         """Return the source of parameter ``name``; :class:`ConfigError` if the config does not give it."""
@@ -194,9 +199,7 @@ def _check_schema(data: dict, where: str) -> None:
     validator = jsonschema.Draft202012Validator(_schema())
     errors = sorted(validator.iter_errors(data), key=lambda e: list(e.absolute_path))
     if errors:
-        e = errors[0]
-        loc = ".".join(str(p) for p in e.absolute_path) or "(top level)"
-        raise ConfigError(f"{where}: field '{loc}': {e.message}")
+        raise ConfigError(schema_error_message(errors[0], where, _schema()))
 
 
 def config_from_dict(
@@ -313,6 +316,7 @@ def config_from_dict(
         udim_tiles=tuple(sorted(set(tiles))) if tiles else None,
         outputs=outputs,
         source=data,
+        table_out_of_range=inp.get("table_out_of_range", "clamp"),
     )
 
 

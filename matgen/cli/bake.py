@@ -126,6 +126,11 @@ def run(args) -> int:
         )
         for rel in result.files:
             print(f"  {rel}")
+        print(
+            f"  texels that would be clamped: {result.table_clamped} to the table's range "
+            f"({100 * result.table_clamped / max(result.texels, 1):.1f} %), {result.encoding_clamped} to the "
+            "encoding range"
+        )
         return 0
     rate = result.texels / result.seconds if result.seconds > 0 else float("nan")
     print(f"baked {result.texels} texels in {result.seconds:.1f} s ({rate:,.0f} texels/s) into {out}")

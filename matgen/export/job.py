@@ -34,6 +34,7 @@ from matgen import __version__
 from matgen.bake.config import BakeConfig
 from matgen.bake.lookup import TexelLookup, set_threads
 from matgen.bake.run import BakePlan, check_inputs, iter_strips, plan_bake
+from matgen.bake.table_range import check_table_range
 from matgen.color.tags import exr_attributes, space_names
 from matgen.errors import DataError, LimitError, LockError, PathError
 from matgen.export.descriptor import (
@@ -419,14 +420,18 @@ def bake(
         check_writable(out_dir, create=False)
         check_unlocked(out_dir, tile)
         _dry_run_documents(plan, table, table_source)
-        check_inputs(plan)
+        inputs = check_inputs(plan)
+        would_clamp = check_table_range(plan).total  # refuses here when table_out_of_range = "error"
         return BakeResult(
-            out_dir, None, files, plan.texels, dry_run=True, seconds=time.perf_counter() - t_start
+            out_dir, None, files, plan.texels, would_clamp, inputs.total_clamped, dry_run=True,
+            seconds=time.perf_counter() - t_start,
         )
     check_writable(out_dir)
     with _BakeLock(out_dir, tile):
         _remove_stale_staging(out_dir)
         report = check_inputs(plan)
+        if config.table_out_of_range == "error":
+            check_table_range(plan)  # nothing is written when a texel lies outside the table
         set_threads(jobs)
         set_io_threads(jobs)
         with staging_folder(out_dir) as staging:
