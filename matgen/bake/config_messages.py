@@ -29,7 +29,7 @@ def _unknown_keys(e, where: str) -> str:
     allowed = sorted(e.schema.get("properties", {}))
     extra = sorted(k for k in e.instance if k not in allowed)
     key = extra[0] if extra else "?"
-    field = _loc(list(e.absolute_path) + [key])
+    field = _loc(e.absolute_path)  # the table holding the key
     return (
         f"{where}: field '{field}': unknown key '{key}'{suggest(key, allowed)} "
         f"(allowed here: {', '.join(allowed)})"

@@ -23,7 +23,7 @@ VALUE = {"melanin_fraction": {"value": 0.1}}
     [
         (
             {"parameters": {"melanin_fraction": {"map": "m.exr", "encodng": "linear", "range": [0, 1]}}},
-            "field 'parameters.melanin_fraction.encodng': unknown key 'encodng'; did you mean 'encoding'?",
+            "field 'parameters.melanin_fraction': unknown key 'encodng'; did you mean 'encoding'?",
         ),
         (
             {"scene": {"meters_per_scene_unit": 0.01}, "parameters": VALUE},
@@ -43,7 +43,7 @@ VALUE = {"melanin_fraction": {"value": 0.1}}
         ),
         (
             {"outputs": {"passes": [{"name": "uv", "lamb": "l.csv"}]}, "parameters": VALUE},
-            "field 'outputs.passes.0.lamb': unknown key 'lamb'; did you mean 'lamp'?",
+            "field 'outputs.passes.0': unknown key 'lamb'; did you mean 'lamp'?",
         ),
         (
             {"output": {}, "parameters": VALUE},
