@@ -145,9 +145,14 @@ def _spectral_subset(table_bands: BandSet, spec: str):
     for c in wanted.centre_nm:
         hit = np.nonzero(np.abs(table_bands.centre_nm - c) < 1e-6)[0]
         if hit.size == 0:
+            centres = table_bands.centre_nm
+            near = sorted(centres[np.argsort(np.abs(centres - c))[:2]].tolist())
+            steps = np.unique(np.round(np.diff(centres), 6))
+            every = f" every {steps[0]:g} nm" if steps.size == 1 else ""
             raise BandError(
-                f"outputs.spectral_bands lists {c:g} nm, which is no band centre of the table "
-                f"(table bands {table_bands.centre_nm[0]:g}-{table_bands.centre_nm[-1]:g} nm)"
+                f"outputs.spectral_bands lists {c:g} nm, which is no band centre of the table; nearest: "
+                f"{', '.join(f'{x:g}' for x in near)} nm (the table has {centres.size} bands "
+                f"{centres[0]:g}-{centres[-1]:g} nm{every})"
             )
         idx.append(int(hit[0]))
     idx = np.array(idx, dtype=np.int64)
