@@ -26,6 +26,7 @@ COMMAND_MODULES = (
     "usd",
     "validate",
     "preview",
+    "render",
     "report",
     "bench",
 )
