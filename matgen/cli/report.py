@@ -14,7 +14,7 @@ def register(sub):
         "report",
         "Write a self-contained HTML report of a baked material: inputs, provenance, previews, QA "
         "(out-of-range texels, fit residuals) and validation results",
-        "matgen report lowtide/material.json --out lowtide/report.html --validation validation.json",
+        "matgen report lowtide/bake/material.json --out lowtide/report.html --validation validation.json",
     )
     p.add_argument("descriptor", metavar="DESCRIPTOR", help="material descriptor (material.json) of a bake")
     p.add_argument("--out", help="HTML file to write (default: report.html beside the descriptor)")

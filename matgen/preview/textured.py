@@ -115,7 +115,8 @@ def nearest_band(entry: dict, wavelength_nm: float, tolerance_nm: float = 5.0) -
     return i
 
 
-def _read_channel(path: Path, channel: int) -> np.ndarray:
+def read_channel(path: Path, channel: int) -> np.ndarray:
+    """Read one channel of an image whole as float64 (H, W); size checked before allocation."""
     import OpenImageIO as oiio
 
     from matgen.bake.maps import oiio_error_text
@@ -218,7 +219,7 @@ def _scene_xml(depth_mm, patch_mm, g, ior, band, pixels, spp, seed, boundary) ->
 def _anisotropy(folder: Path, doc: dict, tile, band_index_of) -> float:
     for t in doc["textures"]:
         if t["quantity"] == "subsurface_scatter_anisotropy" and (tile is None or t.get("udim") == tile):
-            return float(np.mean(_read_channel(folder / t["path"], 0)))
+            return float(np.mean(read_channel(folder / t["path"], 0)))
     try:
         entry, path = stack_file(folder, doc, "anisotropy", tile)
     except DataError:
@@ -226,7 +227,7 @@ def _anisotropy(folder: Path, doc: dict, tile, band_index_of) -> float:
             'the bake has neither the OpenPBR anisotropy map nor an anisotropy stack; add "openpbr" to '
             'outputs.targets or "anisotropy" to outputs.spectral and bake again'
         ) from None
-    return float(np.mean(_read_channel(path, band_index_of(entry))))
+    return float(np.mean(read_channel(path, band_index_of(entry))))
 
 
 def _ior(doc: dict) -> float:
@@ -302,8 +303,8 @@ def render_band(
     stack = doc["bands"]["spectral_stacks"]
     j = int(np.argmin(np.abs(np.asarray(stack["centre_nm"]) - centre)))
     band = (float(stack["lower_nm"][j]), float(stack["upper_nm"][j]))
-    albedo = np.clip(box_downsample(_read_channel(a_path, ia), grid), 0.0, 1.0)
-    mfp = np.maximum(box_downsample(_read_channel(m_path, im), grid), 1e-6)
+    albedo = np.clip(box_downsample(read_channel(a_path, ia), grid), 0.0, 1.0)
+    mfp = np.maximum(box_downsample(read_channel(m_path, im), grid), 1e-6)
     g = _anisotropy(folder, doc, tile, lambda e: nearest_band(e, wavelength_nm))
     depth = slab_depth_mm(mfp, patch_mm)
     scene_dir = Path(out_dir) / "scenes" / f"{centre:g}nm"
