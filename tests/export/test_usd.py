@@ -25,8 +25,12 @@ from pxr import Gf, Sdf, Sdr, Usd, UsdShade  # noqa: E402
 mx = pytest.importorskip("MaterialX")
 
 #: MaterialX type -> Sdf value type (OpenUSD's usdMtlx type mapping for these types).
-MX_TO_SDF = {"float": Sdf.ValueTypeNames.Float, "color3": Sdf.ValueTypeNames.Color3f,
-             "vector3": Sdf.ValueTypeNames.Float3, "filename": Sdf.ValueTypeNames.Asset}
+MX_TO_SDF = {
+    "float": Sdf.ValueTypeNames.Float,
+    "color3": Sdf.ValueTypeNames.Color3f,
+    "vector3": Sdf.ValueTypeNames.Float3,
+    "filename": Sdf.ValueTypeNames.Asset,
+}
 
 
 @pytest.fixture(scope="module")
@@ -166,3 +170,29 @@ def test_layer_outside_the_bake_folder_is_refused(usd_bake, tmp_path):
     out, _ = usd_bake
     with pytest.raises(DataError, match="bake folder"):
         write_usd(out / "material.json", tmp_path / "elsewhere.usda")
+
+
+def _usd_project(tmp_path, kit):
+    cfg = kit.make_project(tmp_path / "p", 4, 4)
+    cfg.write_text(cfg.read_text().replace("[outputs]\n", "[outputs]\nusd = true\n"))
+    return cfg
+
+
+def test_config_switch_writes_the_layer_after_the_bake(tmp_path, kit):
+    cfg = _usd_project(tmp_path, kit)
+    out = tmp_path / "out"
+    assert main(["bake", str(cfg), "--out", str(out), "--quiet"]) == 0
+    stage = Usd.Stage.Open(str(out / "material.usda"))
+    assert (
+        _material(stage).ComputeSurfaceSource("mtlx")[0].GetIdAttr().Get()
+        == "ND_open_pbr_surface_surfaceshader"
+    )
+
+
+def test_config_switch_without_usd_core_fails_before_baking(tmp_path, kit, monkeypatch, capsys):
+    cfg = _usd_project(tmp_path, kit)
+    monkeypatch.setitem(sys.modules, "pxr.Usd", None)
+    out = tmp_path / "out"
+    assert main(["bake", str(cfg), "--out", str(out), "--quiet"]) == 2
+    assert 'pip install "matgen[usd]"' in capsys.readouterr().err
+    assert not out.exists()
