@@ -84,3 +84,15 @@ def test_examples_point_at_the_demo_descriptor():
         epilog = sub.choices[name].epilog
         assert "lowtide/material.json" not in epilog
         assert "lowtide/bake/material.json" in epilog
+
+
+def test_report_embeds_one_figure_per_pass(curve_bake, tmp_path, capsys):
+    cfg, desc = curve_bake
+    out = tmp_path / "r.html"
+    assert main(["report", str(desc), "--out", str(out), "--config", str(cfg)]) == 0
+    html = out.read_text()
+    assert "pass &#x27;uv_lamp&#x27;" in html or "pass 'uv_lamp'" in html
+    assert html.count("Fluorescence is not modelled") >= 2  # one caption per pass (nir850, uv_lamp)
+    # the textured render needs the albedo_single stack, which this bake lacks: one message, status 2
+    assert main(["report", str(desc), "--out", str(out), "--textured"]) == 2
+    assert "albedo_single" in capsys.readouterr().err
