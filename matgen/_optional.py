@@ -1,4 +1,7 @@
-"""One helper for optional heavy dependencies (MaterialX, mitsuba, dask): import or say how to install."""
+"""One helper for optional heavy dependencies (MaterialX, mitsuba, dask, usd-core, opencolorio).
+
+Import them, or say how to install them.
+"""
 
 from __future__ import annotations
 
@@ -13,6 +16,8 @@ _EXTRAS = {
     "distributed": "dask",
     "iadpython": "test",
     "miepython": "test",
+    "pxr": "usd",
+    "PyOpenColorIO": "ocio",
 }
 
 
@@ -25,10 +30,13 @@ def require(module: str, purpose: str):
         Importable module name, e.g. ``"MaterialX"``.
     purpose : str
         What the caller wanted to do, for the message ("write MaterialX documents").
+
     """
     try:
         return importlib.import_module(module)
     except ImportError as exc:
         extra = _EXTRAS.get(module.split(".")[0])
         hint = f'pip install "matgen[{extra}]"' if extra else f"pip install {module}"
-        raise DependencyError(f"{purpose} needs the optional package '{module}' ({exc}); install it with: {hint}") from exc
+        raise DependencyError(
+            f"{purpose} needs the optional package '{module}' ({exc}); install it with: {hint}"
+        ) from exc

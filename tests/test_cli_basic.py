@@ -1,5 +1,7 @@
 """The command line: every subcommand has --help with an example; errors become exit status 2."""
 
+import argparse
+
 import pytest
 
 from matgen.cli import COMMAND_MODULES, build_parser, main
@@ -29,3 +31,17 @@ def test_each_subcommand_has_help_with_example(name, capsys):
 
 def test_registered_commands_are_known():
     assert set(_subcommands()) <= set(COMMAND_MODULES)
+
+
+def test_help_names_each_default_once():
+    """No option's help shows its default twice (a written '(default: ...)' and the formatter's)."""
+    parser = build_parser()
+    sub = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
+    checked = 0
+    for name, p in sub.choices.items():
+        fmt = p._get_formatter()
+        for action in p._actions:
+            if action.help:
+                assert fmt._get_help_string(action).count("(default:") <= 1, (name, action.dest)
+                checked += 1
+    assert checked > 50

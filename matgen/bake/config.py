@@ -32,6 +32,7 @@ from pathlib import Path
 
 import jsonschema
 
+from matgen.bake.config_messages import schema_error_message
 from matgen.errors import ConfigError
 from matgen.fsutil import resolve_inside
 from matgen.limits import not_a_file, read_text_limited
@@ -171,6 +172,9 @@ class BakeConfig:
     outputs : OutputOptions
     source : dict
         The config as read (for provenance).
+    table_out_of_range : str
+        ``"clamp"`` or ``"error"`` for decoded parameters outside the table's axes
+        (:mod:`matgen.bake.table_range`).
 
     """
 
@@ -186,6 +190,7 @@ class BakeConfig:
     udim_tiles: tuple | None
     outputs: OutputOptions
     source: dict = field(default_factory=dict)
+    table_out_of_range: str = "clamp"  # "clamp" / "error": parameters outside the table (bake.table_range)
 
     def parameter(self, name: str) -> ParameterSource:
         """Return the source of parameter ``name``; :class:`ConfigError` if the config does not give it."""
@@ -246,8 +251,10 @@ def check_numbers(data, where: str, path: tuple = ()) -> None:
             )
 
 
-def pass_name(entry: str) -> str:
-    """Name of a camera pass entry: a built-in name itself, or the stem of a ``.csv`` response file."""
+def pass_name(entry) -> str:
+    """Name of a camera pass entry: a built-in name, a ``.csv`` file's stem, or a curve table's ``name``."""
+    if isinstance(entry, dict):
+        return str(entry.get("name", ""))
     return Path(entry).stem if entry.lower().endswith(".csv") else entry
 
 
@@ -286,9 +293,7 @@ def _check_schema(data: dict, where: str) -> None:
     validator = jsonschema.Draft202012Validator(_schema())
     errors = sorted(validator.iter_errors(data), key=lambda e: list(e.absolute_path))
     if errors:
-        e = errors[0]
-        loc = ".".join(str(p) for p in e.absolute_path) or "(top level)"
-        raise ConfigError(f"{where}: field '{loc}': {e.message}")
+        raise ConfigError(schema_error_message(errors[0], where, _schema()))
 
 
 def config_from_dict(
@@ -412,6 +417,7 @@ def config_from_dict(
         udim_tiles=tuple(sorted(set(tiles))) if tiles else None,
         outputs=outputs,
         source=data,
+        table_out_of_range=inp.get("table_out_of_range", "clamp"),
     )
 
 

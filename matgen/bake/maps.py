@@ -18,6 +18,7 @@ import numpy as np
 import OpenImageIO as oiio
 
 from matgen.bake.config import UDIM_TOKEN
+from matgen.bake.map_tags import states_colour_space
 from matgen.errors import ColourSpaceWarning, ImageError
 from matgen.limits import check_count, check_image_dims, not_a_file
 
@@ -182,7 +183,7 @@ class MapReader:
         self.width, self.height = target_size if target_size is not None else (info.width, info.height)
         self.resampled = (self.width, self.height) != (info.width, info.height)
         self._inp = None
-        if info.colorspace and "srgb" in info.colorspace.lower():
+        if info.colorspace and "srgb" in info.colorspace.lower() and states_colour_space(info.path):
             warnings.warn(
                 f"{what} {_where(info.path, info.tile)} is tagged as colour space '{info.colorspace}'; "
                 "pigment maps "

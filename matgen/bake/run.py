@@ -17,13 +17,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from matgen.bake.config import BakeConfig, pass_name
+from matgen.bake.config import BakeConfig
 from matgen.bake.lookup import TexelLookup
 from matgen.bake.maps import MapReader, discover_tiles, map_info, scan_map, tile_path
 from matgen.bake.tiles import rows_per_strip
-from matgen.color import pass_weights
+from matgen.color.curves import resolve_pass_entry
 from matgen.errors import BandError, ClampWarning, ConfigError, ImageError
-from matgen.fsutil import resolve_inside
 from matgen.limits import check_udim_tiles
 from matgen.spectra.bands import BandSet
 from matgen.targets import TargetOptions, get_target
@@ -123,6 +122,7 @@ class BakePlan:
     single_tile: int | None = None  # the one UDIM tile of a farm bake (``--tile``), else None
     target_options: TargetOptions = field(default_factory=TargetOptions)
     inverter: object = None  # matgen.targets.solve.TexelInverter at the table's index, when targets are baked
+    pass_curves: dict = field(default_factory=dict)  # pass name -> curve records (matgen.color.curves)
 
     @property
     def tile_numbers(self) -> list:
@@ -149,30 +149,30 @@ def _spectral_subset(table_bands: BandSet, spec: str):
     for c in wanted.centre_nm:
         hit = np.nonzero(np.abs(table_bands.centre_nm - c) < 1e-6)[0]
         if hit.size == 0:
+            centres = table_bands.centre_nm
+            near = sorted(centres[np.argsort(np.abs(centres - c))[:2]].tolist())
+            steps = np.unique(np.round(np.diff(centres), 6))
+            every = f" every {steps[0]:g} nm" if steps.size == 1 else ""
             raise BandError(
-                f"outputs.spectral_bands lists {c:g} nm, which is no band centre of the table "
-                f"(table bands {table_bands.centre_nm[0]:g}-{table_bands.centre_nm[-1]:g} nm)"
+                f"outputs.spectral_bands lists {c:g} nm, which is no band centre of the table; nearest: "
+                f"{', '.join(f'{x:g}' for x in near)} nm (the table has {centres.size} bands "
+                f"{centres[0]:g}-{centres[-1]:g} nm{every})"
             )
         idx.append(int(hit[0]))
     idx = np.array(idx, dtype=np.int64)
     return idx, table_bands.subset(idx)
 
 
-def _resolve_passes(config: BakeConfig, bands: BandSet, allow_outside: bool) -> dict:
-    if not config.outputs.passes:
-        return {}
-    out = {}
-    for entry in config.outputs.passes:
-        if entry.lower().endswith(".csv"):
-            path = resolve_inside(config.base_dir, entry, "pass response file", allow_outside=allow_outside)
-            w = pass_weights(str(path), bands)
-        else:
-            w = pass_weights(entry, bands)
-        name = pass_name(entry)  # the name as written, not the target of a symbolic link
-        if name in out:
+def _resolve_passes(config: BakeConfig, bands: BandSet, allow_outside: bool) -> tuple:
+    """Pass name -> weights (B,), and pass name -> curve records (path, SHA-256; matgen.color.curves)."""
+    weights, curves = {}, {}
+    for entry in config.outputs.passes or ():
+        name, w, records = resolve_pass_entry(entry, config.base_dir, bands, allow_outside=allow_outside)
+        if name in weights:
             raise ConfigError(f"outputs.passes: two entries make pass '{name}'; give each a distinct name")
-        out[name] = np.asarray(w, dtype=np.float64)
-    return out
+        weights[name] = np.asarray(w, dtype=np.float64)
+        curves[name] = records
+    return weights, curves
 
 
 def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outside: bool = False) -> BakePlan:
@@ -277,7 +277,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
     # bands and outputs
     bands = table.bands
     spectral_index, spectral_bands = _spectral_subset(bands, config.outputs.spectral_bands)
-    passes = _resolve_passes(config, bands, allow_outside)
+    passes, pass_curves = _resolve_passes(config, bands, allow_outside)
     outputs, request, derived = [], {}, {}
     names = tuple(spectral_channel_name(c) for c in spectral_bands.centre_nm)
     for q in config.outputs.spectral:
@@ -374,6 +374,7 @@ def plan_bake(config: BakeConfig, table, *, tile: int | None = None, allow_outsi
         single_tile=tile,
         target_options=options,
         inverter=inverter,
+        pass_curves=pass_curves,
     )
 
 

@@ -76,15 +76,23 @@ COMMAND_MODULES = (
     "bake",
     "estimate",
     "inspect",
+    "usd",
     "validate",
     "preview",
+    "render",
     "report",
     "bench",
 )
 
 
 class HelpFormatter(argparse.RawDescriptionHelpFormatter, argparse.ArgumentDefaultsHelpFormatter):
-    """Keeps the examples in epilogs as written and shows defaults."""
+    """Keeps the examples in epilogs as written and shows defaults (once: not where the help names one)."""
+
+    def _get_help_string(self, action):
+        text = action.help or ""
+        if "(default" in text.lower():
+            return text
+        return super()._get_help_string(action)
 
 
 def build_parser() -> argparse.ArgumentParser:

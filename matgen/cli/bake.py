@@ -79,6 +79,11 @@ def run(args) -> int:
     if args.jobs is not None and not 1 <= args.jobs <= 4096:
         raise ParameterError(f"--jobs is {args.jobs}; allowed 1 .. 4096 threads")
     config = load_config(args.config, allow_outside=args.allow_outside)
+    want_usd = bool(config.source.get("outputs", {}).get("usd", False))
+    if want_usd:  # before any texel is computed: a missing usd-core is one message, status 2
+        from matgen._optional import require
+
+        require("pxr.Usd", "write material.usda (outputs.usd = true)")
     table = Table.load(args.table) if args.table else None
     if args.assemble_tiles:
         return _assemble(args, config, table)
@@ -138,7 +143,16 @@ def run(args) -> int:
         )
         for rel in result.files:
             print(f"  {rel}")
+        print(
+            f"  texels that would be clamped: {result.table_clamped} to the table's range "
+            f"({100 * result.table_clamped / max(result.texels, 1):.1f} %), {result.encoding_clamped} to the "
+            "encoding range"
+        )
         return 0
+    if want_usd and args.tile is None:  # one-tile farm bakes leave the USD layer to --assemble-tiles
+        from matgen.export.usd import write_usd
+
+        print(f"USD layer: {write_usd(result.descriptor)}")
     rate = result.texels / result.seconds if result.seconds > 0 else float("nan")
     print(f"baked {result.texels} texels in {result.seconds:.1f} s ({rate:,.0f} texels/s) into {out}")
     print(f"  {len(result.files)} files; descriptor {result.descriptor}")
@@ -186,5 +200,9 @@ def _assemble(args, config, table) -> int:
             print(f"  {rel}")
         return 0
     print(f"assembled the UDIM tiles in {out} ({result.texels} texels): {', '.join(result.files)}")
+    if config.source.get("outputs", {}).get("usd", False):
+        from matgen.export.usd import write_usd
+
+        print(f"USD layer: {write_usd(result.descriptor)}")
     print(f"  descriptor {result.descriptor}")
     return 0

@@ -14,7 +14,7 @@ def register(sub):
         "a flat patch under a small light (visible, UV 365 nm, IR 850 nm), baked-map contact sheets, "
         "table slices",
         "matgen preview --preset cheek palm --out previews\n"
-        "matgen preview --descriptor lowtide/material.json --out previews\n"
+        "matgen preview --descriptor lowtide/bake/material.json --out previews\n"
         "matgen preview --table table.npz --slice melanin_fraction blood_fraction --out previews",
     )
     p.add_argument("--out", required=True, help="folder to write the PNG files into")
@@ -27,6 +27,15 @@ def register(sub):
     )
     p.add_argument(
         "--descriptor", help="material descriptor (material.json) of a bake: contact sheet, texel spectra"
+    )
+    p.add_argument(
+        "--config",
+        help="material config of the bake: the pass previews re-read its curves and check their SHA-256",
+    )
+    p.add_argument(
+        "--textured",
+        action="store_true",
+        help="also render the bake as a textured patch in Mitsuba 3 (matgen render; into <out>/render)",
     )
     p.add_argument("--table", help="table file (.npz) for a heat-map slice")
     p.add_argument("--slice", nargs=2, metavar=("X_AXIS", "Y_AXIS"), help="two table axes of the slice")
@@ -67,6 +76,8 @@ def run(args) -> int:
         bands=bands,
         photons=args.photons,
         seed=args.seed,
+        config_path=args.config,
+        textured=args.textured,
         progress=lambda m: print(m, flush=True),
     )
     for name, path in written.items():

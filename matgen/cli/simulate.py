@@ -5,7 +5,9 @@ STACK.json (units: mm, 1/mm)::
     {"n_above": 1.0, "n_below": 1.0,
      "layers": [{"thickness_mm": 0.1, "n": 1.4, "mu_a": 0.5, "mu_s": 30.0, "g": 0.8, "name": "epidermis"}, ...]}
 
-With ``"wavelength_nm": [w1, w2, ...]`` at the top level, ``n``, ``mu_a``, ``mu_s`` and ``g`` of each layer
+The output of ``matgen optics --format json`` is such a file as it is (its ``bands``, ``units``,
+``packaging`` and ``parameters`` keys are accepted; stated units must be matgen's). With
+``"wavelength_nm": [w1, w2, ...]`` at the top level, ``n``, ``mu_a``, ``mu_s`` and ``g`` of each layer
 may be lists with one value per wavelength (a single number applies to every band); one run per band.
 """
 
@@ -25,6 +27,10 @@ from matgen.limits import read_text_limited
 _log = logging.getLogger("matgen.simulate")
 
 _TOP_KEYS = {"n_above", "n_below", "layers", "wavelength_nm"}
+#: Keys that ``matgen optics --format json`` adds for the reader; accepted and not used (units are checked).
+_INFO_KEYS = {"bands", "units", "packaging", "parameters"}
+#: The units a stack file must be in where it states them (``units`` of ``matgen optics --format json``).
+_UNITS = {"wavelength": "nm", "thickness": "mm", "mu_a": "1/mm", "mu_s": "1/mm", "g": "1", "n": "1"}
 _LAYER_KEYS = {"thickness_mm", "n", "mu_a", "mu_s", "g", "name"}
 _PER_BAND = ("n", "mu_a", "mu_s", "g")
 
@@ -73,9 +79,17 @@ def load_stacks(path):
         raise ConfigError(f"stack file '{path}': JSON nested too deeply to be a stack") from None
     if not isinstance(doc, dict):
         raise ConfigError(f"stack file '{path}' must hold a JSON object with a 'layers' list")
-    unknown = set(doc) - _TOP_KEYS
+    unknown = set(doc) - _TOP_KEYS - _INFO_KEYS
     if unknown:
-        raise ConfigError(f"stack file '{path}': unknown keys {sorted(unknown)}; allowed {sorted(_TOP_KEYS)}")
+        raise ConfigError(
+            f"stack file '{path}': unknown keys {sorted(unknown)}; allowed {sorted(_TOP_KEYS | _INFO_KEYS)}"
+        )
+    units = doc.get("units", {})
+    wrong = {}
+    if isinstance(units, dict):
+        wrong = {k: v for k, v in units.items() if k in _UNITS and v != _UNITS[k]}
+    if wrong or not isinstance(units, dict):
+        raise ConfigError(f"stack file '{path}': units {wrong or units!r} differ from matgen's {_UNITS}")
     layers = doc.get("layers")
     if not isinstance(layers, list) or not layers:
         raise StackError(f"stack file '{path}': 'layers' must be a non-empty list of layer objects")

@@ -235,7 +235,10 @@ def build_descriptor(
         "illuminant": table.illuminant,
         "udim_tiles": None if plan.tile_numbers[0] is None else [int(t) for t in plan.tile_numbers],
         "textures": textures,
-        "passes": {k: {"weights": v.tolist()} for k, v in plan.pass_weights.items()},
+        "passes": {
+            k: {"weights": v.tolist(), "curves": getattr(plan, "pass_curves", {}).get(k, [])}
+            for k, v in plan.pass_weights.items()
+        },
         "targets": targets,
         "documents": documents,
         "provenance": {

@@ -54,7 +54,10 @@ def _spec(width, height, channels, pixel_type, compression, attributes, tile_siz
     spec.attribute("compression", compression)
     spec.attribute("DateTime", FIXED_DATETIME)
     for key, value in (attributes or {}).items():
-        spec.attribute(key, value)
+        if isinstance(value, tuple):  # float arrays: chromaticities (float[8]), adoptedNeutral (float[2])
+            spec.attribute(key, oiio.TypeDesc(f"float[{len(value)}]"), tuple(float(v) for v in value))
+        else:
+            spec.attribute(key, value)
     if tile_size:
         spec.tile_width = spec.tile_height = int(tile_size)
     return spec
@@ -75,7 +78,8 @@ class StreamingExr:
     compression : str
         One of :data:`LOSSLESS_COMPRESSIONS`.
     attributes : dict, optional
-        Extra header attributes (strings, ints or floats).
+        Extra header attributes (strings, ints or floats; a tuple of floats becomes a float array, as the
+        OpenEXR attributes ``chromaticities`` and ``adoptedNeutral`` are).
 
     """
 

@@ -33,6 +33,8 @@ from matgen import __version__
 from matgen.bake.config import BakeConfig
 from matgen.bake.lookup import TexelLookup, set_threads
 from matgen.bake.run import BakePlan, check_inputs, iter_strips, plan_bake
+from matgen.bake.table_range import check_table_range
+from matgen.color.tags import exr_attributes, exr_colour_attributes, exr_data_attributes, space_names
 from matgen.errors import DataError, LimitError, LockError, PathError
 from matgen.export.descriptor import (
     build_descriptor,
@@ -52,6 +54,8 @@ from matgen.export.publish import (
 from matgen.fsutil import FolderLock, live_lock_owner
 from matgen.provenance import sha256_file
 from matgen.tables.store import Table, default_table_path, load_default_table
+from matgen.targets import get_target
+from matgen.targets.base import TargetOptions
 from matgen.targets.solve import table_ior
 
 #: Lock file of a whole bake or a tile assembly in its output folder.
@@ -376,6 +380,15 @@ def _build_documents(
     return out
 
 
+
+def _colour_tags(spec, working_space: str) -> dict:
+    """EXR colour or data tags of one output: a target map is colour when its target says so."""
+    if spec.kind == "target":
+        maps = get_target(spec.target).maps(TargetOptions())
+        colour = any(m.name == spec.quantity and m.colour for m in maps)
+        return exr_colour_attributes(working_space) if colour else exr_data_attributes()
+    return exr_attributes(spec.quantity, spec.channels, working_space)
+
 def bake(
     config: BakeConfig,
     out_dir,
@@ -436,14 +449,17 @@ def bake(
     inputs = bake_inputs(plan, table_source)
     if out_dir.is_dir():
         check_targets(out_dir, files, inputs)
+    space_names(table.working_space)  # colour maps are tagged with it: an unknown space fails before writing
     if dry_run:
         check_writable(out_dir, create=False)
         check_unlocked(out_dir, tile)
         check_free_space(out_dir)
         _dry_run_documents(plan, table, table_source)
-        check_inputs(plan)
+        inputs = check_inputs(plan)
+        would_clamp = check_table_range(plan).total  # refuses here when table_out_of_range = "error"
         return BakeResult(
-            out_dir, None, files, plan.texels, dry_run=True, seconds=time.perf_counter() - t_start
+            out_dir, None, files, plan.texels, would_clamp, inputs.total_clamped, dry_run=True,
+            seconds=time.perf_counter() - t_start,
         )
     check_writable(out_dir)
     with _BakeLock(out_dir, tile) as held:
@@ -451,6 +467,8 @@ def bake(
         _remove_stale_staging(out_dir, lock_name)
         check_targets(out_dir, files, inputs)
         report = check_inputs(plan)
+        if config.table_out_of_range == "error":
+            check_table_range(plan)  # nothing is written when a texel lies outside the table
         set_threads(jobs)
         set_io_threads(jobs)
         with staging_folder(out_dir) as staging:
@@ -529,8 +547,7 @@ def _bake_into(
                     )
                     if spec.kind == "spectral" or spec.wavelengths_nm:
                         attrs["spectralLayoutVersion"] = SPECTRAL_LAYOUT_VERSION
-                    if spec.kind in ("rgb", "target") and spec.channels == ("R", "G", "B"):
-                        attrs["matgen:working_space"] = table.working_space
+                    attrs.update(_colour_tags(spec, table.working_space))
                     target = staging / (rel + ".scan.exr") if opts.texture else staging / rel
                     writers[spec.key] = StreamingExr(
                         target,

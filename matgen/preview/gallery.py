@@ -97,8 +97,12 @@ def preset_previews(
     return written
 
 
-def descriptor_previews(out_dir, descriptor_path) -> dict:
-    """Contact sheet of a bake's maps and the spectra of three of its texels."""
+def descriptor_previews(out_dir, descriptor_path, *, config_path=None, textured: bool = False) -> dict:
+    """Contact sheet of a bake's maps, the spectra of three of its texels, one preview per pass.
+
+    ``textured`` adds the textured spectral render (:mod:`matgen.preview.textured`, Mitsuba 3) into
+    ``<out>/render/``; ``config_path`` lets the pass previews re-read and check their curves.
+    """
     from matgen.export.descriptor import load_descriptor
     from matgen.preview.report import material_panels, texel_spectra
 
@@ -115,6 +119,17 @@ def descriptor_previews(out_dir, descriptor_path) -> dict:
         written["texel_spectra"] = plots.plot_reflectance_spectra(
             out / "texel_spectra.png", *spectra, title="baked albedo A at three texels"
         )
+    from matgen.preview.passes import pass_preview
+
+    for name in doc.get("passes", {}):
+        written[f"pass_{name}"] = pass_preview(
+            out / f"pass_{name}.png", descriptor_path, name, config_path=config_path
+        )
+    if textured:
+        from matgen.preview.textured import render_views
+
+        for key, path in render_views(descriptor_path, out / "render").items():
+            written[f"render_{key}"] = path
     return written
 
 
@@ -143,6 +158,8 @@ def write_previews(
     photons: int = 20_000,
     seed: int = 0,
     progress=None,
+    config_path=None,
+    textured: bool = False,
 ) -> dict:
     """Write every preview that the given inputs allow into ``out_dir``; return name -> path.
 
@@ -160,7 +177,7 @@ def write_previews(
             )
         )
     if descriptor is not None:
-        written.update(descriptor_previews(out_dir, descriptor))
+        written.update(descriptor_previews(out_dir, descriptor, config_path=config_path, textured=textured))
     if table is not None:
         axes = list(slice_axes or table.axis_names[:2])
         if len(axes) != 2:

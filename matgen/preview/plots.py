@@ -278,6 +278,30 @@ def plot_table_slice(
     return _save(fig, path)
 
 
+#: Most flagged texels marked one by one on a flag panel (beyond that the image alone shows them).
+MAX_FLAG_MARKERS = 5000
+
+
+def _flag_panel(fig, ax, p) -> str:
+    """Draw a 0/1 flag map on a fixed [0, 1] scale, ring every flagged texel, return the title with the count.
+
+    A percentile colour range would call a map with under 1 % flagged texels "all 0", and a panel smaller
+    than the map drops single texels when it is resampled; the count and the rings avoid both.
+    """
+    from matplotlib.colors import ListedColormap
+
+    v = np.asarray(p["values"], dtype=np.float64)
+    flagged = np.isfinite(v) & (v > 0.5)
+    n = int(flagged.sum())
+    im = ax.imshow(flagged.astype(float), cmap=ListedColormap(["#1a1a1a", "#ff3030"]), vmin=0, vmax=1,
+                   interpolation="nearest")
+    fig.colorbar(im, ax=ax, fraction=0.046, pad=0.04, ticks=[0, 1], label="flag (0 / 1)")
+    if 0 < n <= MAX_FLAG_MARKERS:
+        yy, xx = np.nonzero(flagged)
+        ax.scatter(xx, yy, s=30, facecolors="none", edgecolors="#ffd000", linewidths=0.8)
+    return f"{p['title']}: {n} of {v.size} texels flagged ({100 * n / max(v.size, 1):.2g} %)"
+
+
 def plot_contact_sheet(path, panels: list, *, title: str = "", columns: int = 3, panel_px: int = 300) -> Path:
     """Several maps side by side, each with a title; scalar maps with a colour bar and their unit.
 
@@ -286,8 +310,10 @@ def plot_contact_sheet(path, panels: list, *, title: str = "", columns: int = 3,
     path : str or Path
         PNG to write.
     panels : list of dict
-        Each ``{"title": str, "image": ndarray (H, W, 3) display values in [0, 1]}`` or
-        ``{"title": str, "values": ndarray (H, W), "unit": str, "cmap": str (optional)}``.
+        Each ``{"title": str, "image": ndarray (H, W, 3) display values in [0, 1]}``,
+        ``{"title": str, "values": ndarray (H, W), "unit": str, "cmap": str (optional)}``, or a 0/1 flag map
+        ``{"title": str, "values": ndarray (H, W), "flags": True}`` (fixed scale, count in the title, every
+        flagged texel ringed).
     title : str
         Sheet title.
     columns : int
@@ -311,6 +337,8 @@ def plot_contact_sheet(path, panels: list, *, title: str = "", columns: int = 3,
         p = panels[i]
         if "image" in p:
             ax.imshow(np.clip(p["image"], 0, 1), interpolation="nearest")
+        elif p.get("flags"):
+            p = dict(p, title=_flag_panel(fig, ax, p))
         else:
             v = np.asarray(p["values"], dtype=np.float64)
             finite = v[np.isfinite(v)]

@@ -158,7 +158,10 @@ def material_panels(descriptor_path, doc: dict, *, allow_outside: bool = False) 
     if found:
         t, arr, names = found
         for i, name in enumerate(names):
-            panels.append({"title": f"QA: {name}", "values": arr[..., i], "unit": "1", "cmap": "magma"})
+            flags = name.endswith("_clamped")  # 0/1 flags: counted and ringed, not a percentile range
+            panels.append(
+                {"title": f"QA: {name}", "values": arr[..., i], "unit": "1", "cmap": "magma", "flags": flags}
+            )
     return panels
 
 

@@ -474,6 +474,34 @@ def _response_csv(data: bytes, scratch: Path):
     assert np.all(np.isfinite(w)) and abs(float(w.sum()) - 1.0) < 1e-6, f"weights not normalised: {w}"
 
 
+def _curve_seeds(d: Path) -> list:
+    vendor = (
+        b"# filter datasheet\nWavelength [nm];Transmission [%]\n350;10,0\n365,5;80,0\n380;5,0\n"
+    )
+    tabbed = b"lambda (um)\tQE\n0.80\t0.5\n0.85\t0.4\n0.90\t0.2\n"
+    return _csv_seeds(d) + [vendor, tabbed]
+
+
+@target(
+    "pass_curve_csv",
+    _curve_seeds,
+    requires=("matgen.color.curves",),
+    notes="read_curve + combined_weights on a mutated lamp/filter/sensor curve file (tolerant reader)",
+)
+def _pass_curve_csv(data: bytes, scratch: Path):
+    import numpy as np
+
+    from matgen.color.curves import combined_weights, read_curve
+    from matgen.spectra.bands import BandSet
+
+    p = scratch / "lamp.csv"
+    p.write_bytes(data)
+    c = read_curve(p, "lamp")
+    assert np.all(np.isfinite(c.values)) and np.all(c.values >= 0) and np.all(np.diff(c.wavelength_nm) > 0)
+    w = np.asarray(combined_weights([c], BandSet.regular(300.0, 1000.0, 10.0)))
+    assert np.all(np.isfinite(w)) and abs(float(w.sum()) - 1.0) < 1e-6, f"weights not normalised: {w}"
+
+
 # ---------------------------------------------------------------------------------------------------------
 # transport inputs: STACK.json of `matgen simulate`, photon records files
 

@@ -105,3 +105,18 @@ def test_readme_example_runs():
     code = re.search(r"```python\n(.*?)```", text, re.S).group(1)
     code = code.replace("200_000", "20_000")  # same code, fewer photons
     exec(compile(code, "docs/readme/transport.md", "exec"), {})
+
+
+def test_simulate_takes_optics_json_as_it_is(tmp_path, capsys):
+    """matgen optics --format json chains into matgen simulate: one run per band, layers as optics wrote."""
+    assert main(["optics", "--preset", "cheek", "--wavelengths", "550,850", "--format", "json"]) == 0
+    text = capsys.readouterr().out
+    doc = json.loads(text)
+    assert {"bands", "units", "parameters"} <= set(doc)
+    path = _write(tmp_path, text, "optics.json")
+    assert main(["simulate", path, "--photons", "2000", "--seed", "1", "--json"]) == 0
+    out = capsys.readouterr().out
+    assert out.count("550") >= 1 and out.count("850") >= 1
+    doc["units"]["thickness"] = "cm"
+    assert main(["simulate", _write(tmp_path, doc, "cm.json"), "--photons", "100"]) == 2
+    assert "differ from matgen's" in capsys.readouterr().err
