@@ -205,7 +205,8 @@ def _estimate_back(out: Path, config, table, args) -> tuple:
     )
     res = est.summary["residual_de2000"]["in_gamut"]
     caption = (
-        f"The invented pilot's baked albedo with capture-like noise (0.2 % + 0.0002 per channel), estimated "
+        "Scanned albedo estimated back: the invented pilot's baked albedo with capture-like noise "
+        f"(0.2 % + 0.0002 per channel), estimated "
         f"back ({', '.join(plan.model.estimated)} estimated; held {held}) and re-baked: CIEDE2000 scan vs "
         f"re-bake median {np.median(de):.3f}, p95 {np.percentile(de, 95):.3f}; estimate residual in gamut "
         f"median {res['p50']:.3f}, p95 {res['p95']:.3f}; "
