@@ -220,6 +220,13 @@ def open_capture(path, tile, name: str, size) -> object:
             f"capture '{name}' {path} is {info.width} x {info.height} texels but the albedo is "
             f"{size[0]} x {size[1]}; captures must be registered to the albedo at its size"
         )
+    if info.colorspace and "srgb" in info.colorspace.lower():
+        warnings.warn(
+            f"capture '{name}' {path} is tagged '{info.colorspace}' but is read as linear: a capture must "
+            "hold the response-weighted albedo itself (white = 1), not display-encoded values",
+            ColourSpaceWarning,
+            stacklevel=2,
+        )
     return info
 
 
