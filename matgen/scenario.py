@@ -231,3 +231,23 @@ def write_scenario(folder, size: int = 512, seed: int = DEFAULT_SEED) -> tuple:
     config = folder / "material.toml"
     atomic_write_text(config, MATERIAL_CONFIG_TOML)
     return config, maps
+
+
+#: Capture-like noise of the scenario's "scanned" albedo (invented for the demo, not a measured camera):
+#: per channel and texel, Gaussian with a relative sigma of 0.2 % plus an absolute sigma of 0.0002.
+SCAN_NOISE_RELATIVE = 0.002
+SCAN_NOISE_ABSOLUTE = 0.0002
+
+
+def scanned_albedo(albedo: np.ndarray, seed: int = DEFAULT_SEED) -> np.ndarray:
+    """Make the scenario's invented "scanned" albedo: a baked albedo (H, W, 3) with capture-like noise.
+
+    Stands in for a cross-polarised capture of the invented pilot: the baked albedo of the scenario's
+    pigment maps, each channel and texel multiplied by (1 + 0.2 % noise) plus 0.0002 absolute noise
+    (:data:`SCAN_NOISE_RELATIVE`, :data:`SCAN_NOISE_ABSOLUTE`), clipped to [0, 1]. Dimensionless.
+    """
+    rng = np.random.default_rng(seed + 1)
+    a = np.asarray(albedo, dtype=np.float64)
+    noisy = a * (1.0 + SCAN_NOISE_RELATIVE * rng.standard_normal(a.shape))
+    noisy += SCAN_NOISE_ABSOLUTE * rng.standard_normal(a.shape)
+    return np.clip(noisy, 0.0, 1.0).astype(np.float32)

@@ -4,7 +4,7 @@ The albedo is synthetic: smooth invented pigment maps with seeded texel noise (m
 0.004-0.1, log-spaced; eumelanin share and saturation constant), turned into ACEScg albedo by the table's
 own lookup (``Table.lookup`` of ``rgb_albedo_multiple``, what the bake writes) and stored as float EXR.
 ``matgen estimate`` then runs in a child process, so that wall time and peak resident memory
-(``getrusage(RUSAGE_CHILDREN).ru_maxrss``) are its own. The round trip (``--roundtrip-size``, default 256)
+(its resident set, sampled) are its own. The round trip (``--roundtrip-size``, default 256)
 bakes the estimate's ``material.toml`` with ``matgen bake`` and compares its ``rgb/albedo_multiple.exr`` with
 the input in CIEDE2000, noise-free and with capture-like noise (0.2 % relative + 0.0002 absolute per
 channel), and reports the relative errors of melanin and blood against the ground truth.
@@ -15,9 +15,7 @@ from __future__ import annotations
 
 import json
 import os
-import resource
 import shutil
-import subprocess
 import sys
 import tempfile
 import time
@@ -90,13 +88,31 @@ def write_albedo(path: Path, table, size: int, noise_rng=None, rows: int = 256):
 
 
 def _child(args: list, what: str):
+    """Run ``python -m matgen ARGS``; returns wall seconds, its standard output and its peak RSS in MiB.
+
+    The peak is the child's own resident set sampled every 20 ms (psutil): ``getrusage(RUSAGE_CHILDREN)``
+    would also count the pages the child inherited from this process when it was forked.
+    """
+    import psutil
+
     env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[2]))
-    t0 = time.perf_counter()
-    proc = subprocess.run([sys.executable, "-m", "matgen", *args], capture_output=True, text=True, env=env)
-    wall = time.perf_counter() - t0
+    with tempfile.TemporaryFile("w+") as out, tempfile.TemporaryFile("w+") as err:
+        t0 = time.perf_counter()
+        proc = psutil.Popen([sys.executable, "-m", "matgen", *args], stdout=out, stderr=err, env=env)
+        peak = 0
+        while proc.poll() is None:
+            try:
+                peak = max(peak, proc.memory_info().rss)
+            except psutil.Error:
+                pass
+            time.sleep(0.02)
+        wall = time.perf_counter() - t0
+        out.seek(0)
+        err.seek(0)
+        stdout, stderr = out.read(), err.read()
     if proc.returncode != 0:
-        raise MatgenError(f"the benchmark's {what} failed (exit {proc.returncode}): {proc.stderr.strip()}")
-    return wall, proc.stdout
+        raise MatgenError(f"the benchmark's {what} failed (exit {proc.returncode}): {stderr.strip()}")
+    return wall, stdout, peak / 2**20
 
 
 def _fix() -> list:
@@ -148,8 +164,7 @@ def run(args) -> int:
         t_inputs = time.perf_counter() - t0
         cmd = ["estimate", str(work / "albedo.exr"), "--out", str(work / "est"), "--quiet", "--json", *_fix()]
         cmd += ["--memory-mb", str(args.memory_mb)] + (["--jobs", str(args.jobs)] if args.jobs else [])
-        wall, out = _child(cmd, "estimate")
-        peak_mib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0  # Linux: KiB
+        wall, out, peak_mib = _child(cmd, "estimate")
         summary = json.loads(out)
         texels = args.size * args.size
         figures = {

@@ -96,14 +96,17 @@ class InputSpace:
             "values": "encoded (decoded with the space's transfer function)" if self.encoded else "linear",
         }
 
-    def to_working(self, rgb: np.ndarray) -> np.ndarray:
-        """Input values (N, 3) -> linear working-space RGB (N, 3), float64."""
+    def decode(self, rgb: np.ndarray) -> np.ndarray:
+        """Input values (N, 3) -> linear values in the input's primaries (decoded when encoded)."""
         import colour
 
-        v = np.asarray(rgb, dtype=np.float64)
-        if self.encoded:
-            v = colour.RGB_COLOURSPACES[self.space].cctf_decoding(v)
-        return v @ self.matrix.T
+        if not self.encoded:
+            return np.asarray(rgb)
+        return colour.RGB_COLOURSPACES[self.space].cctf_decoding(np.asarray(rgb, dtype=np.float64))
+
+    def to_working(self, rgb: np.ndarray) -> np.ndarray:
+        """Input values (N, 3) -> linear working-space RGB (N, 3), float64."""
+        return np.asarray(self.decode(rgb), dtype=np.float64) @ self.matrix.T
 
 
 def resolve_input_space(name: str, source: str, working_space: str, transfer: str = "auto") -> InputSpace:
@@ -219,6 +222,13 @@ def open_capture(path, tile, name: str, size) -> object:
         raise ImageError(
             f"capture '{name}' {path} is {info.width} x {info.height} texels but the albedo is "
             f"{size[0]} x {size[1]}; captures must be registered to the albedo at its size"
+        )
+    if info.colorspace and "srgb" in info.colorspace.lower():
+        warnings.warn(
+            f"capture '{name}' {path} is tagged '{info.colorspace}' but is read as linear: a capture must "
+            "hold the response-weighted albedo itself (white = 1), not display-encoded values",
+            ColourSpaceWarning,
+            stacklevel=2,
         )
     return info
 

@@ -37,7 +37,7 @@ DAMPING_MIN = 1e-9
 DAMPING_MAX = 1e8
 
 #: Cost (sum of squared residuals, CIE units squared) below which a texel counts as matched exactly.
-COST_EXACT = 1e-12
+COST_EXACT = 1e-8
 
 
 @numba.njit(cache=True)
@@ -273,7 +273,7 @@ def solve_kernel(
                 for i in range(k):
                     xn[i] = min(max(xi[i] + dx[i], lo[i]), hi[i])
                     moved = max(moved, abs(xn[i] - xi[i]))
-                if moved < 1e-9:
+                if moved < 1e-7:
                     break
                 _interp_grad(xn, coords, offsets, strides, grid, vals, dvals, cell, t, h)
                 _features(vals, dvals, m_norm, fn, jn)
@@ -289,7 +289,7 @@ def solve_kernel(
                     for f in range(nc):
                         feat[f] = fn[f]
                     lam = max(lam * 0.1, DAMPING_MIN)
-                    if moved < 1e-7:
+                    if moved < 1e-6:
                         break
                 else:
                     lam = min(lam * 10.0, DAMPING_MAX)

@@ -203,7 +203,6 @@ class EstimateStrip:
     de2000: np.ndarray
     capture_dl: np.ndarray
     out_of_gamut: np.ndarray
-    albedo_in: np.ndarray
 
 
 def iter_estimate_strips(
@@ -221,10 +220,9 @@ def iter_estimate_strips(
     try:
         for y0 in range(0, ti.height, step):
             y1 = min(ti.height, y0 + step)
-            rgb_in = readers[0].read_rows(y0, y1).reshape(-1, 3)
-            rgb = plan.space.to_working(rgb_in)
+            rgb_in = plan.space.decode(readers[0].read_rows(y0, y1).reshape(-1, 3))
             caps = [r.read_rows(y0, y1).reshape(-1) for r in readers[1:]]
-            target = model.features_of(rgb, np.stack(caps, axis=1) if caps else None)
+            target = model.features_of(rgb_in, np.stack(caps, axis=1) if caps else None, plan.space.matrix)
             sol = model.solve(target, jobs=jobs)
             h, w = y1 - y0, ti.width
             yield EstimateStrip(
@@ -235,7 +233,6 @@ def iter_estimate_strips(
                 sol.de2000.reshape(h, w).astype(np.float32),
                 sol.capture_dl.reshape(h, w, -1),
                 sol.out_of_gamut.reshape(h, w),
-                rgb.reshape(h, w, 3),
             )
     finally:
         for r in readers:

@@ -129,11 +129,16 @@ class InverseModel:
         return np.where(self.is_log, np.exp(c), c)
 
     # ------------------------------------------------------------------ forward
-    def features_of(self, rgb, captures=None) -> np.ndarray:
-        """Features (N, F) of linear working-space RGB (N, 3) and capture values (N, n_captures)."""
-        rgb = np.asarray(rgb, dtype=np.float64).reshape(-1, 3)
+    def features_of(self, rgb, captures=None, input_matrix=None) -> np.ndarray:
+        """Features (N, F) of linear RGB (N, 3) and capture values (N, n_captures).
+
+        ``rgb`` is in the working space, or in another linear space when ``input_matrix`` (3, 3) converts
+        it to the working space (the two matrices are applied as one).
+        """
+        rgb = np.asarray(rgb).reshape(-1, 3)
+        m = self.m_norm if input_matrix is None else self.m_norm @ np.asarray(input_matrix, dtype=np.float64)
         f = np.empty((rgb.shape[0], self.n_features))
-        f[:, :3] = rgb_to_lab(rgb, self.m_norm)
+        f[:, :3] = rgb_to_lab(rgb, m)
         if self.captures:
             cap = np.asarray(captures, dtype=np.float64).reshape(rgb.shape[0], len(self.captures))
             for c in range(cap.shape[1]):

@@ -193,3 +193,21 @@ def test_table_without_an_estimable_axis_is_refused(albedo, tmp_path, capsys):
     table.save(tmp_path / "odd.npz")
     msg = _refused(capsys, tmp_path / "o", path, "--colour-space", "acescg", "--table", tmp_path / "odd.npz")
     assert "none of the axes colour can estimate" in msg
+
+
+def test_srgb_tagged_capture_warns(albedo, tmp_path, capsys, ekit):
+    path, baked, _ = albedo
+    uv = ekit.read(baked / "passes" / "uv365.exr")
+    ekit.write_image(tmp_path / "uv.png", uv, pixel_type=oiio.UINT16)
+    rc, _, err = _run(
+        capsys,
+        path,
+        "--colour-space",
+        "acescg",
+        "--capture",
+        f"uv365={tmp_path / 'uv.png'}",
+        "--out",
+        tmp_path / "o",
+    )
+    assert rc == 0
+    assert "capture 'uv365'" in err and "read as linear" in err

@@ -632,7 +632,8 @@ def _fit_result(data: bytes, scratch: Path):
 
 # ---------------------------------------------------------------------------------------------------------
 # targets in their own modules, registered on import: table job folders and lock files (targets_jobs.py),
-# validation results and photon-records members (targets_results.py)
+# validation results and photon-records members (targets_results.py), estimate albedos (targets_estimate.py)
 
+import targets_estimate  # noqa: E402, F401
 import targets_jobs  # noqa: E402, F401
 import targets_results  # noqa: E402, F401
