@@ -13,6 +13,12 @@ from matgen.export.assemble import assemble_tiles
 from matgen.export.job import bake
 from matgen.tables.store import Table
 
+#: Default memory budget of a bake, MiB.
+MEMORY_MB = 256
+#: Default with ``outputs.exr.texture = true``: making a tile's mip-maps holds 2 x its float32 image + 16 MiB
+#: (``matgen.export.job.TEXTURE_MEMORY_FACTOR``); a 2048 x 2048 tile of 31 bands needs 1008 MiB.
+TEXTURE_MEMORY_MB = 1100
+
 
 def register(sub):
     """Add ``matgen bake`` to the subcommands."""
@@ -59,12 +65,20 @@ def register(sub):
     p.add_argument(
         "--memory-mb",
         type=int,
-        default=256,
+        default=None,
         help="memory budget of the texels in flight, MiB (also the most that making tiled mip-mapped "
-        "textures may take)",
+        f"textures may take) (default: {MEMORY_MB}; {TEXTURE_MEMORY_MB} with outputs.exr.texture = true, "
+        "enough to make the mip-maps of a 2048 x 2048 tile of 31 bands)",
     )
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=run)
+
+
+def memory_budget_mb(args, config) -> int:
+    """Return the memory budget in MiB: ``--memory-mb``, else the default for the texture setting."""
+    if args.memory_mb is not None:
+        return int(args.memory_mb)
+    return TEXTURE_MEMORY_MB if config.outputs.texture else MEMORY_MB
 
 
 def run(args) -> int:
@@ -112,7 +126,7 @@ def run(args) -> int:
                 dry_run=args.dry_run,
                 allow_outside=args.allow_outside,
                 progress=progress,
-                memory_budget_bytes=int(args.memory_mb) << 20,
+                memory_budget_bytes=memory_budget_mb(args, config) << 20,
             )
         finally:
             if bar is not None:
