@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 from scipy.ndimage import gaussian_filter
 
+from matgen.color.tags import exr_data_attributes
 from matgen.export.exr import write_exr
 from matgen.fsutil import atomic_path, atomic_write_text
 
@@ -224,7 +225,8 @@ def write_scenario(folder, size: int = 512, seed: int = DEFAULT_SEED) -> tuple:
     folder = Path(folder)
     maps = generate_maps(size, seed)
     (folder / "maps").mkdir(parents=True, exist_ok=True)
-    attrs = {"matgen:scenario": f"Low Tide Lantern (invented), seed {seed}"}
+    # pigment maps are non-colour data: tagged so (OpenColorIO "Raw") for any tool that colour-manages them
+    attrs = {"matgen:scenario": f"Low Tide Lantern (invented), seed {seed}", **exr_data_attributes()}
     for name in ("melanin", "blood"):
         with atomic_path(folder / "maps" / f"{name}.exr") as tmp:
             write_exr(tmp, maps[name], ("Y",), pixel_type="float", attributes=attrs)

@@ -16,6 +16,12 @@ from matgen.tables.store import Table
 #: Largest --memory-mb, MiB (1 TiB).
 MAX_MEMORY_MB = 1 << 20
 
+#: Default memory budget of a bake, MiB.
+MEMORY_MB = 256
+#: Default with ``outputs.exr.texture = true``: making a tile's mip-maps holds 2 x its float32 image + 16 MiB
+#: (``matgen.export.job.TEXTURE_MEMORY_FACTOR``); a 2048 x 2048 tile of 31 bands needs 1008 MiB.
+TEXTURE_MEMORY_MB = 1100
+
 
 def register(sub):
     """Add ``matgen bake`` to the subcommands."""
@@ -63,18 +69,26 @@ def register(sub):
     p.add_argument(
         "--memory-mb",
         type=int,
-        default=256,
+        default=None,
         help="memory budget of the texels in flight, MiB (also the most that making tiled mip-mapped "
-        "textures may take)",
+        f"textures may take) (default: {MEMORY_MB}; {TEXTURE_MEMORY_MB} with outputs.exr.texture = true, "
+        "enough to make the mip-maps of a 2048 x 2048 tile of 31 bands)",
     )
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.add_argument("--json", action="store_true", help="print the result as one JSON document, no progress")
     p.set_defaults(func=run)
 
 
+def memory_budget_mb(args, config) -> int:
+    """Return the memory budget in MiB: ``--memory-mb``, else the default for the texture setting."""
+    if args.memory_mb is not None:
+        return int(args.memory_mb)
+    return TEXTURE_MEMORY_MB if config.outputs.texture else MEMORY_MB
+
+
 def run(args) -> int:
     """Run ``matgen bake``; returns the exit status."""
-    if not 1 <= args.memory_mb <= MAX_MEMORY_MB:
+    if args.memory_mb is not None and not 1 <= args.memory_mb <= MAX_MEMORY_MB:
         raise ParameterError(f"--memory-mb is {args.memory_mb}; allowed 1 .. {MAX_MEMORY_MB} MiB")
     if args.jobs is not None and not 1 <= args.jobs <= 4096:
         raise ParameterError(f"--jobs is {args.jobs}; allowed 1 .. 4096 threads")
@@ -121,7 +135,7 @@ def run(args) -> int:
                 dry_run=args.dry_run,
                 allow_outside=args.allow_outside,
                 progress=progress,
-                memory_budget_bytes=int(args.memory_mb) << 20,
+                memory_budget_bytes=memory_budget_mb(args, config) << 20,
             )
         finally:
             if bar is not None:

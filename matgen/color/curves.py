@@ -381,6 +381,15 @@ def resolve_pass_entry(entry, base_dir, bands, *, allow_outside: bool = False) -
             name = entry
         else:
             path = resolve_inside(base_dir, entry, "pass response file", allow_outside=allow_outside)
+            if not path.is_file() and "/" not in entry and "." not in entry:  # a misspelt built-in name
+                import difflib
+
+                near = difflib.get_close_matches(entry, BUILTIN_PASSES, n=1, cutoff=0.6)
+                hint = f"; did you mean '{near[0]}'?" if near else ""
+                raise DataError(
+                    f"pass '{entry}' is neither a built-in pass ({', '.join(BUILTIN_PASSES)}) nor a curve "
+                    f"file in {base_dir}{hint}"
+                )
             curves = [read_curve(path, "response", entry)]
             name = Path(entry).stem  # the name as written, not the target of a symbolic link
         return name, combined_weights(curves, bands), [c.record() for c in curves]

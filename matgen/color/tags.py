@@ -8,7 +8,7 @@ space) carries, in its EXR header:
 - ``adoptedNeutral``: the OpenEXR standard attribute for the adopted white (xy), the space's white point;
 - ``oiio:ColorSpace``: the colour interop identifier of the space (``lin_ap1_scene`` for ACEScg), which
   OpenImageIO 3 writes as the ``colorInteropID`` header attribute and which OpenColorIO's built-in configs
-  (``ocio://default``, OpenColorIO 2.5 and later) resolve to their colour space ("ACEScg").
+  (``ocio://default``; checked with OpenColorIO 2.6) resolve to their colour space ("ACEScg").
 
 A data map (spectral stacks, lengths, ratios, anisotropy, pass and QA maps) carries ``oiio:ColorSpace =
 "data"`` (OpenColorIO's built-in "Raw" space, which has ``isdata: true``) and no chromaticities, so that no

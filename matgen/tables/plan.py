@@ -48,7 +48,10 @@ JOB_FILE = "job.json"
 #: Source folders (under the matgen package) whose code determines task outputs and merged tables.
 _RESULT_PACKAGES = ("spectra", "tissue", "transport", "color", "fit", "tables")
 #: Files of those folders that do not change results (reports, benchmarks, scheduling).
-_RESULT_NEUTRAL = {"tables/report.py", "tables/bench.py", "tables/executors.py", "tables/build.py"}
+_RESULT_NEUTRAL = {
+    "tables/report.py", "tables/bench.py", "tables/executors.py", "tables/build.py",
+    "color/tags.py", "color/curves.py",  # file tags and bake-time pass curves: no table number uses them
+}
 #: Top-level modules that determine results.
 _RESULT_MODULES = ("constants.py", "units.py", "provenance.py", "limits.py")
 
@@ -159,7 +162,8 @@ def source_hash() -> str:
     (their syntax tree without docstrings), so a comment, a docstring or a reformat changes nothing; data
     files enter by their bytes. Covered: the ``.py`` files of the spectra, tissue, transport, color, fit and
     tables stages (except reporting, benchmark and scheduling modules: every ``bench.py`` and the tables'
-    report, executors and build modules), their ``data/`` folders, and the top-level constants, units,
+    report, executors and build modules, the colour tags and pass curves), their ``data/`` folders, and the
+    top-level constants, units,
     provenance and limits. Computed once per process (the code a process runs is the code it imported).
     """
     import hashlib

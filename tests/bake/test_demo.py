@@ -33,7 +33,8 @@ def _check_demo_folder(out, size):
     # every preview PNG the demo writes, with its size in pixels: the maps at the map size; the demo's
     # figures at 90 dpi (overview 16 x 4.2 in, spectra 6 x 4 in); the gallery's contact sheet (3 columns of
     # 300 px, 3 rows of 300 + 40 px for its nine panels: albedo, two passes, mean free path, shape distance,
-    # radius, three QA maps) and texel spectra (900 x 500 px)
+    # radius, three QA maps), texel spectra (900 x 500 px) and one pass preview per pass (10 x 4.4 in at 100
+    # dpi: the map with its albedo scale bar beside the pass curve)
     expected = {
         "swatch_srgb.png": (size, size),
         "uv365.png": (size, size),
@@ -42,6 +43,8 @@ def _check_demo_folder(out, size):
         "spectra.png": (540, 360),
         "contact_sheet.png": (900, 1020),
         "texel_spectra.png": (900, 500),
+        "pass_uv365.png": (1000, 440),
+        "pass_nir850.png": (1000, 440),
     }
     assert sorted(p.name for p in (out / "preview").glob("*.png")) == sorted(expected)
     for name, (w, h) in expected.items():

@@ -167,3 +167,8 @@ def test_bake_with_negative_curve_is_one_message_and_status_2(tmp_path, capsys):
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "lamp.csv, line 3: value -1 is negative" in err
     load_config(cfg)  # the config itself is valid; only the curve is not
+
+
+def test_misspelt_builtin_pass_suggests_the_name(tmp_path):
+    with pytest.raises(DataError, match="neither a built-in pass.*did you mean 'uv365'"):
+        resolve_pass_entry("uv366", tmp_path, BANDS)

@@ -144,3 +144,13 @@ def test_bake_with_untaggable_table_space_fails_before_writing(tmp_path, kit, te
     with pytest.raises(ParameterError, match="ProPhoto RGB"):
         bake(load_config(cfg), tmp_path / "out", table=bad, table_source="test")
     assert not (tmp_path / "out").exists() or not any((tmp_path / "out").iterdir())
+
+
+def test_demo_pigment_maps_are_tagged_as_data(tmp_path):
+    """The invented scenario's pigment maps say they are non-colour data (OpenColorIO 2.6 ocio://default)."""
+    from matgen.scenario import write_scenario
+
+    write_scenario(tmp_path, 32, 1)
+    for name in ("melanin", "blood"):
+        attrs = _header(tmp_path / "maps" / f"{name}.exr")
+        assert _config().getColorSpace(attrs["oiio:ColorSpace"]).isData()

@@ -141,3 +141,21 @@ def test_missing_stack_names_what_to_bake(quadrant_bake, tmp_path):
     doc = json.loads((quadrant_bake / "material.json").read_text())
     with pytest.raises(DataError, match='add "anisotropy" to outputs.spectral'):
         stack_file(quadrant_bake, doc, "anisotropy")
+
+
+def test_dielectric_boundary_option_writes_a_rough_dielectric_of_the_material_index(quadrant_bake, tmp_path):
+    from matgen.preview.textured import render_band
+
+    r = render_band(
+        quadrant_bake / "material.json",
+        550.0,
+        tmp_path,
+        boundary="dielectric",
+        pixels=4,
+        spp=4,
+        grid=4,
+        patch_mm=8.0,
+    )
+    xml = r.scene.read_text()
+    assert 'type="roughdielectric"' in xml and 'name="int_ior" value="1.4"' in xml
+    assert np.all(np.isfinite(r.image)) and np.all(r.image >= 0)
