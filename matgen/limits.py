@@ -387,7 +387,7 @@ def check_file_size(path, what: str = "input file", text: bool = False) -> int:
     p = Path(path)
     why = not_a_file(p)
     if why is not None:
-        raise ConfigError(f"{what} '{p}' {why}")
+        raise ConfigError(f"cannot read {what} '{p}': it {why}")
     try:
         st = p.stat()
     except OSError as exc:

@@ -324,3 +324,24 @@ def test_json_log_format_and_levels(project, tmp_path, capsys):
     assert result["status"] == "done" and result["files"][-1] == "material.json"
     assert main(["bake", str(project), "--out", str(tmp_path / "q"), "--quiet", "--log-level", "error"]) == 0
     assert "WARNING" not in capsys.readouterr().err
+
+
+def test_rebaking_a_tile_differently_withdraws_the_set_descriptor(tmp_path):
+    import hashlib
+
+    cfg = make_project(tmp_path / "p", 8, 8, tiles=[1001, 1002])
+    out = tmp_path / "out"
+    assert _quiet("bake", cfg, "--out", out, "--quiet") == 0
+    assert (out / "material.json").exists()
+    other = cfg.with_name("other.toml")
+    other.write_text(cfg.read_text().replace("range = [0.005, 0.45]", "range = [0.01, 0.3]"))
+    assert _quiet("bake", other, "--out", out, "--quiet", "--tile", "1001") == 0
+    # the set's descriptor no longer describes tile 1001's textures: it is withdrawn, not left stale
+    assert not (out / "material.json").exists()
+    doc = json.loads((out / "material.1001.json").read_text())
+    for t in doc["textures"]:
+        assert hashlib.sha256((out / t["path"]).read_bytes()).hexdigest() == t["sha256"]
+    # the same tile baked again with the same config changes nothing and withdraws nothing
+    assert _quiet("bake", cfg, "--out", out, "--quiet") == 0
+    assert _quiet("bake", cfg, "--out", out, "--quiet", "--tile", "1002") == 0
+    assert (out / "material.json").exists()

@@ -32,6 +32,7 @@ from pathlib import Path
 
 from matgen.errors import MatgenError, PathError
 from matgen.fsutil import atomic_write_text, live_lock_owner, pid_alive, read_lock_owner, strict_json
+from matgen.limits import read_text_limited
 from matgen.provenance import sha256_file
 
 #: Prefix of the hidden staging folders inside an output folder.
@@ -133,16 +134,14 @@ def check_targets(out_dir: Path, files: list, inputs=()) -> None:
             )
 
 
-def _descriptors_listing(out_dir: Path, changed: dict, own: str) -> list:
-    """Descriptors in ``out_dir`` (other than ``own``) that list a file whose content is about to change."""
+def _descriptors_listing(paths: list, changed: dict) -> list:
+    """Return the descriptors among ``paths`` that list a file whose content is about to change."""
     hits = []
-    for doc_path in sorted(out_dir.glob("material*.json")):
-        if doc_path.name == own or not doc_path.is_file():
-            continue
+    for doc_path in sorted(paths):
         try:
-            doc = json.loads(doc_path.read_text(encoding="utf-8"))
+            doc = json.loads(read_text_limited(doc_path, "material descriptor"))
             textures = doc.get("textures", []) if isinstance(doc, dict) else []
-        except (OSError, ValueError, RecursionError):
+        except (MatgenError, OSError, ValueError, RecursionError):
             continue
         for t in textures if isinstance(textures, list) else []:
             if isinstance(t, dict) and t.get("path") in changed and t.get("sha256") != changed[t["path"]]:
@@ -165,9 +164,12 @@ def commit(staging: Path, out_dir: Path, files: list, lock_name: str, inputs=())
     for rel in files:
         if not (staging / rel).is_file():
             raise PathError(f"staged output {rel} is missing; nothing was committed")
-    changed = {rel: sha256_file(staging / rel) for rel in files[:-1] if (out_dir / rel).is_file()}
-    changed = {rel: h for rel, h in changed.items() if sha256_file(out_dir / rel) != h}
-    stale_docs = _descriptors_listing(out_dir, changed, files[-1])
+    others = [p for p in out_dir.glob("material*.json") if p.name != files[-1] and p.is_file()]
+    stale_docs = []
+    if others:  # hash only when another descriptor could list a file that changes
+        changed = {rel: sha256_file(staging / rel) for rel in files[:-1] if (out_dir / rel).is_file()}
+        changed = {rel: h for rel, h in changed.items() if sha256_file(out_dir / rel) != h}
+        stale_docs = _descriptors_listing(others, changed)
     journal = journal_path(out_dir, lock_name)
     record = {"staging": staging.name, "files": list(files), "pid": os.getpid(), "lock": lock_name}
     atomic_write_text(journal, strict_json(record, f"commit journal {journal}", indent=1) + "\n")

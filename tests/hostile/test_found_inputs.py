@@ -170,7 +170,7 @@ def test_table_member_with_huge_declared_shape_is_refused_before_allocation(tmp_
 
     from targets import _npy_member
 
-    from matgen.errors import LimitError
+    from matgen.errors import TableError
     from matgen.tables.store import Table
 
     p = _saved_table(tmp_path)
@@ -178,7 +178,8 @@ def test_table_member_with_huge_declared_shape_is_refused_before_allocation(tmp_
     _rewrite_member(p, "q_albedo_multiple.npy", _npy_member(b"(100000, 100000, 100000)"))
     tracemalloc.start()
     try:
-        with pytest.raises(LimitError, match="MATGEN_MAX_TABLE_ENTRIES"):
+        # the declared shape must be the one the header implies (checked before any array data is read)
+        with pytest.raises(TableError, match=r"declares shape \(100000, 100000, 100000\)"):
             Table.load(p)
         peak = tracemalloc.get_traced_memory()[1]
     finally:
