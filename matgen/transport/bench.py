@@ -7,8 +7,8 @@ Configurations: the standard five-layer benchmark stack at 550 and 800 nm and va
   events of the same photons are counted (a separate counting pass, not timed), giving interactions per
   second and nanoseconds per interaction (one interaction = one scattering event: hop, move, spin,
   roulette test).
-* **ceiling**: a minimal step loop with the same per-interaction operations as the kernel (uniform draw and
-  logarithm of the hop, division by mu_s, move, path sum, depth test, Henyey-Greenstein polar draw,
+* **ceiling**: a minimal step loop with the same per-interaction operations as the kernel (exponential draw
+  of the hop, multiplication by 1/mu_s, move, path sum, depth test, Henyey-Greenstein polar draw,
   rejection azimuth, spin, roulette test) in an unbounded medium: no boundaries, no tallies, no per-photon
   set-up (:func:`step_ceiling`). ``of ceiling`` is its ns per step over matgen's ns per interaction on one
   thread; what is missing to 1 is boundary crossings (Fresnel, refraction, layer changes), launches and
@@ -49,9 +49,9 @@ from numba import njit, prange
 
 from matgen.errors import ParameterError
 from matgen.transport import kernels as K
-from matgen.transport.phase import hg_sample_mu, spin
+from matgen.transport.phase import hg_constants, hg_sample_mu_with, spin
 from matgen.transport.reweight import reweight
-from matgen.transport.rng import photon_state, uniform, uniform_open0
+from matgen.transport.rng import exponential, photon_state, uniform
 from matgen.transport.simulate import launch, layer_table, simulate
 from matgen.transport.stack import Stack
 
@@ -153,9 +153,10 @@ def step_ceiling(seed, n_steps, mu_s, mu_a, g):
     half_depth = 1.0e300
     w = 1.0
     limit = (0.0 - K.LOG_ROULETTE_WEIGHT) / mu_a if mu_a > 0.0 else math.inf
+    inv_mu_s = 1.0 / mu_s
+    iso, hg1, hg2, hg3, hg4, hg5 = hg_constants(g)
     for _ in range(n_steps):
-        u, s0, s1 = uniform_open0(s0, s1)
-        tau = -math.log(u)
+        tau, s0, s1 = exponential(s0, s1)
         if uz > 0.0:
             dist = half_depth - z
             auz = uz
@@ -163,7 +164,7 @@ def step_ceiling(seed, n_steps, mu_s, mu_a, g):
             dist = z + half_depth
             auz = -uz
         if tau * auz < mu_s * dist:
-            s = tau / mu_s
+            s = tau * inv_mu_s
             x += s * ux
             y += s * uy
             z += s * uz
@@ -171,7 +172,7 @@ def step_ceiling(seed, n_steps, mu_s, mu_a, g):
             if z > zmax:
                 zmax = z
         u, s0, s1 = uniform(s0, s1)
-        mu = hg_sample_mu(g, u)
+        mu = hg_sample_mu_with(iso, hg1, hg2, hg3, hg4, hg5, u)
         cos_phi, sin_phi, s0, s1 = K.sample_azimuth(s0, s1)
         ux, uy, uz = spin(ux, uy, uz, mu, cos_phi, sin_phi)
         if visit > limit:  # restart the weight as a fresh packet would (keeps the test live)

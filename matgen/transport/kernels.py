@@ -6,7 +6,8 @@ Method (Wang, Jacques & Zheng 1995, with absorption applied continuously, as in 
 
 * **launch**: the packet enters at the origin with weight 1 - R_sp (Fresnel at entry) along the refracted
   direction.
-* **hop**: a dimensionless scattering depth ``tau = -ln(u)`` is spent across layers (``mu_s * s`` per
+* **hop**: a dimensionless scattering depth ``tau`` (unit exponential, drawn by the ziggurat method of
+  :func:`matgen.transport.rng.exponential`) is spent across layers (``mu_s * s`` per
   segment). Free paths are sampled on ``mu_s`` alone, so the geometric path never depends on ``mu_a``.
   A clear layer (``mu_s = 0``) spends nothing: the packet crosses it to the next boundary.
 * **drop**: along a path of length ``s`` in layer ``j`` the weight decays as ``exp(-mu_a_j s)``
@@ -45,7 +46,7 @@ from numba import njit, prange
 
 from matgen.transport.boundary import fresnel
 from matgen.transport.phase import hg_constants, hg_sample_mu_with, spin
-from matgen.transport.rng import photon_state, uniform, uniform_open0
+from matgen.transport.rng import exponential, photon_state, uniform
 
 #: Roulette threshold weight and survival chance (Wang, Jacques & Zheng 1995, sec. 3.9: 1e-4 and 0.1).
 ROULETTE_WEIGHT = 1.0e-4
@@ -197,9 +198,8 @@ def trace_photon(s0, s1, lay, w0, log_w0, ux0, uz0, path, absorbed, wpath):
     visit = 0.0  # path (mm) in this layer since the last drop
     visit_limit = _roulette_path(mua, log_w)
     while True:
-        # hop: scattering depth to spend before the next scattering event
-        u, s0, s1 = uniform_open0(s0, s1)
-        tau = -math.log(u)
+        # hop: scattering depth to spend before the next scattering event (unit exponential)
+        tau, s0, s1 = exponential(s0, s1)
         while True:
             if uz > 0.0:
                 dist = z_bot - z

@@ -16,8 +16,11 @@ import math
 import numpy as np
 
 from matgen.transport import kernels as K
+from matgen.transport import rng as _R
 
 MASK64 = (1 << 64) - 1
+_ZIG_X = [float(v) for v in _R.ZIG_X]
+_ZIG_F = [float(v) for v in _R.ZIG_F]
 GOLDEN = 0x9E3779B97F4A7C15
 
 
@@ -44,6 +47,7 @@ class PhotonStream:
             self.s1 = 1
 
     def next_u64(self) -> int:
+        """Next 64-bit output (xoroshiro128++, a=49, b=21, c=28)."""
         s0, s1 = self.s0, self.s1
         result = (_rotl((s0 + s1) & MASK64, 17) + s0) & MASK64
         s1 ^= s0
@@ -58,6 +62,20 @@ class PhotonStream:
     def uniform_open0(self) -> float:
         """Uniform in (0, 1]."""
         return ((self.next_u64() >> 11) + 1.0) * (1.0 / 9007199254740992.0)
+
+    def exponential(self) -> float:
+        """Unit-mean exponential by the ziggurat, as :func:`matgen.transport.rng.exponential` draws it."""
+        while True:
+            r = self.next_u64()
+            i = r & 255
+            x = (r >> 11) * (1.0 / 9007199254740992.0) * _ZIG_X[i]
+            if x < _ZIG_X[i + 1]:
+                return x
+            if i == 0:
+                return _R.ZIGGURAT_R - math.log(self.uniform_open0())
+            u = self.uniform()
+            if _ZIG_F[i] + u * (_ZIG_F[i + 1] - _ZIG_F[i]) < math.exp(-x):
+                return x
 
 
 def fresnel(n_i: float, n_t: float, cos_i: float):
@@ -89,7 +107,7 @@ def hg_sample(g: float, u: float) -> float:
 
 
 def spin(d, mu: float, cos_phi: float, sin_phi: float):
-    """New direction after scattering by polar cosine mu and azimuth. Source: Wang1995mcml eqs. 3.30-3.31."""
+    """Return the direction after scattering by polar cosine mu and azimuth. Source: Wang1995mcml eq. 3.30."""
     ux, uy, uz = d
     sin_t = math.sqrt(max(0.0, 1.0 - mu * mu))
     if abs(uz) > 1.0 - 1.0e-12:
@@ -152,7 +170,7 @@ def trace(stream: PhotonStream, layers: list[dict], w0: float, ux0: float, uz0: 
         visit = 0.0
 
     while True:
-        tau = -math.log(stream.uniform_open0())
+        tau = stream.exponential()
         while True:
             lay = layers[j]
             if d[2] > 0.0:
