@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import json
 import os
+import resource
 import shutil
 import sys
 import tempfile
@@ -88,7 +89,7 @@ def write_albedo(path: Path, table, size: int, noise_rng=None, rows: int = 256):
 
 
 def _child(args: list, what: str):
-    """Run ``python -m matgen ARGS``; returns wall seconds, its standard output and its peak RSS in MiB.
+    """Run ``python -m matgen ARGS``; returns wall seconds, standard output, peak RSS (MiB) and CPU seconds.
 
     The peak is the child's own resident set sampled every 20 ms (psutil): ``getrusage(RUSAGE_CHILDREN)``
     would also count the pages the child inherited from this process when it was forked.
@@ -96,6 +97,7 @@ def _child(args: list, what: str):
     import psutil
 
     env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[2]))
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     with tempfile.TemporaryFile("w+") as out, tempfile.TemporaryFile("w+") as err:
         t0 = time.perf_counter()
         proc = psutil.Popen([sys.executable, "-m", "matgen", *args], stdout=out, stderr=err, env=env)
@@ -112,7 +114,9 @@ def _child(args: list, what: str):
         stdout, stderr = out.read(), err.read()
     if proc.returncode != 0:
         raise MatgenError(f"the benchmark's {what} failed (exit {proc.returncode}): {stderr.strip()}")
-    return wall, stdout, peak / 2**20
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime + after.ru_stime) - (before.ru_utime + before.ru_stime)
+    return wall, stdout, peak / 2**20, cpu
 
 
 def _fix() -> list:
@@ -164,7 +168,7 @@ def run(args) -> int:
         t_inputs = time.perf_counter() - t0
         cmd = ["estimate", str(work / "albedo.exr"), "--out", str(work / "est"), "--quiet", "--json", *_fix()]
         cmd += ["--memory-mb", str(args.memory_mb)] + (["--jobs", str(args.jobs)] if args.jobs else [])
-        wall, out, peak_mib = _child(cmd, "estimate")
+        wall, out, peak_mib, cpu_s = _child(cmd, "estimate")
         summary = json.loads(out)
         texels = args.size * args.size
         figures = {
@@ -173,6 +177,7 @@ def run(args) -> int:
             "estimate_wall_s": round(wall, 3),
             "texels_per_s": round(texels / wall, 1),
             "estimate_inner_s": summary["seconds"],
+            "estimate_cpu_s": round(cpu_s, 3),
             "peak_memory_mib": round(peak_mib, 1),
             "residual_de2000_p95": summary["residual_de2000"]["all"]["p95"],
             "out_of_gamut_share": summary["out_of_gamut"]["share"],
@@ -199,7 +204,8 @@ def _print(figures: dict, as_json: bool) -> None:
     print(
         f"estimate benchmark: {size} x {size} texels in {figures['estimate_wall_s']:.1f} s "
         f"({figures['texels_per_s']:,.0f} texels/s, matgen estimate in a child process), peak memory "
-        f"{figures['peak_memory_mib']:.0f} MiB; load average {figures['load_average']}"
+        f"{figures['peak_memory_mib']:.0f} MiB, {figures['estimate_cpu_s']:.1f} CPU-s; load average "
+        f"{figures['load_average']}"
     )
     for name, rt in figures["round_trip"].items():
         print(

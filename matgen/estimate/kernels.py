@@ -207,6 +207,9 @@ def solve_kernel(
 ):
     """Per texel, the axis coordinates (k,) whose features best match ``target`` (F,), from ``x0``.
 
+    Longer than the house's 80 lines because numba needs the scratch arrays allocated once per work item
+    and the accept / reject bookkeeping of each step inline.
+
     Parameters
     ----------
     target : ndarray (N, F)
