@@ -66,6 +66,7 @@ class _suppress_value_error:
     def __exit__(self, kind, exc, tb):
         return kind is ValueError  # not the main thread (an embedding program): leave signals alone
 
+
 #: Subcommand modules, in the order ``matgen --help`` lists them.
 COMMAND_MODULES = (
     "demo",
@@ -101,8 +102,9 @@ def build_parser() -> argparse.ArgumentParser:
         prog="matgen",
         description=(
             "Skin subsurface-scattering parameters for renderers, from pigmentation, across UV, visible "
-            "and near-infrared bands. Outputs are for imagery only: no basis for clinical, dosimetric or "
-            "UV-exposure decisions."
+            "and near-infrared bands. Outputs are for imagery only: no basis for clinical, diagnostic, "
+            "dosimetric or UV-exposure decisions, which belong to licensed practice under local regulations "
+            "and codes."
         ),
         epilog="example:\n  matgen demo --out lowtide\n  matgen optics --preset cheek --plot cheek.png",
         formatter_class=HelpFormatter,

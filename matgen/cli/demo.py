@@ -10,6 +10,7 @@ import numpy as np
 
 from matgen import limits
 from matgen.bake.config import load_config
+from matgen.cautions import print_caution
 from matgen.cli import add_command, print_json, warn
 from matgen.errors import ImageError, MatgenWarning, ParameterError, PathError
 from matgen.export.exr import read_exr
@@ -297,4 +298,5 @@ def run(args) -> int:
     print(f"  scanned albedo estimated back (pigment maps, re-bake, preview): {out / 'estimate'}")
     print(f"  report (self-contained HTML): {report}")
     print(f"  check the textures: matgen inspect {result.descriptor}")
+    print_caution()
     return 0

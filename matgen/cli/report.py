@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from matgen.cautions import print_caution
 from matgen.cli import add_command
 
 
@@ -66,4 +67,5 @@ def run(args) -> int:
             allow_outside=args.allow_outside,
         )
     print(f"report: {path}")
+    print_caution()
     return 0

@@ -19,6 +19,7 @@ from pathlib import Path, PurePosixPath
 
 import jsonschema
 
+from matgen.cautions import IMAGERY_ONLY
 from matgen.errors import ConfigError, DataError, PathError
 from matgen.fsutil import resolve_inside, strict_json
 from matgen.limits import read_text_limited
@@ -224,6 +225,7 @@ def build_descriptor(
         "format": DESCRIPTOR_FORMAT,
         "format_version": DESCRIPTOR_VERSION,
         "name": cfg.name,
+        "caution": IMAGERY_ONLY,
         "units": {
             "wavelength": "nm",
             "length": "mm",

@@ -17,13 +17,14 @@ from pathlib import Path
 
 import numpy as np
 
+from matgen.cautions import REAL_SOURCES
 from matgen.errors import DataError
 
 #: Caption under every pass preview.
 CAPTION = (
     "Pass value = camera-weighted multiple-scattering albedo (0-1) of the skin under this lamp, filter and "
     "sensor. Fluorescence is not modelled. Use it as the albedo of a grey material rendered in this pass, "
-    "or read the pass band's medium from the spectral stacks for a spectral renderer."
+    "or read the pass band's medium from the spectral stacks for a spectral renderer. " + REAL_SOURCES
 )
 
 

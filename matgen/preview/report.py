@@ -18,6 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from matgen import __version__
+from matgen.cautions import IMAGERY_ONLY, PASS_PHYSICS, REAL_SOURCES
 from matgen.errors import DataError, ImageError, MatgenError
 from matgen.fsutil import resolve_inside
 from matgen.limits import check_file_size
@@ -350,10 +351,13 @@ def build_report(
     doc = inspect.doc
     body = [
         f"<h1>matgen material report: {_esc(doc['name'])}</h1>",
-        "<p class='note'>For imagery only: these numbers are no basis for clinical, dosimetric or "
-        "UV-exposure "
-        f"decisions. Report written by matgen {_esc(__version__)}.</p>",
+        f"<p class='note'>{_esc(IMAGERY_ONLY[0].upper() + IMAGERY_ONLY[1:])} "
+        f"Report written by matgen {_esc(__version__)}.</p>",
     ]
+    if any(t.get("kind") == "pass" for t in doc.get("textures", [])):
+        body.append(
+            f"<p class='note'>UV and near-infrared passes: {_esc(PASS_PHYSICS)} {_esc(REAL_SOURCES)}</p>"
+        )
     with tempfile.TemporaryDirectory(prefix="matgen-report-") as tmpdir:
         tmp = Path(tmpdir)
         # inputs

@@ -59,8 +59,13 @@ def test_demo_end_to_end_with_a_test_table(tmp_path, kit, capsys):
     kit.make_test_table().save(tmp_path / "t.npz")
     out = tmp_path / "lowtide"
     assert main(["demo", "--out", str(out), "--size", "64", "--table", str(tmp_path / "t.npz")]) == 0
-    text = capsys.readouterr().out
+    cap = capsys.readouterr()
+    text = cap.out
     assert "invented scenario" in text and str(out / "bake" / "material.json") in text
+    from matgen.cautions import IMAGERY_ONLY
+
+    assert cap.err.count(IMAGERY_ONLY) == 1  # one caution line from the demo
+    assert json.loads((out / "bake" / "material.json").read_text())["caution"] == IMAGERY_ONLY
     _check_demo_folder(out, 64)
 
 

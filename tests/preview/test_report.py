@@ -126,10 +126,15 @@ def test_report_loads_in_headless_chromium(tmp_path, baked_material):
     assert shot.is_file() and shot.stat().st_size > 10000
 
 
-def test_report_command(tmp_path, baked_material):
+def test_report_command(tmp_path, baked_material, capsys):
+    from matgen.cautions import IMAGERY_ONLY
+
     out = tmp_path / "r.html"
     assert main(["report", str(baked_material), "--out", str(out)]) == 0
     assert out.stat().st_size > 10000 and "No validation results attached" in out.read_text()
+    # the caution: one line on the terminal, and in the report, deferring to licensed practice
+    assert IMAGERY_ONLY in capsys.readouterr().err
+    assert "licensed practice under local regulations and codes" in out.read_text()
     assert main(["report", str(tmp_path / "missing.json")]) == 2
 
 
