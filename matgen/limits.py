@@ -7,21 +7,21 @@ ceiling and how to raise it.
 
 Ceilings (name, default, environment variable, unit):
 
-=====================  ===============  ==============================  =========================================
-name                   default          environment variable            meaning
-=====================  ===============  ==============================  =========================================
-``image_pixels``       268435456        ``MATGEN_MAX_IMAGE_PIXELS``     width x height of one image or tile
+===================== =============== ============================== =========================================
+name default environment variable meaning ===================== =============== ==============================
+========================================= ``image_pixels`` 268435456 ``MATGEN_MAX_IMAGE_PIXELS`` width x
+height of one image or tile
                        (16384^2)                                        (texels)
 ``image_side``         65536            ``MATGEN_MAX_IMAGE_SIDE``       width or height of one image (texels)
 ``image_channels``     1024             ``MATGEN_MAX_IMAGE_CHANNELS``   channels of one image (a spectral EXR
                                                                         of 71 bands x a few quantities fits)
-``image_bytes``        8589934592       ``MATGEN_MAX_IMAGE_BYTES``      width x height x channels x 4 (bytes of
+``image_bytes`` 8589934592 ``MATGEN_MAX_IMAGE_BYTES`` width x height x channels x 4 (bytes of
                        (8 GiB)                                          one image as float32)
-``udim_tiles``         10000            ``MATGEN_MAX_UDIM_TILES``       tiles of one UDIM set (1001-10999 would
+``udim_tiles`` 10000 ``MATGEN_MAX_UDIM_TILES`` tiles of one UDIM set (1001-10999 would
                                                                         be 9999 tiles)
 ``table_entries``      1000000000       ``MATGEN_MAX_TABLE_ENTRIES``    values of one table quantity or grid
                                                                         (grid points x channels)
-``axis_points``        100000           ``MATGEN_MAX_AXIS_POINTS``      points of one table axis (checked before
+``axis_points`` 100000 ``MATGEN_MAX_AXIS_POINTS`` points of one table axis (checked before
                                                                         the axis or its grid is allocated)
 ``demo_side``          8192             ``MATGEN_MAX_DEMO_SIDE``        side of the demo's maps (texels)
 ``photons``            2000000000       ``MATGEN_MAX_PHOTONS``          photon packets of one transport run
@@ -33,7 +33,7 @@ name                   default          environment variable            meaning
 ``records_bytes``      8589934592       ``MATGEN_MAX_RECORDS_BYTES``    memory of the photon records of one
                        (8 GiB)                                          transport run or records file (photons x
                                                                         (8 x layers + 17) bytes)
-=====================  ===============  ==============================  =========================================
+===================== =============== ============================== =========================================
 
 Precedence: a value set with :func:`set_limit` or :func:`override` wins over the environment variable, which
 wins over the default. Environment variables are read at every check, so a pipeline can set them per job.

@@ -21,6 +21,7 @@ def per_cm_to_per_mm(value):
     -------
     float or ndarray
         Coefficient in 1/mm.
+
     """
     return value / 10.0
 
@@ -39,6 +40,7 @@ def mm_to_scene_units(length_mm, metres_per_scene_unit):
     -------
     float or ndarray
         Length in scene units.
+
     """
     return length_mm / (metres_per_scene_unit * MM_PER_M)
 

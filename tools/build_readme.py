@@ -2,8 +2,9 @@
 """Assemble README.md and DEVELOPERS.md from the per-stage sections in docs/readme/ and docs/developers/.
 
 Sections come in the order a reader needs them: the head with the quick start, the main job (the bake), the
-other commands, then the stages in pipeline order, with sections not named in ``ORDER`` before the tail. `tests/test_docs.py` checks the committed files are up to date:
-edit the sections, then run `python tools/build_readme.py`.
+other commands, then the stages in pipeline order, with sections not named in ``ORDER`` before the tail.
+`tests/test_docs.py` checks the committed files are up to date: edit the sections, then run `python
+tools/build_readme.py`.
 """
 
 from __future__ import annotations

@@ -169,9 +169,10 @@ def exported_medium(
 ) -> ExportedMedium:
     """The raw spectral-medium target's inputs for a summary, read back into mm and 1/mm.
 
-    Goes through ``matgen.targets.TARGETS["spectral_medium"].to_inputs`` (each band inverted with its g) so that what is validated is
-    what matgen exports (``albedo``, ``sigma_t`` per scene unit, ``g``, ``eta``); sigma_t is converted back
-    to 1/mm here with ``metres_per_scene_unit``, independently of the target's own ``from_inputs``.
+    Goes through ``matgen.targets.TARGETS["spectral_medium"].to_inputs`` (each band inverted with its g) so
+    that what is validated is what matgen exports (``albedo``, ``sigma_t`` per scene unit, ``g``, ``eta``);
+    sigma_t is converted back to 1/mm here with ``metres_per_scene_unit``, independently of the target's own
+    ``from_inputs``.
     """
     try:
         from matgen.targets import TARGETS

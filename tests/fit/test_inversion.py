@@ -16,7 +16,7 @@ from matgen.fit.inversion import (
 )
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def h_function(albedo, mu, nodes=200):
     """Chandrasekhar's H-function for isotropic scattering, by iterating
     1/H(mu) = sqrt(1 - a) + (a/2) int_0^1 mu' H(mu') / (mu + mu') dmu' (Chandrasekhar 1960, Ch. V)

@@ -70,7 +70,8 @@ def test_fitted_shape_scaling_matches_christensen_burley_mfp(isotropic_runs, alp
 )
 def test_fitted_shape_scaling_matches_christensen_burley_dmfp(isotropic_runs, alpha):
     """As above for the diffuse-mean-free-path fit s = 3.5 + 100 (A - 0.33)^4, l = 1/sqrt(3 sigma_a sigma_t').
-    Known disagreement: at alpha = 0.8 (A = 0.28) our fitted s is 11 % below the fit (kept as a strict xfail)."""
+    Known disagreement: at alpha = 0.8 (A = 0.28) our fitted s is 11 % below the fit (kept as a strict xfail).
+    """
     r = isotropic_runs[alpha]
     fit = fit_burley2015_result(r)
     dmfp = 1.0 / np.sqrt(3.0 * (1.0 - alpha) * 1.0)

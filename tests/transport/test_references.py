@@ -24,7 +24,8 @@ from matgen.transport.stack import Stack
 
 pytestmark = needs_jit
 
-#: Relative allowance for the 16-point adding-doubling reference (0.2 %: a project choice covering 16-point quadrature).
+#: Relative allowance for the 16-point adding-doubling reference (0.2 %: a project choice covering 16-point
+#: quadrature).
 AD_ALLOWANCE = 0.002
 
 
@@ -173,7 +174,8 @@ def test_specular_and_oblique_incidence_against_fresnel():
         1 - r.specular_reflectance.value, abs=2000 * 2**-32
     )
     # a clear slab's multiple reflections: T = (1-R)^2 sum R^(2k) = (1-R)/(1+R) of the incident light (R at
-    # the internal angle equals R at entry); the Monte Carlo estimate of this fraction must hold within 3 sigma
+    # the internal angle equals R at entry); the Monte Carlo estimate of this fraction must hold within 3
+    # sigma
     rr = r.specular_reflectance.value
     assert _within(r.transmittance.value, r.transmittance.stderr, (1 - rr) / (1 + rr))
 
