@@ -8,31 +8,31 @@ ceiling and how to raise it.
 Ceilings (name, default, environment variable, unit):
 
 ===================== =============== ============================== =========================================
-name default environment variable meaning ===================== =============== ==============================
-========================================= ``image_pixels`` 268435456 ``MATGEN_MAX_IMAGE_PIXELS`` width x
-height of one image or tile
-                       (16384^2)                                        (texels)
-``image_side``         65536            ``MATGEN_MAX_IMAGE_SIDE``       width or height of one image (texels)
-``image_channels``     1024             ``MATGEN_MAX_IMAGE_CHANNELS``   channels of one image (a spectral EXR
-                                                                        of 71 bands x a few quantities fits)
-``image_bytes`` 8589934592 ``MATGEN_MAX_IMAGE_BYTES`` width x height x channels x 4 (bytes of
-                       (8 GiB)                                          one image as float32)
-``udim_tiles`` 10000 ``MATGEN_MAX_UDIM_TILES`` tiles of one UDIM set (1001-10999 would
-                                                                        be 9999 tiles)
-``table_entries``      1000000000       ``MATGEN_MAX_TABLE_ENTRIES``    values of one table quantity or grid
-                                                                        (grid points x channels)
-``axis_points`` 100000 ``MATGEN_MAX_AXIS_POINTS`` points of one table axis (checked before
-                                                                        the axis or its grid is allocated)
-``demo_side``          8192             ``MATGEN_MAX_DEMO_SIDE``        side of the demo's maps (texels)
-``photons``            2000000000       ``MATGEN_MAX_PHOTONS``          photon packets of one transport run
-                                                                        (:data:`matgen.constants.MAX_PHOTONS`)
-``file_bytes``         17179869184      ``MATGEN_MAX_FILE_BYTES``       size of a binary input file (table,
-                       (16 GiB)                                         records, image) in bytes
-``text_bytes``         67108864         ``MATGEN_MAX_TEXT_BYTES``       size of a text input file (TOML, JSON,
-                       (64 MiB)                                         CSV) in bytes
-``records_bytes``      8589934592       ``MATGEN_MAX_RECORDS_BYTES``    memory of the photon records of one
-                       (8 GiB)                                          transport run or records file (photons x
-                                                                        (8 x layers + 17) bytes)
+name                  default         environment variable           meaning
+===================== =============== ============================== =========================================
+``image_pixels``      268435456       ``MATGEN_MAX_IMAGE_PIXELS``    width x height of one image or tile
+                      (16384^2)                                      (texels)
+``image_side``        65536           ``MATGEN_MAX_IMAGE_SIDE``      width or height of one image (texels)
+``image_channels``    1024            ``MATGEN_MAX_IMAGE_CHANNELS``  channels of one image (a spectral EXR
+                                                                     of 71 bands x a few quantities fits)
+``image_bytes``       8589934592      ``MATGEN_MAX_IMAGE_BYTES``     width x height x channels x 4 (bytes of
+                      (8 GiB)                                        one image as float32)
+``udim_tiles``        10000           ``MATGEN_MAX_UDIM_TILES``      tiles of one UDIM set (1001-10999 would
+                                                                     be 9999 tiles)
+``table_entries``     1000000000      ``MATGEN_MAX_TABLE_ENTRIES``   values of one table quantity or grid
+                                                                     (grid points x channels)
+``axis_points``       100000          ``MATGEN_MAX_AXIS_POINTS``     points of one table axis (checked before
+                                                                     the axis or its grid is allocated)
+``demo_side``         8192            ``MATGEN_MAX_DEMO_SIDE``       side of the demo's maps (texels)
+``photons``           2000000000      ``MATGEN_MAX_PHOTONS``         photon packets of one transport run
+                                                                     (:data:`matgen.constants.MAX_PHOTONS`)
+``file_bytes``        17179869184     ``MATGEN_MAX_FILE_BYTES``      size of a binary input file (table,
+                      (16 GiB)                                       records, image) in bytes
+``text_bytes``        67108864        ``MATGEN_MAX_TEXT_BYTES``      size of a text input file (TOML, JSON,
+                      (64 MiB)                                       CSV) in bytes
+``records_bytes``     8589934592      ``MATGEN_MAX_RECORDS_BYTES``   memory of the photon records of one
+                      (8 GiB)                                        transport run or records file (photons x
+                                                                     (8 x layers + 17) bytes)
 ===================== =============== ============================== =========================================
 
 Precedence: a value set with :func:`set_limit` or :func:`override` wins over the environment variable, which
@@ -91,7 +91,7 @@ def _positive_int(value, what: str) -> int:
 
 
 def get_limit(name: str) -> int:
-    """The ceiling ``name`` now in force (override, else environment variable, else default).
+    """Return the ceiling ``name`` now in force (override, else environment variable, else default).
 
     Parameters
     ----------

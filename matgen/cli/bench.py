@@ -17,6 +17,7 @@ BENCHES = {
 
 
 def register(sub):
+    """Add the ``bench`` subcommand to the subparsers ``sub``."""
     p = add_command(
         sub,
         "bench",

@@ -28,6 +28,7 @@ from matgen.transport.results import TransportResult
 
 
 def register(sub):
+    """Add the ``fit`` subcommand to the subparsers ``sub``."""
     p = add_command(
         sub,
         "fit",
@@ -333,6 +334,7 @@ def fit_document(
 
 
 def run(args) -> int:
+    """Run ``matgen fit`` with the parsed ``args``; return the exit status."""
     path = Path(args.result)
     results, bands, stacks = _read(path)
     stack_ior, stack_g = (1.0, 0.0) if stacks is None else _stack_defaults(path, results, stacks)
@@ -355,7 +357,8 @@ def run(args) -> int:
         return 0
     out = sys.stdout
     out.write(
-        f"inversion: {doc['inversion']}   ior: {doc['ior']:g}   scene: {doc['metres_per_scene_unit']:g} m/unit\n"
+        f"inversion: {doc['inversion']}   ior: {doc['ior']:g}   "
+        f"scene: {doc['metres_per_scene_unit']:g} m/unit\n"
     )
     out.write(
         f"{'band':>8} {'A':>8} {'+-':>8} {'d_mm':>9} {'resid':>7} {'alpha':>8} {'mfp_mm':>9} "

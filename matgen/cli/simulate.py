@@ -3,7 +3,8 @@
 STACK.json (units: mm, 1/mm)::
 
     {"n_above": 1.0, "n_below": 1.0,
-     "layers": [{"thickness_mm": 0.1, "n": 1.4, "mu_a": 0.5, "mu_s": 30.0, "g": 0.8, "name": "epidermis"}, ...]}
+     "layers": [{"thickness_mm": 0.1, "n": 1.4, "mu_a": 0.5, "mu_s": 30.0, "g": 0.8,
+                 "name": "epidermis"}, ...]}
 
 The output of ``matgen optics --format json`` is such a file as it is (its ``bands``, ``units``,
 ``packaging`` and ``parameters`` keys are accepted; stated units must be matgen's). With
@@ -36,6 +37,7 @@ _PER_BAND = ("n", "mu_a", "mu_s", "g")
 
 
 def register(sub):
+    """Add the ``simulate`` subcommand to the subparsers ``sub``."""
     p = add_command(
         sub,
         "simulate",
@@ -66,7 +68,10 @@ def register(sub):
 
 
 def load_stacks(path):
-    """Read STACK.json into a list of (wavelength_nm or None, Stack); errors name the file, band, layer and field."""
+    """Read STACK.json into a list of (wavelength_nm or None, Stack).
+
+    Errors name the file, band, layer and field.
+    """
     from matgen.transport.stack import Stack
 
     text = read_text_limited(path, "stack file")
@@ -157,6 +162,7 @@ def load_stacks(path):
 
 
 def run(args) -> int:
+    """Run ``matgen simulate`` with the parsed ``args``; return the exit status."""
     from matgen.errors import ParameterError
 
     if not (0.0 <= args.incidence_deg < 90.0) or not math.isfinite(args.incidence_deg):
@@ -182,7 +188,7 @@ def run(args) -> int:
         print(f"{head}{d['photons']} photons, {d['photons_per_second']:.0f} photons/s")
         for key in ("specular_reflectance", "diffuse_reflectance", "transmittance"):
             print(f"  {key:<22s} {d[key]['value']:.6f} +- {d[key]['stderr']:.6f}")
-        for name, a in zip(d["layers"], d["absorbed"]):
+        for name, a in zip(d["layers"], d["absorbed"], strict=True):
             print(f"  absorbed in {name:<10s} {a['value']:.6f} +- {a['stderr']:.6f}")
         m = d["mean_penetration_depth_mm"]
         print(f"  mean penetration depth {m['value']:.4f} +- {m['stderr']:.4f} mm")

@@ -1,4 +1,4 @@
-"""Effective homogeneous medium: from multiple-scattering albedo A to single-scattering albedo and mean free path.
+"""Effective homogeneous medium: multiple-scattering albedo A to single-scattering albedo and mean free path.
 
 Units: lengths in mm; albedos dimensionless. A is the total diffuse reflectance of a semi-infinite medium
 at normal incidence, as a fraction of the incident power (the specular Fresnel reflection excluded).

@@ -41,6 +41,8 @@ def preset_previews(
         Transport seed.
     method : {"auto", "tracer", "builtin"}
         Patch preview method.
+    progress : callable, optional
+        Called with one line of text before each preset's transport runs.
 
     Returns
     -------
@@ -136,7 +138,7 @@ def descriptor_previews(out_dir, descriptor_path, *, config_path=None, textured:
 def table_previews(
     out_dir, table, x_axis: str, y_axis: str, quantity: str = "albedo_multiple", band_nm: float = 550.0
 ) -> dict:
-    """A heat map of ``quantity`` over two table axes (the others at their middle grid value)."""
+    """Plot a heat map of ``quantity`` over two table axes (the others at their middle grid value)."""
     out = Path(out_dir)
     path = plots.plot_table_slice(
         out / f"table_{quantity}_{x_axis}_{y_axis}.png", table, quantity, x_axis, y_axis, band_nm=band_nm

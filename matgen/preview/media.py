@@ -76,7 +76,7 @@ class SkinRuns:
 
 
 def base_skin(preset_name: str = "cheek"):
-    """The preset skin parameter set of the skin comparisons (``matgen.tissue.presets.preset``)."""
+    """Return the preset skin parameter set of the skin comparisons (``matgen.tissue.presets.preset``)."""
     try:
         from matgen.tissue.presets import preset
     except ImportError as exc:
@@ -167,7 +167,7 @@ EXPORT_METRES_PER_SCENE_UNIT = 0.01
 def exported_medium(
     summary: dict, bands: BandSet, metres_per_scene_unit: float = EXPORT_METRES_PER_SCENE_UNIT
 ) -> ExportedMedium:
-    """The raw spectral-medium target's inputs for a summary, read back into mm and 1/mm.
+    """Return the raw spectral-medium target's inputs for a summary, read back into mm and 1/mm.
 
     Goes through ``matgen.targets.TARGETS["spectral_medium"].to_inputs`` (each band inverted with its g) so
     that what is validated is what matgen exports (``albedo``, ``sigma_t`` per scene unit, ``g``, ``eta``);

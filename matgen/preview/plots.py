@@ -141,6 +141,10 @@ def plot_radial_profiles(
         Standard errors (error bars of +-2 se).
     models : dict of str -> (label, ndarray (R,)), optional
         Same keys as ``profiles`` -> (model name, model ring averages in mm^-2), drawn as lines.
+    title : str
+        Plot title.
+    size_px : (int, int)
+        Image width and height in pixels.
 
     """
     from matgen.transport.results import ring_centres_mm
@@ -200,13 +204,14 @@ def plot_table_slice(
     samples: int = 64,
     size_px=(700, 560),
 ) -> Path:
-    """A table quantity over two axes as a heat map, the other axes held fixed (interpolated lookup).
+    """Plot a table quantity over two axes as a heat map, the other axes held fixed (interpolated lookup).
 
     Parameters
     ----------
     path : str or Path
         PNG to write.
     table : matgen.tables.store.Table
+        Table to look the quantity up in.
     quantity : str
         Table quantity name (e.g. ``"albedo_multiple"``).
     x_axis, y_axis : str
@@ -219,6 +224,8 @@ def plot_table_slice(
         For RGB or scalar quantities: the channel index.
     samples : int
         Samples per axis of the heat map.
+    size_px : (int, int)
+        Image width and height in pixels.
 
     """
     names = table.axis_names
@@ -368,6 +375,8 @@ def plot_validation(path, comparisons: list, *, size_px=(900, 520)) -> Path:
         PNG to write.
     comparisons : list of dict
         ``Comparison.to_dict()`` forms (``matgen.preview.validate``).
+    size_px : (int, int)
+        Image width and minimum height in pixels (at least 190 pixels per comparison).
 
     """
     if not comparisons:

@@ -152,7 +152,7 @@ def builtin_band_images(
     pixels: int = PIXELS,
     light_height_mm: float = LIGHT_HEIGHT_MM,
 ) -> np.ndarray:
-    """Exitant diffuse reflectance (B, P, P) of the patch under the small light (FFT convolution).
+    """Compute the exitant diffuse reflectance (B, P, P) of the patch under the small light (FFT convolution).
 
     Source: the fitted profile of [Christensen2015]; the convolution of irradiance with a radially symmetric
     profile is the standard diffusion-profile rendering of translucent materials ([Jensen2001]).
@@ -360,6 +360,9 @@ def patch_preview(
         Pass names (``matgen.color.pass_weights``).
     working_space, illuminant : str
         Colour of the built-in visible view.
+    **kwargs
+        Passed on to :func:`tracer_views` or :func:`builtin_views` (e.g. ``field_mm`` and
+        ``light_height_mm`` in mm, ``pixels``).
 
     Returns
     -------

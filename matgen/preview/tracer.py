@@ -75,7 +75,10 @@ def _uniform(value: float) -> dict:
 
 
 def band_sensitivity(lower_nm: float, upper_nm: float) -> dict:
-    """A flat band sensitivity from ``lower_nm`` to ``upper_nm`` (nm) as a Mitsuba ``regular`` spectrum."""
+    """Return a flat band sensitivity from ``lower_nm`` to ``upper_nm`` (nm) as a Mitsuba spectrum.
+
+    The spectrum is of Mitsuba's ``regular`` type.
+    """
     if not (math.isfinite(lower_nm) and math.isfinite(upper_nm) and 0 < lower_nm < upper_nm):
         raise ParameterError(f"band [{lower_nm}, {upper_nm}] nm is invalid; need 0 < lower < upper")
     return {
@@ -120,7 +123,7 @@ class TracerLayer:
 
 
 def layers_from_stack(stack: Stack) -> list[TracerLayer]:
-    """The layers of a transport :class:`~matgen.transport.stack.Stack` (1/mm, mm) as tracer layers."""
+    """Convert the layers of a :class:`~matgen.transport.stack.Stack` (1/mm, mm) to tracer layers."""
     return [
         TracerLayer.from_coefficients(
             stack.thickness_mm[i], stack.mu_a[i], stack.mu_s[i], stack.g[i], stack.n[i]
@@ -225,7 +228,7 @@ def reflectance_scene(
     rr_depth=DEFAULT_RR_DEPTH,
     empty=False,
 ):
-    """The reciprocity scene (module docstring) for one band, as a loaded Mitsuba scene.
+    """Build the reciprocity scene (module docstring) for one band, as a loaded Mitsuba scene.
 
     Parameters
     ----------

@@ -140,8 +140,9 @@ class Row:
 
     @property
     def bound(self) -> float:
-        """The largest |difference| that passes: 3 combined standard errors plus the allowance (absolute,
-        and relative to the reference value).
+        """Return the largest |difference| that passes.
+
+        That is 3 combined standard errors plus the allowance (absolute, and relative to the reference value).
         """
         return (SIGMA_BOUND * self.combined_stderr + self.allowance
                 + self.relative_allowance * abs(self.reference.value))
@@ -298,7 +299,7 @@ def adding_doubling_reflectance(
 
 
 def harness_check(quick: bool = True, seed: int = 0) -> Comparison:
-    """The tracer's reciprocity scene against adding-doubling for homogeneous slabs (sigma_t = 1/mm).
+    """Compare the tracer's reciprocity scene with adding-doubling for homogeneous slabs (sigma_t = 1/mm).
 
     Reference: iadpython adding-doubling ([Prahl1993iad]), 32 quadrature points; its own quadrature error is
     below 2e-4 at these slabs (16 vs 32 points) and is covered by :data:`ALLOWANCE_TRACER`.
@@ -388,6 +389,10 @@ def homogeneous_comparison(
         Band centres to use (each must lie in ``medium.bands``); default: all of ``medium.bands``.
     deep : bool
         Deep slabs (:func:`deep_depth_mfp`) instead of :data:`SLAB_DEPTH_MFP` slabs.
+    paths : int, optional
+        Tracer paths per slab; default :data:`TRACER_PATHS` of the mode.
+    photons : int, optional
+        Photons per slab of matgen's transport; default :data:`MATGEN_PHOTONS` of the mode.
 
     """
     mode = _mode(quick)
@@ -556,7 +561,7 @@ class ValidationRun:
         return bool(self.comparisons) and all(c.passed for c in self.comparisons)
 
     def get(self, name: str) -> Comparison | None:
-        """The comparison called ``name``, or None."""
+        """Return the comparison called ``name``, or None."""
         return next((c for c in self.comparisons if c.name == name), None)
 
     def format(self) -> str:
@@ -566,7 +571,7 @@ class ValidationRun:
         return "\n\n".join(parts)
 
     def verdict(self) -> str:
-        """The closing lines: what did not run, the cost of collapsing layers, pass or fail."""
+        """Return the closing lines: what did not run, the cost of collapsing layers, pass or fail."""
         lines = [f"{name}: NOT RUN ({why})" for name, why in self.skipped.items()]
         collapse = self.get("collapse")
         if collapse is not None:

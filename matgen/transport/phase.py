@@ -39,12 +39,18 @@ def hg_eval_per_sr(mu, g):
 
 
 def hg_pdf_mu(mu, g):
-    """Density of the scattering cosine mu on [-1, 1] (dimensionless; integrates to 1). Source: HenyeyGreenstein1941."""
+    """Density of the scattering cosine mu on [-1, 1] (dimensionless; integrates to 1).
+
+    Source: HenyeyGreenstein1941.
+    """
     return 2.0 * np.pi * hg_eval_per_sr(mu, g)
 
 
 def hg_cdf_mu(mu, g):
-    """Cumulative distribution of mu on [-1, 1] in closed form (for binned tests). Source: HenyeyGreenstein1941."""
+    """Cumulative distribution of mu on [-1, 1] in closed form (for binned tests).
+
+    Source: HenyeyGreenstein1941.
+    """
     mu = np.asarray(mu, dtype=np.float64)
     if abs(g) < G_ISOTROPIC:
         return 0.5 * (mu + 1.0)

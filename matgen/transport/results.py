@@ -1,4 +1,6 @@
-"""Transport results: every tally with its standard error. Units: mm, mm^-2, sr^-1, fractions of launched weight.
+"""Transport results: every tally with its standard error.
+
+Units: mm, mm^-2, sr^-1, fractions of launched weight.
 
 Ring ``k`` of the radial profile spans ``[ring_edges_mm[k], ring_edges_mm[k+1])``; the first ring starts at 0.
 ``radial_reflectance_per_mm2[k]`` is the diffuse reflectance escaping through ring k divided by the ring's
@@ -100,7 +102,7 @@ class TransportResult:
             "diffuse_reflectance": self.diffuse_reflectance.to_dict(),
             "transmittance": self.transmittance.to_dict(),
             "absorbed": [
-                {"value": float(v), "stderr": float(e)} for v, e in zip(self.absorbed, self.absorbed_stderr)
+                {"value": float(v), "stderr": float(e)} for v, e in zip(self.absorbed, self.absorbed_stderr, strict=False)
             ],
             "mean_penetration_depth_mm": self.mean_penetration_depth_mm.to_dict(),
             "photons_per_second": float(self.photons_per_second),

@@ -104,7 +104,7 @@ class Stack:
         return float(self.thickness_mm.sum())
 
     def with_mu_a(self, mu_a) -> Stack:
-        """The same stack with another absorption vector (1/mm)."""
+        """Return the same stack with another absorption vector (1/mm)."""
         return Stack(self.thickness_mm, self.n, mu_a, self.mu_s, self.g, self.n_above, self.n_below, self.names)
 
     def to_dict(self) -> dict:

@@ -1,4 +1,6 @@
-"""From integer tally vectors to estimates with standard errors. Units: fractions of launched weight, mm^-2, sr^-1, mm.
+"""From integer tally vectors to estimates with standard errors.
+
+Units: fractions of launched weight, mm^-2, sr^-1, mm.
 
 Every tally is a mean over N launched photons of a per-photon contribution x_p (zero for photons that do
 not contribute). The estimate is S1 / N and its standard error sqrt((S2 / N - (S1 / N)^2) / (N - 1)),
@@ -76,6 +78,10 @@ def result_from_tallies(
         Specular reflectance at entry (exact, no statistical error).
     depth_scale_mm : float
         Total stack thickness in mm (depth tallies are stored as a fraction of it).
+    extra : dict, optional
+        Further entries merged into the result's ``extra`` (after ``photon_counts``).
+    photons_per_second : float
+        Throughput of the run (photons/s).
 
     """
     ring_edges_mm = np.asarray(ring_edges_mm, dtype=np.float64)
@@ -125,5 +131,5 @@ def result_from_tallies(
 def standard_error_ok(
     value: float, reference: float, stderr: float, sigmas: float = 3.0, allowance: float = 0.0
 ) -> bool:
-    """True when |value - reference| <= sigmas * stderr + allowance (for tests and reports)."""
+    """Return True when |value - reference| <= sigmas * stderr + allowance (for tests and reports)."""
     return math.isfinite(value) and abs(value - reference) <= sigmas * stderr + allowance

@@ -1,4 +1,7 @@
-"""``matgen bench estimate`` runs end to end on a small albedo and reports figures that hold the requirement."""
+"""``matgen bench estimate`` runs end to end on a small albedo.
+
+It reports figures that hold the requirement.
+"""
 
 import json
 

@@ -34,7 +34,10 @@ def h_function(albedo, mu, nodes=200):
 
 @pytest.mark.parametrize("a, ref", [(0.8, 0.285255), (0.9, 0.414947), (0.99, 0.752721)])
 def test_h_function_reference_reproduces_published_values(a, ref):
-    """R = 1 - H(1) sqrt(1 - a) (van de Hulst 1980; Chandrasekhar 1960) to six decimals (values computed from Chandrasekhar's H-function integral)."""
+    """R = 1 - H(1) sqrt(1 - a) (van de Hulst 1980; Chandrasekhar 1960) to six decimals.
+
+    The values are computed from Chandrasekhar's H-function integral.
+    """
     assert 1.0 - h_function(a, 1.0) * np.sqrt(1.0 - a) == pytest.approx(ref, abs=1e-6)
 
 

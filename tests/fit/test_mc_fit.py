@@ -40,11 +40,14 @@ def test_albedo_matches_exact_isotropic_half_space(isotropic_runs, alpha, exact)
 
 
 SHAPE_ALLOWANCE = 0.10
-SHAPE_DOC = """The memo's own accuracy statement could not be re-read for this check (coefficients from memory);
+SHAPE_DOC = (
+    "The memo's own accuracy statement could not be re-read for this check (coefficients from memory);"
+    """
     the allowance is 10 %: the fitted d depends on how rings are weighted (ours: 1/stderr^2 on log-spaced
     rings; the memo's weighting is not known here) and the profile model itself misfits the Monte Carlo
     profile by a few percent (fit_residual 0.03-0.05 here). The statistical error of s is below 0.5 % at
     1e5 photons."""
+)
 
 
 @pytest.mark.parametrize("alpha", [0.8, 0.9, 0.95])

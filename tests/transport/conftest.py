@@ -1,4 +1,7 @@
-"""Puts tests/reference (slow literal implementations and shared stacks) on sys.path for the transport tests."""
+"""Put tests/reference on sys.path for the transport tests.
+
+It holds the slow literal implementations and shared stacks.
+"""
 
 import sys
 from pathlib import Path

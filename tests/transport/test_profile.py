@@ -34,7 +34,10 @@ def farrell1992_per_mm2(r_mm, mu_a, mu_s_reduced, a_boundary=1.0):
 
 
 def test_profile_and_angles_integrate_to_diffuse_reflectance():
-    """sum(ring * area) and sum(angle bin * projected solid angle) equal R_d (all light inside the last ring)."""
+    """sum(ring * area) and sum(angle bin * projected solid angle) equal R_d.
+
+    All light lands inside the last ring.
+    """
     r = simulate(
         benchmark_stack(800), 3000, seed=2, ring_edges_mm=np.concatenate(([0.0], np.logspace(-3, 4, 71)))
     )
@@ -97,7 +100,10 @@ def test_oblique_incidence_half_space():
 
 
 def test_penetration_depth_matches_records():
-    """The mean penetration depth tally equals the weighted mean of the recorded max depths of reflected photons."""
+    """The mean penetration depth tally equals the weighted mean of the recorded max depths.
+
+    The mean is over reflected photons.
+    """
     r, rec = simulate(benchmark_stack(550), 2000, seed=8, records=True)
     top = rec.side == 1
     w = rec.weight[top].astype(np.float64)

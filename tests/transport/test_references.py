@@ -39,7 +39,10 @@ def _within(value, stderr, reference, allowance=0.0):
 
 
 def test_van_de_hulst_matched_slab():
-    """van de Hulst 1980 via Wang, Jacques & Zheng 1995: R 0.09739, T 0.66096 (mu_a 1/mm, mu_s 9/mm, d 0.2 mm)."""
+    """van de Hulst 1980 via Wang, Jacques & Zheng 1995: R 0.09739, T 0.66096.
+
+    Slab: mu_a 1/mm, mu_s 9/mm, d 0.2 mm.
+    """
     r = simulate(Stack([0.2], [1.0], [1.0], [9.0], [0.75]), 400_000, seed=1)
     assert r.specular_reflectance.value == 0.0
     assert _within(r.total_reflectance.value, r.diffuse_reflectance.stderr, 0.09739)
@@ -131,7 +134,10 @@ LAYERED = [
 
 @pytest.mark.parametrize("k", range(len(LAYERED)))
 def test_layered_against_layered_adding_doubling(k):
-    """Layered adding-doubling from iadpython 0.5.3 adding routines (tests/reference/layered_ad.py), 16 points."""
+    """Layered adding-doubling from iadpython 0.5.3 adding routines, 16 points.
+
+    The implementation is tests/reference/layered_ad.py.
+    """
     layers, n = LAYERED[k]
     mu_t = 2.0
     stack = Stack(
