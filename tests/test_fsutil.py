@@ -39,7 +39,10 @@ def test_second_lock_refused_with_name(tmp_path):
 
 def test_stale_lock_of_dead_process_is_taken(tmp_path):
     proc = subprocess.run(
-        [sys.executable, "-c", "import os, sys; print(os.getpid())"], capture_output=True, text=True, check=True
+        [sys.executable, "-c", "import os, sys; print(os.getpid())"],
+        capture_output=True,
+        text=True,
+        check=True,
     )
     dead_pid = int(proc.stdout)
     import json
@@ -61,7 +64,10 @@ def test_resolve_inside_refuses_escape(tmp_path):
     os.symlink("/tmp", tmp_path / "link")
     with pytest.raises(PathError, match="outside"):
         resolve_inside(tmp_path, "link/x", "map")
-    assert resolve_inside(tmp_path / "inner", "../a.exr", "map", allow_outside=True) == (tmp_path / "a.exr").resolve()
+    assert (
+        resolve_inside(tmp_path / "inner", "../a.exr", "map", allow_outside=True)
+        == (tmp_path / "a.exr").resolve()
+    )
 
 
 def test_atomic_write_gives_ordinary_permissions(tmp_path):

@@ -73,8 +73,12 @@ class TableRangeReport:
 
 def _tile_flags(plan, ti, report, lo, hi):
     readers = {
-        name: MapReader(info, plan.config.parameter(name).channel, (ti.width, ti.height),
-                        what=f"map of parameter '{name}'")
+        name: MapReader(
+            info,
+            plan.config.parameter(name).channel,
+            (ti.width, ti.height),
+            what=f"map of parameter '{name}'",
+        )
         for name, info in ti.maps.items()
     }
     try:

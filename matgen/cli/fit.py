@@ -295,9 +295,7 @@ def fit_document(
 
             rgb_g = channel_anisotropy(rgb_weights(bands, space, illuminant), a, g)[0]
             # one scalar g for OpenPBR and standard_surface: every channel inverted with it, as a bake does
-            rgb = summary_media(
-                q, 0, "rgb", inverter, scalar_g=True, rgb_anisotropy=rgb_g
-            ).medium(0)
+            rgb = summary_media(q, 0, "rgb", inverter, scalar_g=True, rgb_anisotropy=rgb_g).medium(0)
             for name in ("openpbr", "standard_surface"):
                 targets[name] = TARGETS[name].to_inputs(rgb, metres_per_scene_unit=metres_per_scene_unit)
             targets["openpbr"]["fit_residual"] = q["rgb_fit_residual"][0].tolist()

@@ -321,4 +321,3 @@ def grid_guess_kernel(target, origin, step, counts, index, cand_x, out_x):
         row = index[flat]
         for i in range(k):
             out_x[p, i] = cand_x[row, i]
-

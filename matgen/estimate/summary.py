@@ -68,7 +68,7 @@ class SummaryAccumulator:
             # uniform bins in the axis coordinate (log on log axes): numpy's fast path, no sort
             c = np.clip(v[:, i], self.edges[i][0], self.edges[i][-1])
             c = np.log(c) if ax.spacing == "log" else c
-            lo, hi = (np.log(self.edges[i][[0, -1]]) if ax.spacing == "log" else self.edges[i][[0, -1]])
+            lo, hi = np.log(self.edges[i][[0, -1]]) if ax.spacing == "log" else self.edges[i][[0, -1]]
             self.counts[i] += np.histogram(c, PIGMENT_BINS, range=(lo, hi))[0]
         self.sums += v.sum(axis=0)
         self.mins = np.minimum(self.mins, v.min(axis=0))

@@ -380,7 +380,6 @@ def _build_documents(
     return out
 
 
-
 def _colour_tags(spec, working_space: str) -> dict:
     """EXR colour or data tags of one output: a target map is colour when its target says so."""
     if spec.kind == "target":
@@ -388,6 +387,7 @@ def _colour_tags(spec, working_space: str) -> dict:
         colour = any(m.name == spec.quantity and m.colour for m in maps)
         return exr_colour_attributes(working_space) if colour else exr_data_attributes()
     return exr_attributes(spec.quantity, spec.channels, working_space)
+
 
 def bake(
     config: BakeConfig,
@@ -458,7 +458,13 @@ def bake(
         inputs = check_inputs(plan)
         would_clamp = check_table_range(plan).total  # refuses here when table_out_of_range = "error"
         return BakeResult(
-            out_dir, None, files, plan.texels, would_clamp, inputs.total_clamped, dry_run=True,
+            out_dir,
+            None,
+            files,
+            plan.texels,
+            would_clamp,
+            inputs.total_clamped,
+            dry_run=True,
             seconds=time.perf_counter() - t_start,
         )
     check_writable(out_dir)

@@ -300,8 +300,13 @@ def _flag_panel(fig, ax, p) -> str:
     v = np.asarray(p["values"], dtype=np.float64)
     flagged = np.isfinite(v) & (v > 0.5)
     n = int(flagged.sum())
-    im = ax.imshow(flagged.astype(float), cmap=ListedColormap(["#1a1a1a", "#ff3030"]), vmin=0, vmax=1,
-                   interpolation="nearest")
+    im = ax.imshow(
+        flagged.astype(float),
+        cmap=ListedColormap(["#1a1a1a", "#ff3030"]),
+        vmin=0,
+        vmax=1,
+        interpolation="nearest",
+    )
     fig.colorbar(im, ax=ax, fraction=0.046, pad=0.04, ticks=[0, 1], label="flag (0 / 1)")
     if 0 < n <= MAX_FLAG_MARKERS:
         yy, xx = np.nonzero(flagged)

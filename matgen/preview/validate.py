@@ -144,8 +144,11 @@ class Row:
 
         That is 3 combined standard errors plus the allowance (absolute, and relative to the reference value).
         """
-        return (SIGMA_BOUND * self.combined_stderr + self.allowance
-                + self.relative_allowance * abs(self.reference.value))
+        return (
+            SIGMA_BOUND * self.combined_stderr
+            + self.allowance
+            + self.relative_allowance * abs(self.reference.value)
+        )
 
     @property
     def passed(self) -> bool:

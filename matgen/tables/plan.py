@@ -49,8 +49,12 @@ JOB_FILE = "job.json"
 _RESULT_PACKAGES = ("spectra", "tissue", "transport", "color", "fit", "tables")
 #: Files of those folders that do not change results (reports, benchmarks, scheduling).
 _RESULT_NEUTRAL = {
-    "tables/report.py", "tables/bench.py", "tables/executors.py", "tables/build.py",
-    "color/tags.py", "color/curves.py",  # file tags and bake-time pass curves: no table number uses them
+    "tables/report.py",
+    "tables/bench.py",
+    "tables/executors.py",
+    "tables/build.py",
+    "color/tags.py",
+    "color/curves.py",  # file tags and bake-time pass curves: no table number uses them
 }
 #: Top-level modules that determine results.
 _RESULT_MODULES = ("constants.py", "units.py", "provenance.py", "limits.py")

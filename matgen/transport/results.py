@@ -102,7 +102,8 @@ class TransportResult:
             "diffuse_reflectance": self.diffuse_reflectance.to_dict(),
             "transmittance": self.transmittance.to_dict(),
             "absorbed": [
-                {"value": float(v), "stderr": float(e)} for v, e in zip(self.absorbed, self.absorbed_stderr, strict=False)
+                {"value": float(v), "stderr": float(e)}
+                for v, e in zip(self.absorbed, self.absorbed_stderr, strict=False)
             ],
             "mean_penetration_depth_mm": self.mean_penetration_depth_mm.to_dict(),
             "photons_per_second": float(self.photons_per_second),
@@ -119,8 +120,13 @@ class TransportResult:
                 "stderr_per_sr": np.asarray(self.exit_angle_stderr_per_sr).tolist(),
             }
         # extra values join the JSON form; arrays (e.g. the fixed-point tally vector) become lists
-        out.update({k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in self.extra.items()
-                    if k not in out})
+        out.update(
+            {
+                k: (v.tolist() if isinstance(v, np.ndarray) else v)
+                for k, v in self.extra.items()
+                if k not in out
+            }
+        )
         return out
 
     @classmethod
@@ -130,8 +136,15 @@ class TransportResult:
         ang = d.get("exit_angle", {})
         absorbed = d.get("absorbed", [])
         known = {
-            "photons", "specular_reflectance", "diffuse_reflectance", "transmittance", "absorbed",
-            "mean_penetration_depth_mm", "photons_per_second", "profile", "exit_angle",
+            "photons",
+            "specular_reflectance",
+            "diffuse_reflectance",
+            "transmittance",
+            "absorbed",
+            "mean_penetration_depth_mm",
+            "photons_per_second",
+            "profile",
+            "exit_angle",
         }
         return cls(
             photons=int(d["photons"]),
@@ -141,12 +154,16 @@ class TransportResult:
             absorbed=np.array([a["value"] for a in absorbed], dtype=np.float64),
             absorbed_stderr=np.array([a["stderr"] for a in absorbed], dtype=np.float64),
             ring_edges_mm=np.asarray(prof.get("ring_edges_mm", []), dtype=np.float64),
-            radial_reflectance_per_mm2=np.asarray(prof.get("radial_reflectance_per_mm2", []), dtype=np.float64),
+            radial_reflectance_per_mm2=np.asarray(
+                prof.get("radial_reflectance_per_mm2", []), dtype=np.float64
+            ),
             radial_stderr_per_mm2=np.asarray(prof.get("radial_stderr_per_mm2", []), dtype=np.float64),
             exit_cos_edges=np.asarray(ang.get("exit_cos_edges", []), dtype=np.float64),
             exit_angle_per_sr=np.asarray(ang.get("reflectance_per_sr", []), dtype=np.float64),
             exit_angle_stderr_per_sr=np.asarray(ang.get("stderr_per_sr", []), dtype=np.float64),
-            mean_penetration_depth_mm=Estimate(**d.get("mean_penetration_depth_mm", {"value": 0.0, "stderr": 0.0})),
+            mean_penetration_depth_mm=Estimate(
+                **d.get("mean_penetration_depth_mm", {"value": 0.0, "stderr": 0.0})
+            ),
             photons_per_second=float(d.get("photons_per_second", 0.0)),
             extra={k: v for k, v in d.items() if k not in known},
         )

@@ -62,7 +62,9 @@ class Stack:
             raise StackError("the stack has no layers; give at least one layer")
         if self.names and (isinstance(self.names, (str, bytes)) or not hasattr(self.names, "__iter__")):
             raise StackError(f"layer names must be a list of {n_layers} strings, not {self.names!r}")
-        names = tuple(str(v) for v in self.names) if self.names else tuple(f"layer {i}" for i in range(n_layers))
+        names = (
+            tuple(str(v) for v in self.names) if self.names else tuple(f"layer {i}" for i in range(n_layers))
+        )
         if len(names) != n_layers:
             raise StackError(f"{len(names)} layer names given for {n_layers} layers")
         object.__setattr__(self, "names", names)
@@ -90,7 +92,9 @@ class Stack:
             except (TypeError, ValueError) as exc:
                 raise StackError(f"stack field '{name}' is not a number: {v!r}") from exc
             if not math.isfinite(v) or v < 1.0:
-                raise StackError(f"stack field '{name}' is {v}; ambient refractive index must be finite and >= 1")
+                raise StackError(
+                    f"stack field '{name}' is {v}; ambient refractive index must be finite and >= 1"
+                )
             object.__setattr__(self, name, v)
 
     @property
@@ -105,7 +109,9 @@ class Stack:
 
     def with_mu_a(self, mu_a) -> Stack:
         """Return the same stack with another absorption vector (1/mm)."""
-        return Stack(self.thickness_mm, self.n, mu_a, self.mu_s, self.g, self.n_above, self.n_below, self.names)
+        return Stack(
+            self.thickness_mm, self.n, mu_a, self.mu_s, self.g, self.n_above, self.n_below, self.names
+        )
 
     def to_dict(self) -> dict:
         """JSON form matching the ``matgen simulate`` STACK.json layout (one band)."""

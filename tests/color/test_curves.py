@@ -43,11 +43,7 @@ def _reference_weights(curves, bands, step=0.002):
 def test_vendor_style_csv_reads_like_the_plain_one():
     """Semicolons, decimal commas, bracketed units, percent and descending rows give the plain CSV's curve."""
     plain = "wavelength_nm,weight\n350,0.10\n365.5,0.80\n380,0.05\n"
-    vendor = (
-        "# filter datasheet export\n"
-        "Wavelength [nm];Transmission [%]\n"
-        "380;5,0\n365,5;80,0\n350;10,0\n"
-    )
+    vendor = "# filter datasheet export\nWavelength [nm];Transmission [%]\n380;5,0\n365,5;80,0\n350;10,0\n"
     wl0, v0, _ = parse_curve(plain, "plain.csv")
     wl1, v1, units = parse_curve(vendor, "vendor.csv", "filter")
     np.testing.assert_allclose(wl1, wl0)

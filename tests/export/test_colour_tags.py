@@ -53,8 +53,9 @@ def baked(tmp_path_factory, kit):
 def _ocio_matrix(name):
     """RGB -> CIE XYZ (D65) matrix of an OCIO colour space, probed with the unit primaries."""
     proc = _config().getProcessor(name, XYZ_D65).getDefaultCPUProcessor()
-    return np.array([proc.applyRGB([1.0, 0.0, 0.0]), proc.applyRGB([0.0, 1.0, 0.0]),
-                     proc.applyRGB([0.0, 0.0, 1.0])]).T
+    return np.array(
+        [proc.applyRGB([1.0, 0.0, 0.0]), proc.applyRGB([0.0, 1.0, 0.0]), proc.applyRGB([0.0, 0.0, 1.0])]
+    ).T
 
 
 def _matrix_from_chromaticities(chrom):
@@ -138,7 +139,11 @@ def test_bake_with_untaggable_table_space_fails_before_writing(tmp_path, kit, te
     """A table whose working space cannot be tagged stops the bake with nothing written."""
     cfg = kit.make_project(tmp_path / "p", 4, 4)
     bad = test_table.__class__(
-        test_table.axes, test_table.bands, test_table.quantities, "ProPhoto RGB", test_table.illuminant,
+        test_table.axes,
+        test_table.bands,
+        test_table.quantities,
+        "ProPhoto RGB",
+        test_table.illuminant,
         test_table.manifest,
     )
     with pytest.raises(ParameterError, match="ProPhoto RGB"):

@@ -293,8 +293,9 @@ def test_materialx_only_subsurface_color_is_colour_managed(baked):
 
 def test_materialx_validation_catches_a_misspelt_input():
     with pytest.raises(DataError, match="subsurface_colour"):
-        material_document("m", [("open_pbr_surface", {"subsurface_colour": {"value": 1.0, "type": "float"}})],
-                          "ACEScg")
+        material_document(
+            "m", [("open_pbr_surface", {"subsurface_colour": {"value": 1.0, "type": "float"}})], "ACEScg"
+        )
 
 
 def test_pass_maps_are_response_weighted_albedo(baked):
@@ -455,10 +456,14 @@ def test_standard_surface_target_writes_its_own_maps_and_node(tmp_path, kit):
         if "texture" in entry:
             assert (tmp_path / "out" / entry["texture"]).is_file()
     out = tmp_path / "out"
-    ss = read_exr(out / "standard_surface" / "subsurface_radius.exr")[0] * read_exr(
-        out / "standard_surface" / "subsurface_scale.exr")[0]
-    op = read_exr(out / "openpbr" / "subsurface_radius_scale.exr")[0] * read_exr(
-        out / "openpbr" / "subsurface_radius.exr")[0]
+    ss = (
+        read_exr(out / "standard_surface" / "subsurface_radius.exr")[0]
+        * read_exr(out / "standard_surface" / "subsurface_scale.exr")[0]
+    )
+    op = (
+        read_exr(out / "openpbr" / "subsurface_radius_scale.exr")[0]
+        * read_exr(out / "openpbr" / "subsurface_radius.exr")[0]
+    )
     np.testing.assert_allclose(ss, op, rtol=1e-6)
     mdoc = mx.createDocument()
     mx.readFromXmlFile(mdoc, str(out / "material.mtlx"))

@@ -185,8 +185,14 @@ def test_fit_takes_the_effective_g_and_n_from_the_stack_and_reports_passes(tmp_p
         "wavelength_nm": [350.0, 550.0, 850.0],
         "layers": [
             {"name": "top", "thickness_mm": 0.1, "n": 1.45, "mu_a": [2.0, 1.0, 0.3], "mu_s": 30.0, "g": 0.7},
-            {"name": "bulk", "thickness_mm": 20.0, "n": 1.45, "mu_a": [0.3, 0.1, 0.02], "mu_s": 20.0,
-             "g": 0.9},
+            {
+                "name": "bulk",
+                "thickness_mm": 20.0,
+                "n": 1.45,
+                "mu_a": [0.3, 0.1, 0.02],
+                "mu_s": 20.0,
+                "g": 0.9,
+            },
         ],
     }
     (tmp_path / "stack.json").write_text(json.dumps(stack))
@@ -223,8 +229,12 @@ def test_effective_anisotropy_of_one_layer_and_of_equal_paths():
 
 def test_fit_refuses_unknown_working_space_without_visible_bands(tmp_path, capsys):
     """An unknown working space is an error even when no band reaches the visible (it used to be ignored)."""
-    stack = {"n_above": 1.0, "n_below": 1.0, "wavelength_nm": [900.0],
-             "layers": [{"thickness_mm": 5.0, "n": 1.0, "mu_a": [0.05], "mu_s": 10.0, "g": 0.0}]}
+    stack = {
+        "n_above": 1.0,
+        "n_below": 1.0,
+        "wavelength_nm": [900.0],
+        "layers": [{"thickness_mm": 5.0, "n": 1.0, "mu_a": [0.05], "mu_s": 10.0, "g": 0.0}],
+    }
     (tmp_path / "stack.json").write_text(json.dumps(stack))
     assert main(["simulate", str(tmp_path / "stack.json"), "--photons", "2000", "--profile", "--json"]) == 0
     (tmp_path / "result.json").write_text(capsys.readouterr().out)

@@ -475,9 +475,7 @@ def _response_csv(data: bytes, scratch: Path):
 
 
 def _curve_seeds(d: Path) -> list:
-    vendor = (
-        b"# filter datasheet\nWavelength [nm];Transmission [%]\n350;10,0\n365,5;80,0\n380;5,0\n"
-    )
+    vendor = b"# filter datasheet\nWavelength [nm];Transmission [%]\n350;10,0\n365,5;80,0\n380;5,0\n"
     tabbed = b"lambda (um)\tQE\n0.80\t0.5\n0.85\t0.4\n0.90\t0.2\n"
     return _csv_seeds(d) + [vendor, tabbed]
 
