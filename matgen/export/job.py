@@ -221,7 +221,9 @@ def bake_inputs(plan: BakePlan, table_source=None) -> list:
     """Files a bake reads: every map of every tile, the pass response files and the table file."""
     files = [info.path for ti in plan.tiles for info in ti.maps.values()]
     for entry in plan.config.outputs.passes:
-        if entry.lower().endswith(".csv"):
+        if isinstance(entry, dict):  # a table of lamp / filter / sensor curve files
+            files += [plan.config.base_dir / v for k, v in entry.items() if k != "name"]
+        elif entry.lower().endswith(".csv"):
             files.append(plan.config.base_dir / entry)
     if table_source is not None:
         files.append(Path(table_source))

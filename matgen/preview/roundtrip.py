@@ -40,7 +40,7 @@ AD_RELATIVE_STDERR = 2e-4
 #: Optical thickness of the adding-doubling deep slab (a half-space for every albedo below 1 - 1e-8).
 AD_OPTICAL_THICKNESS = 1e4
 #: Photons per band of the fresh skin transport.
-PHOTONS = {"quick": 10_000, "full": 50_000}
+PHOTONS = {"quick": 20_000, "full": 50_000}
 #: Relative standard error a band's fresh transport is run to, and the photon ceiling per band.
 TARGET_RELATIVE_STDERR = {"quick": 0.008, "full": 0.005}
 MAX_PHOTONS = {"quick": 400_000, "full": 1_000_000}

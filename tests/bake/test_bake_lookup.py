@@ -17,6 +17,7 @@ from matgen.export.job import bake
 from matgen.fit.channels import rgb_weights
 from matgen.fit.inversion import albedo_multiple, albedo_single_OpenPBR2024, effective_medium
 from matgen.tables.store import Table
+from matgen.targets.solve import inversion_g_range
 
 
 def _read_map(path):
@@ -100,12 +101,14 @@ def _channel_g(table, pts):
     return r["num"].astype(np.float64) / r["den"]
 
 
-def _check_openpbr_texels(table, pts, maps, a_tol=2e-6):
+def _check_openpbr_texels(table, pts, maps, a_tol=5e-5):
+    """a_tol: the per-texel grid inversion's bound through the forward model (tests/targets/test_solve.py)."""
     ref, _ = table.lookup(pts, ["rgb_albedo_multiple", "rgb_shape_distance_mm", "ior"])
     a = ref["rgb_albedo_multiple"].astype(np.float64)
     d = ref["rgb_shape_distance_mm"].astype(np.float64)
     n = float(ref["ior"][0, 0])
-    g = np.clip(_channel_g(table, pts).mean(axis=1), 0.0, 0.9)  # the inversion table covers g <= 0.9
+    lo, hi = inversion_g_range()
+    g = np.clip(_channel_g(table, pts).mean(axis=1), lo, hi)  # g as far as the inversion covers it
     g_file = maps["subsurface_scatter_anisotropy"][:, 0]
     np.testing.assert_allclose(g_file, g, rtol=1e-6)
     gg = np.repeat(g_file[:, None], 3, axis=1)

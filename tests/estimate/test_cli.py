@@ -160,8 +160,10 @@ def test_refusals(albedo, tmp_path, capsys, ekit):
     out = tmp_path / "o"
     msg = _refused(capsys, out, path, "--colour-space", "no-such-space")
     assert "no-such-space" in msg and "acescg" in msg
-    msg = _refused(capsys, out, path)  # untagged EXR, no option
-    assert "no colour-space tag" in msg and str(path) in msg
+    untagged = tmp_path / "untagged.exr"  # baked colour maps carry their space's tags; this copy has none
+    ekit.write_image(untagged, ekit.read(path)[..., :3])
+    msg = _refused(capsys, out, untagged)  # untagged EXR, no option
+    assert "no colour-space tag" in msg and str(untagged) in msg
     msg = _refused(capsys, out, path, "--colour-space", "acescg", "--fix", "eumelanin_share=2")
     assert "eumelanin_share = 2" in msg
     bad_curve = tmp_path / "swir.csv"
