@@ -4,7 +4,7 @@ The reference is the inversion's own forward model, :func:`matgen.fit.inversion.
 boundary-aware table, n = 1.55, the skin's top index), evaluated at the inverted alpha. The grid inversion
 interpolates that smooth (cubic in g and in the critical cosine, monotone cubic in s) forward model
 bilinearly on a fine grid, so it is not exact: it must return A, 1 - alpha and l/d within 5e-5 relative of
-the public functions (measured worst 1.4e-5 over 15,000 random cases; the inversion itself is held to
+the public functions (measured worst 3.7e-5 over 15,000 random cases; the inversion itself is held to
 adding-doubling within 3e-3, the table's statistical error of A is up to 1e-2). The numba kernel and its
 pure-Python twin agree bit for bit.
 """
