@@ -89,6 +89,7 @@ class OutputSpec:
     wavelengths_nm: tuple = ()
     pixel_type: str | None = None  # "float" forces float32 whatever the config's pixel type
     target: str | None = None  # the renderer target (matgen.targets) that owns this map
+    colour: bool = False  # a target map that is a colour of the working space (colour-managed), else data
 
     def file_name(self, tile: int | None) -> str:
         """Relative file path of this output for UDIM ``tile`` (or a single texture)."""
@@ -400,6 +401,7 @@ def _target_outputs(name: str, table, options: TargetOptions, spectral_index, sp
                 tuple(spectral_bands.centre_nm.tolist()) if bands else (),
                 pixel_type="float",
                 target=name,
+                colour=m.colour,
             )
         )
     return outputs, request, derived

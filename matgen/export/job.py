@@ -54,8 +54,6 @@ from matgen.export.publish import (
 from matgen.fsutil import FolderLock, live_lock_owner
 from matgen.provenance import sha256_file
 from matgen.tables.store import Table, default_table_path, load_default_table
-from matgen.targets import get_target
-from matgen.targets.base import TargetOptions
 from matgen.targets.solve import table_ior
 
 #: Lock file of a whole bake or a tile assembly in its output folder.
@@ -383,11 +381,9 @@ def _build_documents(
 
 
 def _colour_tags(spec, working_space: str) -> dict:
-    """EXR colour or data tags of one output: a target map is colour when its target says so."""
+    """EXR colour or data tags of one output: a target map is colour when its target planned it so."""
     if spec.kind == "target":
-        maps = get_target(spec.target).maps(TargetOptions())
-        colour = any(m.name == spec.quantity and m.colour for m in maps)
-        return exr_colour_attributes(working_space) if colour else exr_data_attributes()
+        return exr_colour_attributes(working_space) if spec.colour else exr_data_attributes()
     return exr_attributes(spec.quantity, spec.channels, working_space)
 
 
