@@ -252,10 +252,10 @@ def check_numbers(data, where: str, path: tuple = ()) -> None:
 
 
 def pass_name(entry) -> str:
-    """Name of a camera pass entry: a built-in name, a ``.csv`` file's stem, or a curve table's ``name``."""
-    if isinstance(entry, dict):
-        return str(entry.get("name", ""))
-    return Path(entry).stem if entry.lower().endswith(".csv") else entry
+    """Name of a camera pass entry (:func:`matgen.color.curves.pass_entry_name`, the one rule)."""
+    from matgen.color.curves import pass_entry_name
+
+    return pass_entry_name(entry)
 
 
 def _check_outputs(outputs: OutputOptions, where: str) -> None:

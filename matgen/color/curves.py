@@ -365,6 +365,19 @@ def combined_weights(curves, bands) -> np.ndarray:
     return out / total
 
 
+def pass_entry_name(entry) -> str:
+    """Name of a config pass entry: a built-in name, a curve file's stem as written, or a table's ``name``.
+
+    The one rule for pass names (each pass is one file, ``passes/<name>.exr``); the name is taken from the
+    entry as written, never from the target of a symbolic link.
+    """
+    from matgen.color.passes import BUILTIN_PASSES
+
+    if isinstance(entry, dict):
+        return str(entry.get("name", ""))
+    return entry if entry in BUILTIN_PASSES else Path(entry).stem
+
+
 def resolve_pass_entry(entry, base_dir, bands, *, allow_outside: bool = False) -> tuple:
     """Turn a config pass entry into ``(name, weights (B,), curve records)``.
 
@@ -378,7 +391,6 @@ def resolve_pass_entry(entry, base_dir, bands, *, allow_outside: bool = False) -
     if isinstance(entry, str):
         if entry in BUILTIN_PASSES:
             curves = [builtin_curve(entry)]
-            name = entry
         else:
             path = resolve_inside(base_dir, entry, "pass response file", allow_outside=allow_outside)
             if not path.is_file() and "/" not in entry and "." not in entry:  # a misspelt built-in name
@@ -391,9 +403,8 @@ def resolve_pass_entry(entry, base_dir, bands, *, allow_outside: bool = False) -
                     f"file in {base_dir}{hint}"
                 )
             curves = [read_curve(path, "response", entry)]
-            name = Path(entry).stem  # the name as written, not the target of a symbolic link
-        return name, combined_weights(curves, bands), [c.record() for c in curves]
-    name = str(entry["name"])
+        return pass_entry_name(entry), combined_weights(curves, bands), [c.record() for c in curves]
+    name = pass_entry_name(entry)
     curves = []
     for role in ROLES:
         if role in entry:
